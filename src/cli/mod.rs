@@ -1,0 +1,148 @@
+//! Command line: one file per command. Parsing and printing only; the work is elsewhere.
+//!
+//! Exit status: 0 success, 1 failure (a cell failed, the disk refused a write), 2 bad input
+//! (spec or arguments), 130 interrupted.
+
+mod check;
+mod run;
+
+use crate::spec::{self, Spec, SpecError};
+use clap::{Args, Parser, Subcommand};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+/// Reproducible threshold studies of optimisation algorithms on random landscapes.
+#[derive(Parser, Debug)]
+#[command(name = "kiln", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// Validate a spec and print its plan: cells, cached, to run, memory.
+    Check(CommonArgs),
+    /// Run the missing cells of a spec and write its table and manifest.
+    Run(RunArgs),
+}
+
+/// Arguments shared by commands that read a spec.
+#[derive(Args, Debug, Clone)]
+pub struct CommonArgs {
+    /// Experiment spec (TOML). Without it, the built-in default experiment.
+    pub spec: Option<PathBuf>,
+    /// Folder for tables and manifests (results/<experiment>/…).
+    #[arg(long, value_name = "DIR", default_value = "results")]
+    pub results: PathBuf,
+    /// Cache folder, shared by experiments. Default: <results>/.cache.
+    #[arg(long, value_name = "DIR")]
+    pub cache: Option<PathBuf>,
+    /// Cells run in parallel. Default: the number of cores.
+    #[arg(long, short = 'j', value_name = "N")]
+    pub jobs: Option<usize>,
+    /// Memory kiln may use (e.g. 8G). Default: the memory available now.
+    #[arg(long, value_name = "SIZE")]
+    pub max_memory: Option<String>,
+    /// Print a machine-readable JSON summary on stdout instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct RunArgs {
+    #[command(flatten)]
+    pub common: CommonArgs,
+    /// No progress bar and no summary text (errors are still printed).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
+}
+
+/// An error caused by the user's input: exit status 2.
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub struct InputError(pub String);
+
+impl CommonArgs {
+    pub fn cache_dir(&self) -> PathBuf {
+        self.cache
+            .clone()
+            .unwrap_or_else(|| self.results.join(".cache"))
+    }
+
+    pub fn load_spec(&self) -> Result<Spec, SpecError> {
+        match &self.spec {
+            Some(p) => spec::load(p),
+            None => Ok(spec::default_spec()),
+        }
+    }
+
+    pub fn max_memory(&self) -> Result<Option<u64>, InputError> {
+        self.max_memory
+            .as_deref()
+            .map(|s| {
+                crate::exec::memory::parse_size(s)
+                    .map_err(|m| InputError(format!("--max-memory: {m}")))
+            })
+            .transpose()
+    }
+
+    pub fn jobs(&self) -> Result<usize, InputError> {
+        match self.jobs {
+            Some(0) => Err(InputError("--jobs 0: give at least 1".into())),
+            Some(j) => Ok(j),
+            None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
+        }
+    }
+}
+
+/// Parses the command line, runs the command, prints errors, and returns the exit status.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let _ = e.print();
+            return match e.kind() {
+                clap::error::ErrorKind::DisplayHelp | clap::error::ErrorKind::DisplayVersion => {
+                    ExitCode::SUCCESS
+                }
+                _ => ExitCode::from(2),
+            };
+        }
+    };
+    let result = match cli.command {
+        Command::Check(a) => check::run(&a),
+        Command::Run(a) => run::run(&a),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) => {
+            let stderr = std::io::stderr();
+            let mut w = stderr.lock();
+            let _ = writeln!(w, "error: {e}");
+            for cause in e.chain().skip(1) {
+                let _ = writeln!(w, "  caused by: {cause}");
+            }
+            if e.downcast_ref::<SpecError>().is_some() || e.downcast_ref::<InputError>().is_some() {
+                ExitCode::from(2)
+            } else {
+                ExitCode::from(1)
+            }
+        }
+    }
+}
+
+/// The results folder of an experiment, refusing names that would leave `results`.
+pub fn experiment_dir(results: &Path, name: &str) -> PathBuf {
+    debug_assert!(!name.contains('/') && !name.starts_with('.'));
+    results.join(name)
+}
+
+/// Writes to stdout, treating a closed pipe as success.
+pub fn out(text: &str) {
+    let stdout = std::io::stdout();
+    let mut w = stdout.lock();
+    let _ = w.write_all(text.as_bytes());
+    let _ = w.flush();
+}

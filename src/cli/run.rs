@@ -1,0 +1,151 @@
+//! `kiln run`: run the missing cells of a spec, then write the table and the manifest.
+
+use super::{RunArgs, experiment_dir, out};
+use crate::cell::Key;
+use crate::exec::{self, INTERRUPTED, Options, Provenance, memory};
+use crate::spec::plan::expand;
+use crate::store::cache::Cache;
+use crate::store::manifest::{Manifest, utc_now};
+use crate::store::{table, write_atomic};
+use anyhow::Context;
+use std::process::ExitCode;
+use std::sync::atomic::Ordering;
+use std::time::Instant;
+
+pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
+    let c = &a.common;
+    let t0 = Instant::now();
+    let started = utc_now();
+    let spec = c.load_spec()?;
+    let max_memory = c.max_memory()?;
+    let jobs_wanted = c.jobs()?;
+    let fit = memory::check(&spec, memory::budget(max_memory))?;
+    let jobs = jobs_wanted.min(fit);
+    let plan = expand(&spec);
+    let cache = Cache::new(c.cache_dir());
+    let talk = !a.quiet && !c.json;
+    if jobs < jobs_wanted && !c.json {
+        eprintln!(
+            "note: running {jobs} cells at a time instead of {jobs_wanted}: more would not fit in memory"
+        );
+    }
+
+    let _ = ctrlc::set_handler(|| {
+        if INTERRUPTED.swap(true, Ordering::SeqCst) {
+            // Second Ctrl-C: leave now. Records are written atomically, so nothing is torn.
+            std::process::exit(130);
+        }
+        eprintln!(
+            "\ninterrupt: finishing the cells in flight, then writing the table (Ctrl-C again to leave at once)"
+        );
+    });
+
+    let host = exec::host_name();
+    let prov = Provenance {
+        host: host.clone(),
+        kiln_version: crate::VERSION.into(),
+        threads: jobs as u32,
+        computed_by: format!("{host}:{}:{started}", std::process::id()),
+    };
+    let report = exec::execute(
+        &spec,
+        &plan,
+        &cache,
+        &Options {
+            jobs,
+            progress: talk,
+        },
+        &prov,
+    )
+    .context("the run stopped")?;
+    if !c.json {
+        for d in &report.damaged {
+            eprintln!("warning: {d}");
+        }
+    }
+
+    // Assemble the table in plan order.
+    let rows: Vec<table::Row> = plan
+        .cells
+        .iter()
+        .filter_map(|cell| {
+            report.records.get(&cell.key).map(|r| table::Row {
+                experiment: &spec.name,
+                label: &spec.algorithms[cell.algo].label,
+                record: r,
+            })
+        })
+        .collect();
+    let dir = experiment_dir(&c.results, &spec.name);
+    let table_path = dir.join("cells.parquet");
+    let manifest_path = dir.join("manifest.toml");
+    table::write(&table_path, &rows, &plan.spec_hash.hex())?;
+    let manifest = Manifest {
+        experiment: spec.name.clone(),
+        note: spec.note.clone(),
+        spec_origin: spec.origin.clone(),
+        spec_hash: plan.spec_hash.hex(),
+        kiln_version: crate::VERSION.into(),
+        git_revision: crate::GIT_REVISION.into(),
+        rustc: crate::RUSTC.into(),
+        host,
+        threads: jobs as u32,
+        started,
+        finished: utc_now(),
+        cells: report.counts.clone(),
+        spec: spec.text.clone(),
+    };
+    write_atomic(&manifest_path, manifest.to_toml().as_bytes())?;
+
+    let k = &report.counts;
+    let wall = t0.elapsed().as_secs_f64();
+    if c.json {
+        let v = serde_json::json!({
+            "experiment": spec.name,
+            "spec_hash": plan.spec_hash.hex(),
+            "cells": {
+                "total": k.total, "cached": k.cached, "computed": k.computed,
+                "failed": k.failed, "skipped": k.skipped,
+            },
+            "rows": rows.len(),
+            "table": table_path.display().to_string(),
+            "manifest": manifest_path.display().to_string(),
+            "cache": cache.root().display().to_string(),
+            "jobs": jobs,
+            "wall_seconds": wall,
+            "interrupted": report.interrupted,
+            "failures": report.failures.iter().map(|(key, m)| serde_json::json!({"cell_key": key, "error": m})).collect::<Vec<_>>(),
+            "damaged": report.damaged,
+        });
+        out(&format!("{v}\n"));
+    } else if !a.quiet {
+        out(&format!(
+            "{}: {} cells · {} computed · {} cached · {} failed · {:.1} s\ntable     {}\nmanifest  {}\n",
+            spec.name,
+            k.total,
+            k.computed,
+            k.cached,
+            k.failed,
+            wall,
+            table_path.display(),
+            manifest_path.display()
+        ));
+    }
+    for (key, m) in &report.failures {
+        eprintln!("failed: cell {}: {m}", &key[..12]);
+    }
+    if report.interrupted {
+        eprintln!(
+            "interrupted: {} cells not run; the table holds the {} rows done so far. Run the same command again to resume.",
+            k.skipped,
+            rows.len()
+        );
+        return Ok(ExitCode::from(130));
+    }
+    let _ = Key::from_hex;
+    Ok(if k.failed > 0 {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    })
+}

@@ -1,0 +1,401 @@
+//! Execution of a plan: cache lookup, scheduling on a rayon pool, progress, interruption,
+//! and assembly of the table.
+//!
+//! Order of work: reference cells (ε = 0) first, then the perturbed cells, which read the
+//! reference output from the cache. Within a phase cells run largest first. Results never
+//! depend on this order: every number comes from streams named by the cell's identity.
+
+pub mod memory;
+
+use crate::cell::Key;
+use crate::measure;
+use crate::rng::{Purpose, stream};
+use crate::spec::Spec;
+use crate::spec::plan::{Cell, Plan};
+use crate::store::StoreError;
+use crate::store::cache::{Cache, Lookup, RECORD_FORMAT, Record};
+use crate::store::manifest::CellCounts;
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use rayon::prelude::*;
+use std::collections::{BTreeMap, HashMap};
+use std::sync::Mutex;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::time::Instant;
+
+/// Set by the SIGINT handler: stop handing out new cells.
+pub static INTERRUPTED: AtomicBool = AtomicBool::new(false);
+
+/// Who computes: recorded in every record as provenance.
+#[derive(Clone, Debug)]
+pub struct Provenance {
+    pub host: String,
+    pub kiln_version: String,
+    pub threads: u32,
+    pub computed_by: String,
+}
+
+/// How to execute.
+#[derive(Clone, Debug)]
+pub struct Options {
+    pub jobs: usize,
+    pub progress: bool,
+}
+
+/// What happened.
+#[derive(Debug, Default)]
+pub struct Report {
+    pub counts: CellCounts,
+    /// Records by key, for every plan cell that has one.
+    pub records: HashMap<Key, Record>,
+    /// (cell key, message) of failed cells.
+    pub failures: Vec<(String, String)>,
+    /// Damaged cache entries found (and moved aside).
+    pub damaged: Vec<String>,
+    pub interrupted: bool,
+}
+
+/// Looks up every distinct cell of the plan. Returns records found and keys missing.
+pub fn lookup(
+    plan: &Plan,
+    cache: &Cache,
+    damaged: &Mutex<Vec<String>>,
+) -> Result<(HashMap<Key, Record>, Vec<Key>), StoreError> {
+    let mut seen = std::collections::HashSet::new();
+    let keys: Vec<Key> = plan
+        .cells
+        .iter()
+        .filter(|c| seen.insert(c.key))
+        .map(|c| c.key)
+        .collect();
+    let found: Vec<Result<Option<Record>, StoreError>> = keys
+        .par_iter()
+        .map(|k| match cache.read_record(k)? {
+            Lookup::Hit(r) => Ok(Some(r)),
+            Lookup::Missing => Ok(None),
+            Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            } => {
+                damaged
+                    .lock()
+                    .expect("lock")
+                    .push(describe_damage(&path, &reason, &moved_to));
+                Ok(None)
+            }
+        })
+        .collect();
+    let mut records = HashMap::new();
+    let mut missing = Vec::new();
+    for (k, r) in keys.into_iter().zip(found) {
+        match r? {
+            Some(r) => {
+                records.insert(k, r);
+            }
+            None => missing.push(k),
+        }
+    }
+    Ok((records, missing))
+}
+
+fn describe_damage(
+    path: &std::path::Path,
+    reason: &str,
+    moved_to: &Option<std::path::PathBuf>,
+) -> String {
+    match moved_to {
+        Some(m) => format!(
+            "damaged cache entry {} ({reason}); moved to {}; recomputing",
+            path.display(),
+            m.display()
+        ),
+        None => format!(
+            "damaged cache entry {} ({reason}); could not move it aside; recomputing",
+            path.display()
+        ),
+    }
+}
+
+/// Runs every missing cell of the plan and returns the records of all cells.
+pub fn execute(
+    spec: &Spec,
+    plan: &Plan,
+    cache: &Cache,
+    opts: &Options,
+    prov: &Provenance,
+) -> Result<Report, StoreError> {
+    let damaged = Mutex::new(Vec::new());
+    let (mut records, missing) = lookup(plan, cache, &damaged)?;
+    let by_key: BTreeMap<Key, &Cell> = plan.cells.iter().map(|c| (c.key, c)).collect();
+    let total = by_key.len() as u64;
+    let cached = records.len() as u64;
+
+    let bar = if opts.progress {
+        ProgressBar::with_draw_target(Some(total), ProgressDrawTarget::stderr())
+    } else {
+        ProgressBar::hidden()
+    };
+    bar.set_style(
+        ProgressStyle::with_template(
+            "{spinner} {elapsed_precise} [{bar:28}] {pos}/{len} cells · {msg} · eta {eta}",
+        )
+        .expect("valid template")
+        .progress_chars("=> "),
+    );
+    bar.set_position(cached);
+    let computed = AtomicU64::new(0);
+    let failed = AtomicU64::new(0);
+    let skipped = AtomicU64::new(0);
+    let set_msg = || {
+        bar.set_message(format!(
+            "computed {} · cached {cached} · failed {}",
+            computed.load(Ordering::Relaxed),
+            failed.load(Ordering::Relaxed)
+        ))
+    };
+    set_msg();
+
+    let mut phase_base: Vec<&Cell> = missing
+        .iter()
+        .map(|k| by_key[k])
+        .filter(|c| c.is_base())
+        .collect();
+    let mut phase_eps: Vec<&Cell> = missing
+        .iter()
+        .map(|k| by_key[k])
+        .filter(|c| !c.is_base())
+        .collect();
+    let cost = |c: &&Cell| spec.algorithms[c.algo].algo.cost(c.n);
+    phase_base.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
+    phase_eps.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
+
+    let new_records: Mutex<Vec<Record>> = Mutex::new(Vec::new());
+    let failures: Mutex<Vec<(String, String)>> = Mutex::new(Vec::new());
+    let fatal: Mutex<Option<StoreError>> = Mutex::new(None);
+    let abort = AtomicBool::new(false);
+
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(opts.jobs.max(1))
+        .build()
+        .expect("thread pool");
+    pool.install(|| {
+        for phase in [&phase_base, &phase_eps] {
+            phase.par_iter().with_max_len(1).for_each(|cell| {
+                if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
+                    skipped.fetch_add(1, Ordering::Relaxed);
+                    return;
+                }
+                match compute_cell(spec, cell, cache, prov, &damaged) {
+                    Ok(r) => {
+                        new_records.lock().expect("lock").push(r);
+                        computed.fetch_add(1, Ordering::Relaxed);
+                        bar.inc(1);
+                    }
+                    Err(CellError::Store(e)) => {
+                        abort.store(true, Ordering::Relaxed);
+                        fatal.lock().expect("lock").get_or_insert(e);
+                        failed.fetch_add(1, Ordering::Relaxed);
+                    }
+                    Err(CellError::Failed(m)) => {
+                        failures.lock().expect("lock").push((cell.key.hex(), m));
+                        failed.fetch_add(1, Ordering::Relaxed);
+                        bar.inc(1);
+                    }
+                }
+                set_msg();
+            });
+        }
+    });
+    bar.finish_and_clear();
+    if let Some(e) = fatal.into_inner().expect("lock") {
+        return Err(e);
+    }
+    for r in new_records.into_inner().expect("lock") {
+        let k = Key::from_hex(&r.key).expect("valid key");
+        records.insert(k, r);
+    }
+    let mut failures = failures.into_inner().expect("lock");
+    failures.sort();
+    Ok(Report {
+        counts: CellCounts {
+            total,
+            cached,
+            computed: computed.into_inner(),
+            failed: failed.into_inner(),
+            skipped: skipped.into_inner(),
+        },
+        records,
+        failures,
+        damaged: damaged.into_inner().expect("lock"),
+        interrupted: INTERRUPTED.load(Ordering::Relaxed),
+    })
+}
+
+enum CellError {
+    /// The cache cannot be written: stop the run.
+    Store(StoreError),
+    /// This cell failed (numerics, missing reference); others go on.
+    Failed(String),
+}
+
+impl From<StoreError> for CellError {
+    fn from(e: StoreError) -> Self {
+        CellError::Store(e)
+    }
+}
+
+/// The reference output of a cell's (instance, algorithm): from the cache, else recomputed.
+struct Reference {
+    spins: Vec<i8>,
+    energy: f64,
+}
+
+fn run_reference(spec: &Spec, cell: &Cell) -> Result<(crate::algo::Output, f64), CellError> {
+    let n = cell.n as usize;
+    let inst = spec.model.sample(n, &cell.instance, 0.0);
+    let mut rng = stream(&cell.run, Purpose::Algorithm, 0);
+    let out = spec.algorithms[cell.algo]
+        .algo
+        .run(&inst, &mut rng)
+        .map_err(|e| CellError::Failed(e.to_string()))?;
+    let energy = inst.energy(&out.spins) / n as f64;
+    Ok((out, energy))
+}
+
+fn compute_cell(
+    spec: &Spec,
+    cell: &Cell,
+    cache: &Cache,
+    prov: &Provenance,
+    damaged: &Mutex<Vec<String>>,
+) -> Result<Record, CellError> {
+    let start = Instant::now();
+    let n = cell.n as usize;
+    let algo = &spec.algorithms[cell.algo].algo;
+    let mut record = Record {
+        format: RECORD_FORMAT,
+        key: cell.key.hex(),
+        base: cell.base.hex(),
+        family: spec.model.family.name().into(),
+        couplings: spec.model.couplings.name().into(),
+        n: cell.n,
+        seed: cell.seed,
+        kind: algo.kind().into(),
+        settings: algo.settings(),
+        epsilon: cell.epsilon,
+        energy: 0.0,
+        energy_perturbed: 0.0,
+        overlap: 1.0,
+        distance: 0.0,
+        iterations: 0,
+        sweeps: 0,
+        converged: false,
+        wall_seconds: 0.0,
+        host: prov.host.clone(),
+        threads: prov.threads,
+        kiln_version: prov.kiln_version.clone(),
+        computed_by: prov.computed_by.clone(),
+    };
+    if cell.is_base() {
+        let (out, energy) = run_reference(spec, cell)?;
+        cache.write_spins(&cell.key, &out.spins)?;
+        record.energy = energy;
+        record.energy_perturbed = energy;
+        record.iterations = out.info.iterations;
+        record.sweeps = out.info.sweeps;
+        record.converged = out.info.converged;
+    } else {
+        let reference = load_reference(cell, cache, damaged)?;
+        let reference = match reference {
+            Some(r) => r,
+            None => {
+                let (out, energy) = run_reference(spec, cell)?;
+                Reference {
+                    spins: out.spins,
+                    energy,
+                }
+            }
+        };
+        let inst = spec.model.sample(n, &cell.instance, cell.epsilon);
+        let mut rng = stream(&cell.run, Purpose::Algorithm, 0);
+        let out = algo
+            .run(&inst, &mut rng)
+            .map_err(|e| CellError::Failed(e.to_string()))?;
+        record.energy = reference.energy;
+        record.energy_perturbed = inst.energy(&out.spins) / n as f64;
+        record.overlap = measure::overlap(&reference.spins, &out.spins);
+        record.distance = measure::distance(&reference.spins, &out.spins);
+        record.iterations = out.info.iterations;
+        record.sweeps = out.info.sweeps;
+        record.converged = out.info.converged;
+    }
+    record.wall_seconds = start.elapsed().as_secs_f64();
+    cache.write_record(&record)?;
+    Ok(record)
+}
+
+fn load_reference(
+    cell: &Cell,
+    cache: &Cache,
+    damaged: &Mutex<Vec<String>>,
+) -> Result<Option<Reference>, CellError> {
+    let note = |l: &Lookup<()>| {
+        if let Lookup::Damaged {
+            path,
+            reason,
+            moved_to,
+        } = l
+        {
+            damaged
+                .lock()
+                .expect("lock")
+                .push(describe_damage(path, reason, moved_to));
+        }
+    };
+    let record = match cache.read_record(&cell.base)? {
+        Lookup::Hit(r) => r,
+        Lookup::Missing => return Ok(None),
+        Lookup::Damaged {
+            path,
+            reason,
+            moved_to,
+        } => {
+            note(&Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            });
+            return Ok(None);
+        }
+    };
+    let spins = match cache.read_spins(&cell.base)? {
+        Lookup::Hit(s) if s.len() == cell.n as usize => s,
+        Lookup::Hit(_) | Lookup::Missing => return Ok(None),
+        Lookup::Damaged {
+            path,
+            reason,
+            moved_to,
+        } => {
+            note(&Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            });
+            return Ok(None);
+        }
+    };
+    Ok(Some(Reference {
+        spins,
+        energy: record.energy,
+    }))
+}
+
+/// Host name, best effort.
+pub fn host_name() -> String {
+    std::fs::read_to_string("/proc/sys/kernel/hostname")
+        .ok()
+        .map(|s| s.trim().to_string())
+        .filter(|s| !s.is_empty())
+        .or_else(|| std::env::var("HOSTNAME").ok())
+        .unwrap_or_else(|| "unknown".into())
+}

@@ -1,0 +1,34 @@
+//! Measurements on outputs: energy per spin, overlap, distance. Integer sums, so exact.
+
+/// σ·τ/n.
+pub fn overlap(a: &[i8], b: &[i8]) -> f64 {
+    assert_eq!(a.len(), b.len());
+    let s: i64 = a.iter().zip(b).map(|(&x, &y)| (x * y) as i64).sum();
+    s as f64 / a.len() as f64
+}
+
+/// ‖σ − τ‖/√n for σ, τ ∈ {±1}^n: 2·sqrt(#differing / n).
+pub fn distance(a: &[i8], b: &[i8]) -> f64 {
+    assert_eq!(a.len(), b.len());
+    let diff = a.iter().zip(b).filter(|(x, y)| x != y).count();
+    2.0 * (diff as f64 / a.len() as f64).sqrt()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn overlap_and_distance() {
+        let a = [1, 1, -1, -1];
+        let b = [1, -1, -1, 1];
+        assert_eq!(overlap(&a, &a), 1.0);
+        assert_eq!(overlap(&a, &b), 0.0);
+        assert_eq!(distance(&a, &a), 0.0);
+        // ‖a − b‖² = 4 + 4 = 8, n = 4 → sqrt(2); and distance² = 2(1 − overlap).
+        assert!((distance(&a, &b) - 2f64.sqrt()).abs() < 1e-15);
+        let c = [-1, -1, 1, 1];
+        assert_eq!(overlap(&a, &c), -1.0);
+        assert_eq!(distance(&a, &c), 2.0);
+    }
+}

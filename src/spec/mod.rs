@@ -1,0 +1,659 @@
+//! Experiment specs: the TOML schema, validation, and expansion into a plan of cells.
+//!
+//! Two stages, no I/O in either: [`parse`] turns text into a [`Spec`] (every value checked,
+//! defaults filled in, each problem reported with file, line, key and a hint), and
+//! [`plan::expand`] turns a `Spec` into the ordered list of cells with their keys.
+
+pub mod error;
+pub mod plan;
+
+use crate::algo::{AlgoSpec, anneal, descent};
+use crate::model::{Couplings, Family, ModelSpec};
+pub use error::SpecError;
+use error::{Locator, choice_hint, closest};
+use serde::Deserialize;
+use std::ops::Range;
+use std::path::Path;
+use toml::Spanned;
+
+/// The built-in default experiment (the same file as `experiments/default.toml`).
+pub const DEFAULT_SPEC: &str = include_str!("../../experiments/default.toml");
+/// How the built-in default is named in messages and manifests.
+pub const DEFAULT_ORIGIN: &str = "built-in default (experiments/default.toml)";
+
+/// Largest number of cells one spec may expand to.
+pub const MAX_CELLS: u128 = 1_000_000;
+/// Largest number of instance seeds.
+pub const MAX_SEEDS: u64 = 1_000_000;
+/// Largest size n accepted by the parser (memory is checked separately, per machine).
+pub const MAX_N: i64 = 1 << 32;
+
+// ---------------------------------------------------------------- raw schema (serde)
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSpec {
+    experiment: RawExperiment,
+    model: RawModel,
+    sweep: RawSweep,
+    #[serde(default)]
+    algorithm: Vec<Spanned<RawAlgorithm>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawExperiment {
+    name: Spanned<String>,
+    #[serde(default)]
+    note: Option<String>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawModel {
+    family: Spanned<String>,
+    #[serde(default)]
+    couplings: Option<Spanned<String>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSweep {
+    sizes: Spanned<Vec<Spanned<i64>>>,
+    seeds: Spanned<toml::Value>,
+    #[serde(default)]
+    epsilons: Option<Spanned<Vec<Spanned<f64>>>>,
+}
+
+/// One `[[algorithm]]` table. Flat on purpose: every setting of every kind is optional here,
+/// and validation says which ones apply to the chosen kind (a tagged enum would lose the
+/// positions serde needs for good messages).
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawAlgorithm {
+    #[serde(default)]
+    label: Option<Spanned<String>>,
+    kind: Spanned<String>,
+    // descent
+    #[serde(default)]
+    order: Option<Spanned<String>>,
+    #[serde(default)]
+    max_sweeps: Option<Spanned<i64>>,
+    // anneal
+    #[serde(default)]
+    sweeps: Option<Spanned<i64>>,
+    #[serde(default)]
+    beta: Option<Spanned<Vec<f64>>>,
+    #[serde(default)]
+    quench: Option<Spanned<bool>>,
+}
+
+const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
+const ANNEAL_KEYS: &[&str] = &["sweeps", "beta", "quench"];
+
+// ---------------------------------------------------------------- resolved spec
+
+/// One algorithm of a spec: its label (not part of any key) and its resolved settings.
+#[derive(Clone, Debug, PartialEq)]
+pub struct AlgoEntry {
+    pub label: String,
+    pub algo: AlgoSpec,
+}
+
+/// A validated experiment spec with every default filled in.
+#[derive(Clone, Debug)]
+pub struct Spec {
+    /// Where it came from, as shown in messages.
+    pub origin: String,
+    /// The exact text (recorded in the manifest).
+    pub text: String,
+    pub name: String,
+    pub note: String,
+    pub model: ModelSpec,
+    /// Sizes with their place in the file (for messages about a size).
+    pub sizes: Vec<(u64, Range<usize>)>,
+    pub seeds: Vec<u64>,
+    /// Stability levels; always starts with 0 (the reference run).
+    pub epsilons: Vec<f64>,
+    pub algorithms: Vec<AlgoEntry>,
+}
+
+impl Spec {
+    /// The error for a problem with size `n` (memory refusal), pointing at its line.
+    pub fn size_error(&self, n: u64, message: String, hint: Option<String>) -> SpecError {
+        let loc = Locator {
+            origin: &self.origin,
+            text: &self.text,
+        };
+        let span = self.sizes.iter().find(|s| s.0 == n).map(|s| s.1.clone());
+        loc.at(span, "sweep.sizes", message, hint)
+    }
+}
+
+/// Reads and parses a spec file.
+pub fn load(path: &Path) -> Result<Spec, SpecError> {
+    let origin = path.display().to_string();
+    let text = std::fs::read_to_string(path).map_err(|e| SpecError {
+        origin: origin.clone(),
+        line: None,
+        key: None,
+        message: format!("cannot read the file: {e}"),
+        hint: Some(if e.kind() == std::io::ErrorKind::NotFound {
+            "check the path; `kiln run` with no spec runs the built-in default".into()
+        } else {
+            "check that the file is readable UTF-8 text".into()
+        }),
+    })?;
+    parse(&text, &origin)
+}
+
+/// The built-in default experiment.
+pub fn default_spec() -> Spec {
+    parse(DEFAULT_SPEC, DEFAULT_ORIGIN).expect("the built-in default spec is valid")
+}
+
+/// Parses and validates spec text. `origin` names it in messages.
+pub fn parse(text: &str, origin: &str) -> Result<Spec, SpecError> {
+    let loc = Locator { origin, text };
+    let raw: RawSpec = toml::from_str(text).map_err(|e| serde_error(&loc, &e))?;
+    validate(raw, &loc)
+}
+
+/// Turns a deserialisation error into a located one, with a suggestion for unknown keys.
+fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
+    let msg = e.message().trim().to_string();
+    let span = e.span();
+    let key = span.as_ref().and_then(|s| loc.key_path_at(s.start));
+    let hint;
+    let mut message = msg.clone();
+    if let Some(rest) = msg.strip_prefix("unknown field `") {
+        let (word, tail) = rest.split_once('`').unwrap_or((rest, ""));
+        let expected: Vec<&str> = tail.split('`').skip(1).step_by(2).collect();
+        message = format!("unknown key `{word}`");
+        hint = Some(match closest(word, expected.iter().copied()) {
+            Some(c) => format!("did you mean `{c}`?"),
+            None if !expected.is_empty() => format!(
+                "valid keys here: {}",
+                expected
+                    .iter()
+                    .map(|c| format!("`{c}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+            None => "see the spec reference in README.md".into(),
+        });
+    } else if let Some(rest) = msg.strip_prefix("missing field `") {
+        let word = rest.split('`').next().unwrap_or(rest);
+        message = format!("missing key `{word}`");
+        hint = Some("see the spec reference in README.md for the required keys".into());
+    } else if msg.starts_with("invalid type") || msg.starts_with("invalid value") {
+        hint = Some("see the spec reference in README.md for the type of each key".into());
+    } else {
+        hint = Some("the file is not valid TOML here".into());
+    }
+    SpecError {
+        origin: loc.origin.to_string(),
+        line: span.map(|s| loc.line_col(s.start)),
+        key,
+        message,
+        hint,
+    }
+}
+
+fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
+    // [experiment]
+    let name = raw.experiment.name.get_ref().clone();
+    let name_ok = !name.is_empty()
+        && name.len() <= 80
+        && !name.starts_with('.')
+        && name
+            .chars()
+            .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'));
+    if !name_ok {
+        return Err(loc.at(
+            Some(raw.experiment.name.span()),
+            "experiment.name",
+            format!("`{name}` cannot name a results folder"),
+            Some("use 1 to 80 letters, digits, `-`, `_` or `.`, not starting with `.`".into()),
+        ));
+    }
+
+    // [model]
+    let fam = &raw.model.family;
+    let family = Family::parse(fam.get_ref()).ok_or_else(|| {
+        loc.at(
+            Some(fam.span()),
+            "model.family",
+            format!("unknown family `{}`", fam.get_ref()),
+            Some(choice_hint(fam.get_ref(), &Family::NAMES)),
+        )
+    })?;
+    let couplings = match &raw.model.couplings {
+        None => Couplings::Gaussian,
+        Some(c) => Couplings::parse(c.get_ref()).ok_or_else(|| {
+            loc.at(
+                Some(c.span()),
+                "model.couplings",
+                format!("unknown coupling law `{}`", c.get_ref()),
+                Some(choice_hint(c.get_ref(), &Couplings::NAMES)),
+            )
+        })?,
+    };
+    let model = ModelSpec { family, couplings };
+
+    // [sweep]
+    let sizes_raw = &raw.sweep.sizes;
+    if sizes_raw.get_ref().is_empty() {
+        return Err(loc.at(
+            Some(sizes_raw.span()),
+            "sweep.sizes",
+            "no sizes given",
+            Some("list at least one size, e.g. sizes = [64, 128]".into()),
+        ));
+    }
+    let mut sizes = Vec::new();
+    for s in sizes_raw.get_ref() {
+        let n = *s.get_ref();
+        if n < 2 {
+            return Err(loc.at(
+                Some(s.span()),
+                "sweep.sizes",
+                format!("size {n} is too small"),
+                Some("every size n must be at least 2".into()),
+            ));
+        }
+        if n > MAX_N {
+            return Err(loc.at(
+                Some(s.span()),
+                "sweep.sizes",
+                format!("size {n} is larger than kiln supports ({MAX_N})"),
+                Some("sizes are numbers of spins; use a smaller n".into()),
+            ));
+        }
+        if sizes.iter().any(|(m, _)| *m == n as u64) {
+            return Err(loc.at(
+                Some(s.span()),
+                "sweep.sizes",
+                format!("size {n} is listed twice"),
+                Some("list each size once".into()),
+            ));
+        }
+        sizes.push((n as u64, s.span()));
+    }
+    let seeds = seeds_from(&raw.sweep.seeds, loc)?;
+    let mut epsilons = vec![0.0];
+    if let Some(eps) = &raw.sweep.epsilons {
+        for e in eps.get_ref() {
+            let x = *e.get_ref();
+            if !(0.0..1.0).contains(&x) {
+                return Err(loc.at(
+                    Some(e.span()),
+                    "sweep.epsilons",
+                    format!("ε = {x} is outside [0, 1)"),
+                    Some(
+                        "ε is one minus the correlation of the perturbed disorder: 0 ≤ ε < 1"
+                            .into(),
+                    ),
+                ));
+            }
+            let x = if x == 0.0 { 0.0 } else { x };
+            if x != 0.0 && epsilons.contains(&x) {
+                return Err(loc.at(
+                    Some(e.span()),
+                    "sweep.epsilons",
+                    format!("ε = {x} is listed twice"),
+                    Some("list each ε once".into()),
+                ));
+            }
+            if x != 0.0 {
+                epsilons.push(x);
+            }
+        }
+    }
+
+    // [[algorithm]]
+    if raw.algorithm.is_empty() {
+        return Err(SpecError {
+            origin: loc.origin.to_string(),
+            line: None,
+            key: Some("algorithm".into()),
+            message: "no algorithm given".into(),
+            hint: Some("add at least one [[algorithm]] table with a `kind`".into()),
+        });
+    }
+    let mut algorithms: Vec<AlgoEntry> = Vec::new();
+    let mut label_spans: Vec<Range<usize>> = Vec::new();
+    for (i, a) in raw.algorithm.iter().enumerate() {
+        let at = format!("algorithm[{}]", i + 1);
+        let a_span = a.span();
+        let a = a.get_ref();
+        let kind = a.kind.get_ref().as_str();
+        let present: Vec<(&str, Range<usize>)> = [
+            ("order", a.order.as_ref().map(|x| x.span())),
+            ("max_sweeps", a.max_sweeps.as_ref().map(|x| x.span())),
+            ("sweeps", a.sweeps.as_ref().map(|x| x.span())),
+            ("beta", a.beta.as_ref().map(|x| x.span())),
+            ("quench", a.quench.as_ref().map(|x| x.span())),
+        ]
+        .into_iter()
+        .filter_map(|(k, s)| s.map(|s| (k, s)))
+        .collect();
+        let allowed: &[&str] = match kind {
+            "descent" => DESCENT_KEYS,
+            "anneal" => ANNEAL_KEYS,
+            _ => {
+                return Err(loc.at(
+                    Some(a.kind.span()),
+                    format!("{at}.kind"),
+                    format!("unknown algorithm kind `{kind}`"),
+                    Some(choice_hint(kind, &AlgoSpec::KINDS)),
+                ));
+            }
+        };
+        if let Some((k, s)) = present.iter().find(|(k, _)| !allowed.contains(k)) {
+            return Err(loc.at(
+                Some(s.clone()),
+                format!("{at}.{k}"),
+                format!("`{k}` does not apply to kind `{kind}`"),
+                Some(format!(
+                    "settings of `{kind}`: {}",
+                    allowed
+                        .iter()
+                        .map(|c| format!("`{c}`"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )),
+            ));
+        }
+        let algo = match kind {
+            "descent" => {
+                let mut p = descent::Params::default();
+                if let Some(o) = &a.order {
+                    p.order = descent::Order::parse(o.get_ref()).ok_or_else(|| {
+                        loc.at(
+                            Some(o.span()),
+                            format!("{at}.order"),
+                            format!("unknown order `{}`", o.get_ref()),
+                            Some(choice_hint(o.get_ref(), &descent::Order::NAMES)),
+                        )
+                    })?;
+                }
+                if let Some(m) = &a.max_sweeps {
+                    p.max_sweeps = positive(m, loc, &format!("{at}.max_sweeps"), 1_000_000_000)?;
+                }
+                AlgoSpec::Descent(p)
+            }
+            _ => {
+                let mut p = anneal::Params::default();
+                if let Some(s) = &a.sweeps {
+                    p.sweeps = positive(s, loc, &format!("{at}.sweeps"), 1_000_000_000)?;
+                }
+                if let Some(b) = &a.beta {
+                    let v = b.get_ref();
+                    let key = format!("{at}.beta");
+                    if v.len() != 2 {
+                        return Err(loc.at(
+                            Some(b.span()),
+                            key,
+                            format!("expected two numbers, got {}", v.len()),
+                            Some("beta = [start, end], e.g. [0.1, 4.0]".into()),
+                        ));
+                    }
+                    if !(v[0].is_finite() && v[1].is_finite() && v[0] >= 0.0) {
+                        return Err(loc.at(
+                            Some(b.span()),
+                            key,
+                            format!("beta = [{}, {}] is not a schedule", v[0], v[1]),
+                            Some("both ends must be finite and the start ≥ 0".into()),
+                        ));
+                    }
+                    if v[1] <= v[0] {
+                        return Err(loc.at(
+                            Some(b.span()),
+                            key,
+                            format!("beta is not increasing: {} then {}", v[0], v[1]),
+                            Some(
+                                "annealing cools: give beta = [start, end] with end > start".into(),
+                            ),
+                        ));
+                    }
+                    p.beta = [v[0], v[1]];
+                }
+                if let Some(q) = &a.quench {
+                    p.quench = *q.get_ref();
+                }
+                AlgoSpec::Anneal(p)
+            }
+        };
+        let (label, lspan) = match &a.label {
+            Some(l) => (l.get_ref().clone(), l.span()),
+            None => (kind.to_string(), a.kind.span()),
+        };
+        if label.trim().is_empty() {
+            return Err(loc.at(
+                Some(lspan),
+                format!("{at}.label"),
+                "empty label",
+                Some("give a short name, or leave `label` out to use the kind".into()),
+            ));
+        }
+        if let Some(j) = algorithms.iter().position(|e| e.label == label) {
+            let (line, _) = loc.line_col(label_spans[j].start);
+            return Err(loc.at(
+                Some(lspan),
+                format!("{at}.label"),
+                format!(
+                    "label `{label}` is already used by algorithm[{}] (line {line})",
+                    j + 1
+                ),
+                Some("labels name table rows: give each algorithm its own".into()),
+            ));
+        }
+        let _ = a_span;
+        label_spans.push(lspan);
+        algorithms.push(AlgoEntry { label, algo });
+    }
+
+    let cells = sizes.len() as u128
+        * seeds.len() as u128
+        * epsilons.len() as u128
+        * algorithms.len() as u128;
+    if cells > MAX_CELLS {
+        return Err(loc.at(
+            Some(raw.sweep.sizes.span()),
+            "sweep",
+            format!("the sweep expands to {cells} cells, more than the {MAX_CELLS} kiln accepts in one spec"),
+            Some("split the study into several specs, or use fewer seeds, sizes or ε levels".into()),
+        ));
+    }
+
+    Ok(Spec {
+        origin: loc.origin.to_string(),
+        text: loc.text.to_string(),
+        name,
+        note: raw.experiment.note.unwrap_or_default(),
+        model,
+        sizes,
+        seeds,
+        epsilons,
+        algorithms,
+    })
+}
+
+fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64, SpecError> {
+    let x = *v.get_ref();
+    if x < 1 {
+        return Err(loc.at(
+            Some(v.span()),
+            key,
+            format!("{x} is not allowed here"),
+            Some("give a whole number ≥ 1".into()),
+        ));
+    }
+    if x > max {
+        return Err(loc.at(
+            Some(v.span()),
+            key,
+            format!("{x} is larger than the limit {max}"),
+            None,
+        ));
+    }
+    Ok(x as u64)
+}
+
+/// `seeds = 16` (0..16), `seeds = [0, 4, 9]`, or `seeds = "10..20"` (half-open).
+fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<u64>, SpecError> {
+    let key = "sweep.seeds";
+    let hint = || {
+        Some(
+            "give a count (seeds = 16), a list (seeds = [0, 4, 9]) or a range (seeds = \"10..20\")"
+                .to_string(),
+        )
+    };
+    let err = |m: String| loc.at(Some(v.span()), key, m, hint());
+    match v.get_ref() {
+        toml::Value::Integer(k) => {
+            if *k < 1 {
+                return Err(err(format!("seeds = {k} gives no instances")));
+            }
+            if *k as u64 > MAX_SEEDS {
+                return Err(err(format!(
+                    "seeds = {k} is more than the {MAX_SEEDS} kiln accepts"
+                )));
+            }
+            Ok((0..*k as u64).collect())
+        }
+        toml::Value::Array(xs) => {
+            if xs.is_empty() {
+                return Err(err("the seed list is empty".into()));
+            }
+            if xs.len() as u64 > MAX_SEEDS {
+                return Err(err(format!(
+                    "{} seeds is more than the {MAX_SEEDS} kiln accepts",
+                    xs.len()
+                )));
+            }
+            let mut out = Vec::with_capacity(xs.len());
+            for x in xs {
+                match x {
+                    toml::Value::Integer(s) if *s >= 0 => {
+                        if out.contains(&(*s as u64)) {
+                            return Err(err(format!("seed {s} is listed twice")));
+                        }
+                        out.push(*s as u64)
+                    }
+                    other => {
+                        return Err(err(format!("`{other}` is not a seed (a whole number ≥ 0)")));
+                    }
+                }
+            }
+            Ok(out)
+        }
+        toml::Value::String(s) => {
+            let parsed = s.split_once("..").and_then(|(a, b)| {
+                Some((a.trim().parse::<u64>().ok()?, b.trim().parse::<u64>().ok()?))
+            });
+            match parsed {
+                Some((a, b)) if a < b => {
+                    if b - a > MAX_SEEDS {
+                        return Err(err(format!(
+                            "the range {s} holds {} seeds, more than the {MAX_SEEDS} kiln accepts",
+                            b - a
+                        )));
+                    }
+                    Ok((a..b).collect())
+                }
+                Some((a, b)) => Err(err(format!("the range \"{s}\" is empty ({a} ≥ {b})"))),
+                None => Err(err(format!("\"{s}\" is not a seed range"))),
+            }
+        }
+        other => Err(err(format!("`{other}` is not a seed count, list or range"))),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+[experiment]
+name = "t"
+[model]
+family = "sk"
+[sweep]
+sizes = [8, 16]
+seeds = 3
+epsilons = [0.1]
+[[algorithm]]
+kind = "descent"
+[[algorithm]]
+label = "a"
+kind = "anneal"
+sweeps = 10
+beta = [0.1, 4]
+"#;
+
+    #[test]
+    fn default_spec_parses() {
+        let s = default_spec();
+        assert!(!s.algorithms.is_empty());
+    }
+
+    #[test]
+    fn good_spec_resolves_defaults() {
+        let s = parse(GOOD, "t.toml").unwrap();
+        assert_eq!(s.seeds, vec![0, 1, 2]);
+        assert_eq!(s.epsilons, vec![0.0, 0.1]);
+        assert_eq!(s.algorithms[0].label, "descent");
+        assert_eq!(
+            s.algorithms[0].algo,
+            AlgoSpec::Descent(descent::Params::default())
+        );
+        match &s.algorithms[1].algo {
+            AlgoSpec::Anneal(p) => {
+                assert_eq!(p.beta, [0.1, 4.0]);
+                assert_eq!(p.sweeps, 10);
+            }
+            other => panic!("{other:?}"),
+        }
+    }
+
+    fn err_of(text: &str) -> SpecError {
+        parse(text, "t.toml").unwrap_err()
+    }
+
+    #[test]
+    fn seeds_forms() {
+        let s = parse(&GOOD.replace("seeds = 3", "seeds = \"5..8\""), "t").unwrap();
+        assert_eq!(s.seeds, vec![5, 6, 7]);
+        let s = parse(&GOOD.replace("seeds = 3", "seeds = [9, 2]"), "t").unwrap();
+        assert_eq!(s.seeds, vec![9, 2]);
+        let e = err_of(&GOOD.replace("seeds = 3", "seeds = \"8..5\""));
+        assert!(e.message.contains("empty"), "{e}");
+    }
+
+    #[test]
+    fn unknown_key_suggests() {
+        let e = err_of(&GOOD.replace("sizes =", "sizs ="));
+        assert_eq!(e.key.as_deref(), Some("sweep.sizs"));
+        assert_eq!(e.hint.as_deref(), Some("did you mean `sizes`?"));
+        assert_eq!(e.line.unwrap().0, 7);
+    }
+
+    #[test]
+    fn wrong_kind_key() {
+        let e = err_of(&GOOD.replace("sweeps = 10", "order = \"random\""));
+        assert_eq!(e.key.as_deref(), Some("algorithm[2].order"));
+        assert!(e.message.contains("does not apply"), "{e}");
+    }
+
+    #[test]
+    fn too_many_cells() {
+        let e = err_of(
+            &GOOD
+                .replace("seeds = 3", "seeds = 1000000")
+                .replace("[8, 16]", "[8, 16, 32]"),
+        );
+        assert!(e.message.contains("12000000 cells"), "{e}");
+    }
+}

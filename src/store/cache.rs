@@ -1,0 +1,341 @@
+//! The content-addressed cache: one record per cell, one spins artifact per reference run.
+//!
+//! Layout under the cache root: `records/<k0k1>/<key>.rec` and `spins/<k0k1>/<key>.spins`,
+//! where `<key>` is the 64-hex cell key and `<k0k1>` its first two digits. Damaged entries are
+//! moved to `quarantine/` (never deleted) and reported.
+//!
+//! Record file: the line `kiln-record 1 sha256=<hex of the rest>` then a JSON body. The body
+//! names its own key, so a valid record copied under another name is detected as foreign.
+//! Spins file: `KILNSPN1`, the 32-byte key, n as u64 LE, the spins packed 8 per byte (bit set
+//! = −1), then the SHA-256 of everything before it.
+
+use super::{StoreError, write_atomic};
+use crate::cell::Key;
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+use std::path::{Path, PathBuf};
+
+/// Version of the record body.
+pub const RECORD_FORMAT: u32 = 1;
+const RECORD_MAGIC: &str = "kiln-record 1 sha256=";
+const SPINS_MAGIC: &[u8; 8] = b"KILNSPN1";
+
+/// Everything kiln keeps about one computed cell. Identity fields, the numbers, and provenance.
+#[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
+pub struct Record {
+    pub format: u32,
+    pub key: String,
+    pub base: String,
+    pub family: String,
+    pub couplings: String,
+    pub n: u64,
+    pub seed: u64,
+    pub kind: String,
+    pub settings: String,
+    pub epsilon: f64,
+    /// H(σ)/n of the reference run (ε = 0) on the original disorder.
+    pub energy: f64,
+    /// H'(σ')/n of the run on the perturbed disorder (equals `energy` at ε = 0).
+    pub energy_perturbed: f64,
+    /// σ·σ'/n.
+    pub overlap: f64,
+    /// ‖σ − σ'‖/√n.
+    pub distance: f64,
+    pub iterations: u64,
+    pub sweeps: u64,
+    pub converged: bool,
+    // provenance (not part of the numbers)
+    pub wall_seconds: f64,
+    pub host: String,
+    pub threads: u32,
+    pub kiln_version: String,
+    /// `host:pid:start` of the process that computed it.
+    pub computed_by: String,
+}
+
+/// The outcome of a cache lookup.
+#[derive(Debug)]
+pub enum Lookup<T> {
+    Hit(T),
+    Missing,
+    /// The entry existed but failed verification; it was moved to `moved_to`.
+    Damaged {
+        path: PathBuf,
+        reason: String,
+        moved_to: Option<PathBuf>,
+    },
+}
+
+/// A cache rooted at a folder (created on first write).
+#[derive(Clone, Debug)]
+pub struct Cache {
+    root: PathBuf,
+}
+
+impl Cache {
+    pub fn new(root: impl Into<PathBuf>) -> Cache {
+        Cache { root: root.into() }
+    }
+
+    pub fn root(&self) -> &Path {
+        &self.root
+    }
+
+    pub fn record_path(&self, key: &Key) -> PathBuf {
+        let h = key.hex();
+        self.root
+            .join("records")
+            .join(&h[..2])
+            .join(format!("{h}.rec"))
+    }
+
+    pub fn spins_path(&self, key: &Key) -> PathBuf {
+        let h = key.hex();
+        self.root
+            .join("spins")
+            .join(&h[..2])
+            .join(format!("{h}.spins"))
+    }
+
+    /// Whether a record file exists (no verification).
+    pub fn has_record(&self, key: &Key) -> bool {
+        self.record_path(key).is_file()
+    }
+
+    pub fn write_record(&self, r: &Record) -> Result<(), StoreError> {
+        let key = Key::from_hex(&r.key).expect("records carry valid keys");
+        let body = serde_json::to_string(r).expect("records serialise");
+        let sum = hex::encode(Sha256::digest(body.as_bytes()));
+        let text = format!("{RECORD_MAGIC}{sum}\n{body}\n");
+        write_atomic(&self.record_path(&key), text.as_bytes())
+    }
+
+    pub fn read_record(&self, key: &Key) -> Result<Lookup<Record>, StoreError> {
+        let path = self.record_path(key);
+        let bytes = match std::fs::read(&path) {
+            Ok(b) => b,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
+            Err(source) => return Err(StoreError::Read { path, source }),
+        };
+        match decode_record(&bytes, key) {
+            Ok(r) => Ok(Lookup::Hit(r)),
+            Err(reason) => Ok(self.quarantine(path, reason)),
+        }
+    }
+
+    pub fn write_spins(&self, key: &Key, spins: &[i8]) -> Result<(), StoreError> {
+        let mut buf = Vec::with_capacity(8 + 32 + 8 + spins.len() / 8 + 1 + 32);
+        buf.extend_from_slice(SPINS_MAGIC);
+        buf.extend_from_slice(&key.0);
+        buf.extend_from_slice(&(spins.len() as u64).to_le_bytes());
+        for chunk in spins.chunks(8) {
+            let mut b = 0u8;
+            for (i, &s) in chunk.iter().enumerate() {
+                if s < 0 {
+                    b |= 1 << i;
+                }
+            }
+            buf.push(b);
+        }
+        let sum = Sha256::digest(&buf);
+        buf.extend_from_slice(&sum);
+        write_atomic(&self.spins_path(key), &buf)
+    }
+
+    pub fn read_spins(&self, key: &Key) -> Result<Lookup<Vec<i8>>, StoreError> {
+        let path = self.spins_path(key);
+        let bytes = match std::fs::read(&path) {
+            Ok(b) => b,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
+            Err(source) => return Err(StoreError::Read { path, source }),
+        };
+        match decode_spins(&bytes, key) {
+            Ok(s) => Ok(Lookup::Hit(s)),
+            Err(reason) => Ok(self.quarantine(path, reason)),
+        }
+    }
+
+    /// Moves a damaged file to `quarantine/` under a unique name.
+    fn quarantine<T>(&self, path: PathBuf, reason: String) -> Lookup<T> {
+        let dir = self.root.join("quarantine");
+        let name = path.file_name().and_then(|s| s.to_str()).unwrap_or("entry");
+        let stamp = std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map_or(0, |d| d.as_nanos());
+        let target = dir.join(format!("{name}.{stamp}.{}", std::process::id()));
+        let moved_to = std::fs::create_dir_all(&dir)
+            .and_then(|_| std::fs::rename(&path, &target))
+            .ok()
+            .map(|_| target);
+        Lookup::Damaged {
+            path,
+            reason,
+            moved_to,
+        }
+    }
+}
+
+fn decode_record(bytes: &[u8], key: &Key) -> Result<Record, String> {
+    let text = std::str::from_utf8(bytes).map_err(|_| "not UTF-8 text".to_string())?;
+    let (head, body) = text
+        .split_once('\n')
+        .ok_or_else(|| "no header line (truncated?)".to_string())?;
+    let sum = head
+        .strip_prefix(RECORD_MAGIC)
+        .ok_or_else(|| "not a kiln record header".to_string())?;
+    let body = body
+        .strip_suffix('\n')
+        .ok_or_else(|| "truncated body".to_string())?;
+    if hex::encode(Sha256::digest(body.as_bytes())) != sum {
+        return Err("checksum mismatch".into());
+    }
+    let r: Record = serde_json::from_str(body).map_err(|e| format!("unreadable body: {e}"))?;
+    if r.format != RECORD_FORMAT {
+        return Err(format!(
+            "record format {} (expected {RECORD_FORMAT})",
+            r.format
+        ));
+    }
+    if r.key != key.hex() {
+        return Err(format!("foreign record: it belongs to cell {}", r.key));
+    }
+    Ok(r)
+}
+
+fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
+    if bytes.len() < 8 + 32 + 8 + 32 {
+        return Err("truncated".into());
+    }
+    let (data, sum) = bytes.split_at(bytes.len() - 32);
+    if Sha256::digest(data).as_slice() != sum {
+        return Err("checksum mismatch".into());
+    }
+    if &data[..8] != SPINS_MAGIC {
+        return Err("not a kiln spins artifact".into());
+    }
+    if data[8..40] != key.0 {
+        return Err(format!(
+            "foreign artifact: it belongs to cell {}",
+            hex::encode(&data[8..40])
+        ));
+    }
+    let n = u64::from_le_bytes(data[40..48].try_into().expect("8 bytes")) as usize;
+    let packed = &data[48..];
+    if packed.len() != n.div_ceil(8) {
+        return Err("length does not match n".into());
+    }
+    Ok((0..n)
+        .map(|i| {
+            if packed[i / 8] >> (i % 8) & 1 == 1 {
+                -1
+            } else {
+                1
+            }
+        })
+        .collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cell::Canon;
+
+    fn key(i: u64) -> Key {
+        Key(Canon::Int(i as i64).hash("test"))
+    }
+
+    fn record(k: Key) -> Record {
+        Record {
+            format: RECORD_FORMAT,
+            key: k.hex(),
+            base: k.hex(),
+            family: "sk".into(),
+            couplings: "gaussian".into(),
+            n: 8,
+            seed: 1,
+            kind: "descent".into(),
+            settings: "{}".into(),
+            epsilon: 0.1,
+            energy: 0.1 + 0.2,
+            energy_perturbed: -1e-300,
+            overlap: 1.0 / 3.0,
+            distance: 2.0f64.sqrt(),
+            iterations: 3,
+            sweeps: 2,
+            converged: true,
+            wall_seconds: 0.5,
+            host: "h".into(),
+            threads: 2,
+            kiln_version: "0".into(),
+            computed_by: "h:1:0".into(),
+        }
+    }
+
+    #[test]
+    fn record_round_trip_is_bit_exact() {
+        let d = tempfile::tempdir().unwrap();
+        let c = Cache::new(d.path());
+        let r = record(key(1));
+        c.write_record(&r).unwrap();
+        match c.read_record(&key(1)).unwrap() {
+            Lookup::Hit(got) => {
+                assert_eq!(got, r);
+                assert_eq!(got.energy.to_bits(), r.energy.to_bits());
+                assert_eq!(got.overlap.to_bits(), r.overlap.to_bits());
+            }
+            other => panic!("{other:?}"),
+        }
+        assert!(matches!(c.read_record(&key(2)).unwrap(), Lookup::Missing));
+    }
+
+    #[test]
+    fn damaged_records_are_detected_and_moved() {
+        let d = tempfile::tempdir().unwrap();
+        let c = Cache::new(d.path());
+        for (i, damage) in ["truncate", "flip", "foreign"].iter().enumerate() {
+            let k = key(10 + i as u64);
+            c.write_record(&record(k)).unwrap();
+            let p = c.record_path(&k);
+            let mut b = std::fs::read(&p).unwrap();
+            match *damage {
+                "truncate" => b.truncate(b.len() / 2),
+                "flip" => {
+                    let m = b.len() - 10;
+                    b[m] ^= 0x01;
+                }
+                _ => {
+                    c.write_record(&record(key(99))).unwrap();
+                    b = std::fs::read(c.record_path(&key(99))).unwrap();
+                }
+            }
+            std::fs::write(&p, b).unwrap();
+            match c.read_record(&k).unwrap() {
+                Lookup::Damaged { moved_to, .. } => {
+                    assert!(moved_to.unwrap().is_file());
+                    assert!(!p.exists());
+                }
+                other => panic!("{damage}: {other:?}"),
+            }
+        }
+    }
+
+    #[test]
+    fn spins_round_trip_and_damage() {
+        let d = tempfile::tempdir().unwrap();
+        let c = Cache::new(d.path());
+        let s: Vec<i8> = (0..13).map(|i| if i % 3 == 0 { -1 } else { 1 }).collect();
+        c.write_spins(&key(5), &s).unwrap();
+        match c.read_spins(&key(5)).unwrap() {
+            Lookup::Hit(got) => assert_eq!(got, s),
+            other => panic!("{other:?}"),
+        }
+        let p = c.spins_path(&key(5));
+        let mut b = std::fs::read(&p).unwrap();
+        b[50] ^= 0x80;
+        std::fs::write(&p, b).unwrap();
+        assert!(matches!(
+            c.read_spins(&key(5)).unwrap(),
+            Lookup::Damaged { .. }
+        ));
+    }
+}

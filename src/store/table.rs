@@ -1,0 +1,95 @@
+//! The results table: `cells.parquet`, one row per cell of a plan, in plan order.
+//!
+//! Every column except the provenance ones (`wall_seconds`, `host`, `threads`,
+//! `computed_by`) is a pure function of the spec: bit-identical whatever the thread count,
+//! shard split or machine. The file carries key–value metadata: the energy convention, the
+//! spec hash and the table format.
+
+use super::cache::Record;
+use super::{StoreError, write_atomic};
+use polars::prelude::*;
+use std::path::Path;
+
+/// Version of the table layout.
+pub const TABLE_FORMAT: &str = "kiln-cells/1";
+
+/// The energy convention, written into the file's metadata and the README.
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j.";
+
+/// Columns that record how a cell was computed, not what it computed.
+pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
+
+/// One row: the experiment, the algorithm's label, and the cell's record.
+pub struct Row<'a> {
+    pub experiment: &'a str,
+    pub label: &'a str,
+    pub record: &'a Record,
+}
+
+/// Builds the table as a DataFrame (column order is part of the format).
+pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
+    macro_rules! col {
+        ($name:expr, $f:expr) => {
+            Column::new($name.into(), rows.iter().map($f).collect::<Vec<_>>())
+        };
+    }
+    DataFrame::new_infer_height(vec![
+        col!("experiment", |r: &Row| r.experiment.to_string()),
+        col!("family", |r: &Row| r.record.family.clone()),
+        col!("couplings", |r: &Row| r.record.couplings.clone()),
+        col!("n", |r: &Row| r.record.n),
+        col!("seed", |r: &Row| r.record.seed),
+        col!("algorithm", |r: &Row| r.label.to_string()),
+        col!("kind", |r: &Row| r.record.kind.clone()),
+        col!("settings", |r: &Row| r.record.settings.clone()),
+        col!("epsilon", |r: &Row| r.record.epsilon),
+        col!("energy", |r: &Row| r.record.energy),
+        col!("energy_perturbed", |r: &Row| r.record.energy_perturbed),
+        col!("overlap", |r: &Row| r.record.overlap),
+        col!("distance", |r: &Row| r.record.distance),
+        col!("iterations", |r: &Row| r.record.iterations),
+        col!("sweeps", |r: &Row| r.record.sweeps),
+        col!("converged", |r: &Row| r.record.converged),
+        col!("cell_key", |r: &Row| r.record.key.clone()),
+        col!("base_key", |r: &Row| r.record.base.clone()),
+        col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),
+        col!("wall_seconds", |r: &Row| r.record.wall_seconds),
+        col!("host", |r: &Row| r.record.host.clone()),
+        col!("threads", |r: &Row| r.record.threads),
+        col!("computed_by", |r: &Row| r.record.computed_by.clone()),
+    ])
+}
+
+/// Writes the table atomically to `path`.
+pub fn write(path: &Path, rows: &[Row], spec_hash: &str) -> Result<(), StoreError> {
+    let terr = |e: PolarsError| StoreError::Table {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    };
+    let mut df = frame(rows).map_err(terr)?;
+    let meta = KeyValueMetadata::from_static(vec![
+        ("kiln.format".into(), TABLE_FORMAT.into()),
+        ("kiln.convention".into(), CONVENTION.into()),
+        ("kiln.spec_hash".into(), spec_hash.into()),
+    ]);
+    let mut buf = Vec::new();
+    ParquetWriter::new(&mut buf)
+        .with_key_value_metadata(Some(meta))
+        .finish(&mut df)
+        .map_err(terr)?;
+    write_atomic(path, &buf)
+}
+
+/// Reads a table back (for `fit`, `plot` and tests).
+pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
+    let f = std::fs::File::open(path).map_err(|source| StoreError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    ParquetReader::new(f)
+        .finish()
+        .map_err(|e| StoreError::Table {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        })
+}

@@ -1,0 +1,274 @@
+//! Every kind of bad input: one clear message naming file, line and key, exit status 2, and
+//! nothing written.
+
+use crate::util::{SMALL, Work, stderr};
+
+/// Runs `kiln run` and `kiln check` on a bad spec; both must refuse with status 2, print
+/// every expected fragment, and leave no results or cache behind.
+fn refuse(text: &str, expected: &[&str]) {
+    let w = Work::new();
+    let spec = w.spec("bad.toml", text);
+    for cmd in ["run", "check"] {
+        let o = w.kiln(&[cmd, spec.to_str().unwrap()]);
+        let err = stderr(&o);
+        assert_eq!(
+            o.status.code(),
+            Some(2),
+            "{cmd}: status {:?}\n{err}",
+            o.status
+        );
+        for e in expected {
+            assert!(err.contains(e), "{cmd}: expected {e:?} in:\n{err}");
+        }
+        assert!(err.contains("bad.toml"), "{cmd}: file not named:\n{err}");
+        assert!(err.contains("hint:"), "{cmd}: no hint:\n{err}");
+        assert_eq!(
+            err.matches("error:").count(),
+            1,
+            "{cmd}: one message:\n{err}"
+        );
+        assert!(!w.path().join("results").exists(), "{cmd} wrote results");
+    }
+}
+
+#[test]
+fn unknown_key_suggests_the_closest() {
+    refuse(
+        &SMALL.replace("sizes = [16, 32]", "sizs = [16, 32]"),
+        &[
+            "line 11",
+            "key `sweep.sizs`",
+            "unknown key `sizs`",
+            "did you mean `sizes`?",
+        ],
+    );
+}
+
+#[test]
+fn unknown_table() {
+    refuse(
+        &SMALL.replace("[sweep]", "[sweeps]"),
+        &[
+            "line 10",
+            "key `sweeps`",
+            "unknown key `sweeps`",
+            "did you mean `sweep`?",
+        ],
+    );
+}
+
+#[test]
+fn wrong_type() {
+    refuse(
+        &SMALL.replace("sizes = [16, 32]", "sizes = \"big\""),
+        &["line 11", "key `sweep.sizes`", "invalid type"],
+    );
+}
+
+#[test]
+fn size_too_small() {
+    refuse(
+        &SMALL.replace("sizes = [16, 32]", "sizes = [16, 1]"),
+        &[
+            "line 11",
+            "key `sweep.sizes`",
+            "size 1 is too small",
+            "at least 2",
+        ],
+    );
+}
+
+#[test]
+fn zero_seeds() {
+    refuse(
+        &SMALL.replace("seeds = 3", "seeds = 0"),
+        &[
+            "line 12",
+            "key `sweep.seeds`",
+            "seeds = 0 gives no instances",
+        ],
+    );
+}
+
+#[test]
+fn epsilon_out_of_range() {
+    for bad in ["1.0", "-0.1", "1.5"] {
+        refuse(
+            &SMALL.replace("epsilons = [0.0, 0.1]", &format!("epsilons = [0.0, {bad}]")),
+            &["line 13", "key `sweep.epsilons`", "outside [0, 1)"],
+        );
+    }
+}
+
+#[test]
+fn zero_sweeps() {
+    refuse(
+        &SMALL.replace("sweeps = 20", "sweeps = 0"),
+        &[
+            "line 23",
+            "key `algorithm[2].sweeps`",
+            "0 is not allowed",
+            "≥ 1",
+        ],
+    );
+}
+
+#[test]
+fn beta_not_increasing() {
+    refuse(
+        &SMALL.replace("beta = [0.1, 3.0]", "beta = [3.0, 0.1]"),
+        &[
+            "line 24",
+            "key `algorithm[2].beta`",
+            "beta is not increasing: 3 then 0.1",
+        ],
+    );
+}
+
+#[test]
+fn unknown_family() {
+    refuse(
+        &SMALL.replace("family = \"sk\"", "family = \"ks\""),
+        &[
+            "line 7",
+            "key `model.family`",
+            "unknown family `ks`",
+            "did you mean `sk`?",
+        ],
+    );
+}
+
+#[test]
+fn unknown_kind() {
+    refuse(
+        &SMALL.replace("kind = \"anneal\"", "kind = \"anneel\""),
+        &[
+            "line 22",
+            "key `algorithm[2].kind`",
+            "unknown algorithm kind `anneel`",
+            "did you mean `anneal`?",
+        ],
+    );
+}
+
+#[test]
+fn setting_of_another_kind() {
+    refuse(
+        &SMALL.replace("sweeps = 20", "order = \"greedy\""),
+        &[
+            "line 23",
+            "key `algorithm[2].order`",
+            "does not apply to kind `anneal`",
+        ],
+    );
+}
+
+#[test]
+fn duplicate_labels() {
+    refuse(
+        &SMALL.replace("label = \"a\"", "label = \"d\""),
+        &[
+            "line 21",
+            "key `algorithm[2].label`",
+            "label `d` is already used by algorithm[1] (line 16)",
+        ],
+    );
+}
+
+#[test]
+fn name_that_would_leave_the_results_folder() {
+    refuse(
+        &SMALL.replace("name = \"small\"", "name = \"../escape\""),
+        &[
+            "line 3",
+            "key `experiment.name`",
+            "cannot name a results folder",
+        ],
+    );
+}
+
+#[test]
+fn not_toml() {
+    refuse(
+        &SMALL.replace("seeds = 3", "seeds = = 3"),
+        &["line 12", "not valid TOML"],
+    );
+}
+
+#[test]
+fn too_large_for_this_machine() {
+    // SK at n = 10^6 stores 8·10^12 bytes of couplings: more than any test machine has.
+    refuse(
+        &SMALL.replace("sizes = [16, 32]", "sizes = [16, 1000000]"),
+        &[
+            "line 11",
+            "key `sweep.sizes`",
+            "n = 1000000 needs about 7.3 TiB",
+        ],
+    );
+}
+
+#[test]
+fn too_large_for_max_memory() {
+    let w = Work::new();
+    let spec = w.spec(
+        "bad.toml",
+        &SMALL.replace("sizes = [16, 32]", "sizes = [16, 2048]"),
+    );
+    let o = w.kiln(&["run", spec.to_str().unwrap(), "--max-memory", "16M"]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("n = 2048 needs about 33.2 MiB of memory; 16.0 MiB is available"),
+        "{err}"
+    );
+    assert!(!w.path().join("results").exists());
+}
+
+#[test]
+fn absurd_expansion_is_refused_with_the_count() {
+    refuse(
+        &SMALL.replace("seeds = 3", "seeds = 1000000"),
+        &["key `sweep`", "expands to 8000000 cells"],
+    );
+}
+
+#[test]
+fn missing_file() {
+    let w = Work::new();
+    let o = w.kiln(&["run", "nowhere.toml"]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("spec nowhere.toml: cannot read the file"),
+        "{err}"
+    );
+    assert!(err.contains("hint:"), "{err}");
+    assert!(!w.path().join("results").exists());
+}
+
+#[test]
+fn unreadable_file() {
+    let w = Work::new();
+    std::fs::write(w.path().join("binary.toml"), [0xff, 0xfe, 0x00, 0x41]).unwrap();
+    let o = w.kiln(&["run", "binary.toml"]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("spec binary.toml: cannot read the file"),
+        "{err}"
+    );
+    assert!(!w.path().join("results").exists());
+}
+
+#[test]
+fn bad_arguments_exit_2() {
+    let w = Work::new();
+    let o = w.kiln(&["run", "--jobs", "0"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    let o = w.kiln(&["run", "--max-memory", "lots"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    let o = w.kiln(&["frobnicate"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!w.path().join("results").exists());
+}

@@ -1,0 +1,9 @@
+//! End-to-end tests of the `kiln` binary: one test binary, a module per theme, a temporary
+//! folder per test.
+
+mod util;
+
+mod bad_input;
+mod numbers;
+mod rerun;
+mod tables;

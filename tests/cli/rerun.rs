@@ -1,0 +1,119 @@
+//! Caching rules: what a rerun computes after each kind of edit.
+
+use crate::util::{SMALL, Work, counts};
+
+#[test]
+fn rerun_rules() {
+    let w = Work::new();
+    let spec = w.spec("s.toml", SMALL);
+    // 2 sizes × 3 seeds × 2 ε × 2 algorithms.
+    assert_eq!(counts(&w.run_json(&spec, &[])), (24, 0));
+    // Same spec: everything cached.
+    assert_eq!(counts(&w.run_json(&spec, &[])), (0, 24));
+
+    // One algorithm's setting changes: only its 12 cells rerun.
+    let text = SMALL.replace("sweeps = 20", "sweeps = 21");
+    let spec = w.spec("s.toml", &text);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (12, 12));
+
+    // A new size: 2 algorithms × 3 seeds × 2 ε.
+    let text = text.replace("sizes = [16, 32]", "sizes = [16, 32, 24]");
+    let spec = w.spec("s.toml", &text);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (12, 24));
+
+    // A new seed: 2 algorithms × 3 sizes × 2 ε.
+    let text = text.replace("seeds = 3", "seeds = 4");
+    let spec = w.spec("s.toml", &text);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (12, 36));
+
+    // A new ε: 2 algorithms × 3 sizes × 4 seeds, and no reference run again.
+    let text = text.replace("epsilons = [0.0, 0.1]", "epsilons = [0.0, 0.1, 0.3]");
+    let spec = w.spec("s.toml", &text);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (24, 48));
+
+    // Reordered tables and keys, renamed labels, a new note and name: nothing reruns.
+    let reordered = r#"
+[[algorithm]]
+kind = "anneal"
+beta = [0.1, 3.0]
+sweeps = 21
+label = "annealing, renamed"
+
+[[algorithm]]
+order = "random"
+kind = "descent"
+label = "descent, renamed"
+
+[sweep]
+epsilons = [0.3, 0.1, 0]
+seeds = [3, 2, 1, 0]
+sizes = [24, 32, 16]
+
+[model]
+couplings = "gaussian"
+family = "sk"
+
+[experiment]
+note = "another note"
+name = "renamed"
+"#;
+    let spec = w.spec("r.toml", reordered);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (0, 72));
+    // Writing a default value explicitly changes nothing either.
+    let explicit = reordered.replace(
+        "order = \"random\"",
+        "order = \"random\"\nmax_sweeps = 100000",
+    );
+    let spec = w.spec("r.toml", &explicit);
+    assert_eq!(counts(&w.run_json(&spec, &[])), (0, 72));
+}
+
+/// Two experiments share the cache: identical cells are computed once.
+#[test]
+fn experiments_share_the_cache() {
+    let w = Work::new();
+    let a = w.spec("a.toml", SMALL);
+    let b = w.spec(
+        "b.toml",
+        &SMALL.replace("name = \"small\"", "name = \"other\""),
+    );
+    assert_eq!(counts(&w.run_json(&a, &[])), (24, 0));
+    assert_eq!(counts(&w.run_json(&b, &[])), (0, 24));
+    assert!(w.path().join("results/small/cells.parquet").is_file());
+    assert!(w.path().join("results/other/cells.parquet").is_file());
+}
+
+/// `--cache` and `--results` move the folders.
+#[test]
+fn folders_can_be_moved() {
+    let w = Work::new();
+    let s = w.spec("s.toml", SMALL);
+    let v = w.run_json(&s, &["--results", "out", "--cache", "store"]);
+    assert_eq!(counts(&v), (24, 0));
+    assert!(w.path().join("out/small/cells.parquet").is_file());
+    assert!(w.path().join("out/small/manifest.toml").is_file());
+    assert!(w.path().join("store/records").is_dir());
+    assert!(!w.path().join("results").exists());
+}
+
+/// `kiln check` reports totals and cached counts and writes nothing.
+#[test]
+fn check_reports_the_plan() {
+    let w = Work::new();
+    let s = w.spec("s.toml", SMALL);
+    let o = w.kiln(&["check", s.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["cells"]["total"], 24);
+    assert_eq!(v["cells"]["cached"], 0);
+    // 32×32 f64 matrix plus work space plus the 1 MiB margin.
+    assert!(v["memory"]["largest_cell_bytes"].as_u64().unwrap() > 8 * 32 * 32);
+    assert!(!w.path().join("results").exists(), "check wrote something");
+    w.run_json(&s, &[]);
+    let o = w.kiln(&["check", s.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        text.contains("24 in total · 24 cached · 0 to run"),
+        "{text}"
+    );
+}

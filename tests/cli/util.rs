@@ -1,0 +1,87 @@
+//! Helpers: a temporary workspace, running the binary, reading its JSON summary.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+pub const SMALL: &str = r#"# a small sweep for tests
+[experiment]
+name = "small"
+note = "test sweep"
+
+[model]
+family = "sk"
+couplings = "gaussian"
+
+[sweep]
+sizes = [16, 32]
+seeds = 3
+epsilons = [0.0, 0.1]
+
+[[algorithm]]
+label = "d"
+kind = "descent"
+order = "random"
+
+[[algorithm]]
+label = "a"
+kind = "anneal"
+sweeps = 20
+beta = [0.1, 3.0]
+"#;
+
+pub struct Work {
+    pub dir: tempfile::TempDir,
+}
+
+impl Work {
+    pub fn new() -> Work {
+        Work {
+            dir: tempfile::tempdir().expect("temp dir"),
+        }
+    }
+
+    pub fn path(&self) -> &Path {
+        self.dir.path()
+    }
+
+    pub fn spec(&self, name: &str, text: &str) -> PathBuf {
+        let p = self.path().join(name);
+        std::fs::write(&p, text).expect("write spec");
+        p
+    }
+
+    /// Runs kiln in the workspace (cwd = workspace).
+    pub fn kiln(&self, args: &[&str]) -> Output {
+        Command::new(env!("CARGO_BIN_EXE_kiln"))
+            .args(args)
+            .current_dir(self.path())
+            .output()
+            .expect("run kiln")
+    }
+
+    /// `kiln run SPEC --json [extra…]`, asserting success; returns the summary.
+    pub fn run_json(&self, spec: &Path, extra: &[&str]) -> serde_json::Value {
+        let mut args = vec!["run", spec.to_str().unwrap(), "--json"];
+        args.extend_from_slice(extra);
+        let o = self.kiln(&args);
+        assert!(
+            o.status.success(),
+            "kiln run failed: {}\n{}",
+            String::from_utf8_lossy(&o.stderr),
+            String::from_utf8_lossy(&o.stdout)
+        );
+        serde_json::from_slice(&o.stdout).expect("JSON summary")
+    }
+}
+
+/// (computed, cached) from a summary.
+pub fn counts(v: &serde_json::Value) -> (u64, u64) {
+    (
+        v["cells"]["computed"].as_u64().unwrap(),
+        v["cells"]["cached"].as_u64().unwrap(),
+    )
+}
+
+pub fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
