@@ -5,6 +5,7 @@
 
 mod check;
 mod run;
+mod summary;
 
 use crate::spec::{self, Spec, SpecError};
 use clap::{Args, Parser, Subcommand};
@@ -33,10 +34,10 @@ enum Command {
 pub struct CommonArgs {
     /// Experiment spec (TOML). Without it, the built-in default experiment.
     pub spec: Option<PathBuf>,
-    /// Folder for tables and manifests (results/<experiment>/…).
+    /// Folder for tables and manifests (`results/<experiment>/…`).
     #[arg(long, value_name = "DIR", default_value = "results")]
     pub results: PathBuf,
-    /// Cache folder, shared by experiments. Default: <results>/.cache.
+    /// Cache folder, shared by experiments. Default: `<results>/.cache`.
     #[arg(long, value_name = "DIR")]
     pub cache: Option<PathBuf>,
     /// Cells run in parallel. Default: the number of cores.

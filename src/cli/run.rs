@@ -1,7 +1,6 @@
 //! `kiln run`: run the missing cells of a spec, then write the table and the manifest.
 
 use super::{RunArgs, experiment_dir, out};
-use crate::cell::Key;
 use crate::exec::{self, INTERRUPTED, Options, Provenance, memory};
 use crate::spec::plan::expand;
 use crate::store::cache::Cache;
@@ -119,8 +118,9 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         });
         out(&format!("{v}\n"));
     } else if !a.quiet {
+        out(&super::summary::render(&spec, &plan, &report.records));
         out(&format!(
-            "{}: {} cells · {} computed · {} cached · {} failed · {:.1} s\ntable     {}\nmanifest  {}\n",
+            "\n{}: {} cells · {} computed · {} cached · {} failed · {:.1} s\ntable     {}\nmanifest  {}\n",
             spec.name,
             k.total,
             k.computed,
@@ -142,7 +142,6 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         );
         return Ok(ExitCode::from(130));
     }
-    let _ = Key::from_hex;
     Ok(if k.failed > 0 {
         ExitCode::from(1)
     } else {

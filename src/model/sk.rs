@@ -152,16 +152,16 @@ impl Dense {
 fn dot_signs(row: &[f64], s: &[i8]) -> f64 {
     // Four partial sums in a fixed pattern: deterministic and vectorisable.
     let mut acc = [0.0f64; 4];
-    let chunks = row.len() / 4;
-    for c in 0..chunks {
-        for l in 0..4 {
-            let j = 4 * c + l;
-            acc[l] += row[j] * s[j] as f64;
-        }
-    }
+    let rc = row.chunks_exact(4);
+    let sc = s.chunks_exact(4);
     let mut tail = 0.0;
-    for j in 4 * chunks..row.len() {
-        tail += row[j] * s[j] as f64;
+    for (&x, &y) in rc.remainder().iter().zip(sc.remainder()) {
+        tail += x * y as f64;
+    }
+    for (r, q) in rc.zip(sc) {
+        for ((a, &x), &y) in acc.iter_mut().zip(r).zip(q) {
+            *a += x * y as f64;
+        }
     }
     (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
 }

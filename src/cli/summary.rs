@@ -1,0 +1,78 @@
+//! The short text table `kiln run` prints: per algorithm and size, the mean energy per spin
+//! over seeds with its standard error, and the mean distance at each ε.
+
+use crate::cell::Key;
+use crate::spec::Spec;
+use crate::spec::plan::Plan;
+use crate::store::cache::Record;
+use std::collections::HashMap;
+
+/// Mean and standard error of the mean (0 for a single value).
+pub fn mean_se(xs: &[f64]) -> (f64, f64) {
+    let n = xs.len() as f64;
+    let m = xs.iter().sum::<f64>() / n;
+    if xs.len() < 2 {
+        return (m, 0.0);
+    }
+    let v = xs.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (n - 1.0);
+    (m, (v / n).sqrt())
+}
+
+pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> String {
+    let eps: Vec<f64> = spec.epsilons.iter().copied().filter(|&e| e > 0.0).collect();
+    let width = spec
+        .algorithms
+        .iter()
+        .map(|a| a.label.chars().count())
+        .max()
+        .unwrap_or(9)
+        .max(9);
+    let mut s = format!(
+        "{:<width$}  {:>7}  {:>17}",
+        "algorithm", "n", "energy/n ± se"
+    );
+    if !eps.is_empty() {
+        s += "   distance at ε =";
+        for e in &eps {
+            s += &format!(" {e:>6}");
+        }
+    }
+    s += "\n";
+    for (ai, a) in spec.algorithms.iter().enumerate() {
+        for &(n, _) in &spec.sizes {
+            let rows: Vec<&Record> = plan
+                .cells
+                .iter()
+                .filter(|c| c.algo == ai && c.n == n)
+                .filter_map(|c| records.get(&c.key))
+                .collect();
+            let energies: Vec<f64> = rows
+                .iter()
+                .filter(|r| r.epsilon == 0.0)
+                .map(|r| r.energy)
+                .collect();
+            if energies.is_empty() {
+                continue;
+            }
+            let (m, se) = mean_se(&energies);
+            s += &format!("{:<width$}  {n:>7}  {m:>8.4} ± {se:<6.4}", a.label);
+            if !eps.is_empty() {
+                s += &" ".repeat(18);
+                for &e in &eps {
+                    let d: Vec<f64> = rows
+                        .iter()
+                        .filter(|r| r.epsilon == e)
+                        .map(|r| r.distance)
+                        .collect();
+                    if d.is_empty() {
+                        s += &format!(" {:>6}", "-");
+                    } else {
+                        s += &format!(" {:>6.3}", mean_se(&d).0);
+                    }
+                }
+            }
+            s += "\n";
+        }
+    }
+    s
+}
