@@ -6,6 +6,7 @@
 mod check;
 mod run;
 mod summary;
+mod verify;
 
 use crate::spec::{self, Spec, SpecError};
 use clap::{Args, Parser, Subcommand};
@@ -27,6 +28,8 @@ enum Command {
     Check(CommonArgs),
     /// Run the missing cells of a spec and write its table and manifest.
     Run(RunArgs),
+    /// Check every entry of a cache; move damaged ones aside; clear leftovers of killed runs.
+    Verify(verify::VerifyArgs),
 }
 
 /// Arguments shared by commands that read a spec.
@@ -115,6 +118,7 @@ pub fn main() -> ExitCode {
     let result = match cli.command {
         Command::Check(a) => check::run(&a),
         Command::Run(a) => run::run(&a),
+        Command::Verify(a) => verify::run(&a),
     };
     match result {
         Ok(code) => code,

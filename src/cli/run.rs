@@ -22,6 +22,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     let jobs = jobs_wanted.min(fit);
     let plan = expand(&spec);
     let cache = Cache::new(c.cache_dir());
+    cache.prepare()?;
     let talk = !a.quiet && !c.json;
     if jobs < jobs_wanted && !c.json {
         eprintln!(

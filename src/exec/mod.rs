@@ -13,7 +13,7 @@ use crate::rng::{Purpose, stream};
 use crate::spec::Spec;
 use crate::spec::plan::{Cell, Plan};
 use crate::store::StoreError;
-use crate::store::cache::{Cache, Lookup, RECORD_FORMAT, Record};
+use crate::store::cache::{Cache, Claim, Lookup, RECORD_FORMAT, Record};
 use crate::store::manifest::CellCounts;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
@@ -54,6 +54,55 @@ pub struct Report {
     pub interrupted: bool,
 }
 
+/// The verified cache entry of a cell: its record and, for a reference cell, its spins
+/// artifact too (later ε levels need it). Damaged entries are moved aside and noted.
+fn cached_record(
+    cache: &Cache,
+    cell: &Cell,
+    damaged: &Mutex<Vec<String>>,
+) -> Result<Option<Record>, StoreError> {
+    let note = |path: &std::path::Path, reason: &str, moved_to: &Option<std::path::PathBuf>| {
+        damaged
+            .lock()
+            .expect("lock")
+            .push(describe_damage(path, reason, moved_to));
+    };
+    // A reference cell needs its spins too; check them even when the record is gone, so a
+    // damaged artifact is reported and moved aside rather than silently overwritten.
+    let spins_ok = if cell.is_base() {
+        match cache.read_spins(&cell.key)? {
+            Lookup::Hit(s) => s.len() as u64 == cell.n,
+            Lookup::Missing => false,
+            Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            } => {
+                note(&path, &reason, &moved_to);
+                false
+            }
+        }
+    } else {
+        true
+    };
+    let record = match cache.read_record(&cell.key)? {
+        Lookup::Hit(r) => r,
+        Lookup::Missing => return Ok(None),
+        Lookup::Damaged {
+            path,
+            reason,
+            moved_to,
+        } => {
+            note(&path, &reason, &moved_to);
+            return Ok(None);
+        }
+    };
+    if !spins_ok {
+        return Ok(None);
+    }
+    Ok(Some(record))
+}
+
 /// Looks up every distinct cell of the plan. Returns records found and keys missing.
 pub fn lookup(
     plan: &Plan,
@@ -61,38 +110,19 @@ pub fn lookup(
     damaged: &Mutex<Vec<String>>,
 ) -> Result<(HashMap<Key, Record>, Vec<Key>), StoreError> {
     let mut seen = std::collections::HashSet::new();
-    let keys: Vec<Key> = plan
-        .cells
-        .iter()
-        .filter(|c| seen.insert(c.key))
-        .map(|c| c.key)
-        .collect();
-    let found: Vec<Result<Option<Record>, StoreError>> = keys
+    let cells: Vec<&Cell> = plan.cells.iter().filter(|c| seen.insert(c.key)).collect();
+    let found: Vec<Result<Option<Record>, StoreError>> = cells
         .par_iter()
-        .map(|k| match cache.read_record(k)? {
-            Lookup::Hit(r) => Ok(Some(r)),
-            Lookup::Missing => Ok(None),
-            Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            } => {
-                damaged
-                    .lock()
-                    .expect("lock")
-                    .push(describe_damage(&path, &reason, &moved_to));
-                Ok(None)
-            }
-        })
+        .map(|c| cached_record(cache, c, damaged))
         .collect();
     let mut records = HashMap::new();
     let mut missing = Vec::new();
-    for (k, r) in keys.into_iter().zip(found) {
+    for (c, r) in cells.into_iter().zip(found) {
         match r? {
             Some(r) => {
-                records.insert(k, r);
+                records.insert(c.key, r);
             }
-            None => missing.push(k),
+            None => missing.push(c.key),
         }
     }
     Ok((records, missing))
@@ -173,37 +203,61 @@ pub fn execute(
     let failures: Mutex<Vec<(String, String)>> = Mutex::new(Vec::new());
     let fatal: Mutex<Option<StoreError>> = Mutex::new(None);
     let abort = AtomicBool::new(false);
+    let cached_later = AtomicU64::new(0);
 
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(opts.jobs.max(1))
         .build()
         .expect("thread pool");
     pool.install(|| {
-        for phase in [&phase_base, &phase_eps] {
-            phase.par_iter().with_max_len(1).for_each(|cell| {
+        for phase in [phase_base, phase_eps] {
+            let mut pending = phase;
+            loop {
+                let deferred: Mutex<Vec<&Cell>> = Mutex::new(Vec::new());
+                pending.par_iter().with_max_len(1).for_each(|cell| {
+                    if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
+                        skipped.fetch_add(1, Ordering::Relaxed);
+                        return;
+                    }
+                    match attempt(spec, cell, cache, prov, &damaged) {
+                        Ok(Outcome::Computed(r)) => {
+                            new_records.lock().expect("lock").push(r);
+                            computed.fetch_add(1, Ordering::Relaxed);
+                            bar.inc(1);
+                        }
+                        Ok(Outcome::Cached(r)) => {
+                            new_records.lock().expect("lock").push(r);
+                            cached_later.fetch_add(1, Ordering::Relaxed);
+                            bar.inc(1);
+                        }
+                        Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
+                        Ok(Outcome::Failed(m)) => {
+                            failures.lock().expect("lock").push((cell.key.hex(), m));
+                            failed.fetch_add(1, Ordering::Relaxed);
+                            bar.inc(1);
+                        }
+                        Err(e) => {
+                            abort.store(true, Ordering::Relaxed);
+                            fatal.lock().expect("lock").get_or_insert(e);
+                            failed.fetch_add(1, Ordering::Relaxed);
+                        }
+                    }
+                    set_msg();
+                });
+                pending = deferred.into_inner().expect("lock");
+                if pending.is_empty() {
+                    break;
+                }
                 if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
-                    skipped.fetch_add(1, Ordering::Relaxed);
-                    return;
+                    skipped.fetch_add(pending.len() as u64, Ordering::Relaxed);
+                    break;
                 }
-                match compute_cell(spec, cell, cache, prov, &damaged) {
-                    Ok(r) => {
-                        new_records.lock().expect("lock").push(r);
-                        computed.fetch_add(1, Ordering::Relaxed);
-                        bar.inc(1);
-                    }
-                    Err(CellError::Store(e)) => {
-                        abort.store(true, Ordering::Relaxed);
-                        fatal.lock().expect("lock").get_or_insert(e);
-                        failed.fetch_add(1, Ordering::Relaxed);
-                    }
-                    Err(CellError::Failed(m)) => {
-                        failures.lock().expect("lock").push((cell.key.hex(), m));
-                        failed.fetch_add(1, Ordering::Relaxed);
-                        bar.inc(1);
-                    }
-                }
-                set_msg();
-            });
+                bar.set_message(format!(
+                    "waiting for {} cells claimed by other runners",
+                    pending.len()
+                ));
+                std::thread::sleep(std::time::Duration::from_millis(150));
+            }
         }
     });
     bar.finish_and_clear();
@@ -219,7 +273,7 @@ pub fn execute(
     Ok(Report {
         counts: CellCounts {
             total,
-            cached,
+            cached: cached + cached_later.into_inner(),
             computed: computed.into_inner(),
             failed: failed.into_inner(),
             skipped: skipped.into_inner(),
@@ -229,6 +283,37 @@ pub fn execute(
         damaged: damaged.into_inner().expect("lock"),
         interrupted: INTERRUPTED.load(Ordering::Relaxed),
     })
+}
+
+enum Outcome {
+    Computed(Record),
+    /// Another runner computed it meanwhile.
+    Cached(Record),
+    /// Another live runner holds its claim: try again later.
+    Deferred,
+    Failed(String),
+}
+
+/// Claims a cell, rechecks the cache under the claim, and computes it if still missing.
+fn attempt(
+    spec: &Spec,
+    cell: &Cell,
+    cache: &Cache,
+    prov: &Provenance,
+    damaged: &Mutex<Vec<String>>,
+) -> Result<Outcome, StoreError> {
+    let _guard = match cache.claim(&cell.key, &prov.host, &prov.computed_by)? {
+        Claim::Acquired(g) => g,
+        Claim::HeldByOther(_) => return Ok(Outcome::Deferred),
+    };
+    if let Some(r) = cached_record(cache, cell, damaged)? {
+        return Ok(Outcome::Cached(r));
+    }
+    match compute_cell(spec, cell, cache, prov, damaged) {
+        Ok(r) => Ok(Outcome::Computed(r)),
+        Err(CellError::Failed(m)) => Ok(Outcome::Failed(m)),
+        Err(CellError::Store(e)) => Err(e),
+    }
 }
 
 enum CellError {
@@ -392,10 +477,5 @@ fn load_reference(
 
 /// Host name, best effort.
 pub fn host_name() -> String {
-    std::fs::read_to_string("/proc/sys/kernel/hostname")
-        .ok()
-        .map(|s| s.trim().to_string())
-        .filter(|s| !s.is_empty())
-        .or_else(|| std::env::var("HOSTNAME").ok())
-        .unwrap_or_else(|| "unknown".into())
+    crate::store::this_host().to_string()
 }

@@ -66,6 +66,60 @@ pub enum Lookup<T> {
     },
 }
 
+/// The outcome of trying to claim a cell.
+#[derive(Debug)]
+pub enum Claim {
+    /// This process holds the claim until the guard is dropped.
+    Acquired(ClaimGuard),
+    /// Another live process holds it; the text names the holder.
+    HeldByOther(String),
+}
+
+/// Removes the claim file when dropped.
+#[derive(Debug)]
+pub struct ClaimGuard {
+    path: PathBuf,
+}
+
+impl Drop for ClaimGuard {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+/// Whether a claim's holder (`host pid …`) is known to be gone: same host, no such process.
+fn holder_is_gone(holder: &str, this_host: &str) -> bool {
+    let mut parts = holder.split_whitespace();
+    match (
+        parts.next(),
+        parts.next().and_then(|p| p.parse::<u32>().ok()),
+    ) {
+        (Some(h), Some(pid)) if h == this_host => !Path::new(&format!("/proc/{pid}")).exists(),
+        (Some(_), Some(_)) => false,
+        // An empty or unreadable claim: its writer died between create and write.
+        _ => true,
+    }
+}
+
+impl<T> Lookup<T> {
+    /// Forgets the payload of a hit (for callers that only count).
+    pub fn map_hit(self) -> Lookup<()> {
+        match self {
+            Lookup::Hit(_) => Lookup::Hit(()),
+            Lookup::Missing => Lookup::Missing,
+            Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            } => Lookup::Damaged {
+                path,
+                reason,
+                moved_to,
+            },
+        }
+    }
+}
+
 /// A cache rooted at a folder (created on first write).
 #[derive(Clone, Debug)]
 pub struct Cache {
@@ -95,6 +149,69 @@ impl Cache {
             .join("spins")
             .join(&h[..2])
             .join(format!("{h}.spins"))
+    }
+
+    /// Creates the cache folders, so that an unusable location is reported up front.
+    pub fn prepare(&self) -> Result<(), StoreError> {
+        for sub in ["records", "spins", "claims"] {
+            let path = self.root.join(sub);
+            std::fs::create_dir_all(&path).map_err(|source| StoreError::Write { path, source })?;
+        }
+        Ok(())
+    }
+
+    pub fn claim_path(&self, key: &Key) -> PathBuf {
+        let h = key.hex();
+        self.root
+            .join("claims")
+            .join(&h[..2])
+            .join(format!("{h}.claim"))
+    }
+
+    /// Claims a cell for computation by atomic creation of its claim file. A claim left by a
+    /// dead process on this host (kill -9) is broken and taken over. Claims of other hosts
+    /// are respected.
+    pub fn claim(&self, key: &Key, host: &str, owner: &str) -> Result<Claim, StoreError> {
+        let path = self.claim_path(key);
+        let werr = |source| StoreError::Write {
+            path: path.clone(),
+            source,
+        };
+        std::fs::create_dir_all(path.parent().expect("claim has a folder")).map_err(werr)?;
+        for _ in 0..3 {
+            match std::fs::OpenOptions::new()
+                .write(true)
+                .create_new(true)
+                .open(&path)
+            {
+                Ok(mut f) => {
+                    use std::io::Write;
+                    f.write_all(format!("{host} {} {owner}\n", std::process::id()).as_bytes())
+                        .map_err(werr)?;
+                    return Ok(Claim::Acquired(ClaimGuard { path }));
+                }
+                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                    let holder = std::fs::read_to_string(&path).unwrap_or_default();
+                    if holder_is_gone(&holder, host) {
+                        // Give a writer between create and write a moment before judging.
+                        if holder.is_empty() {
+                            std::thread::sleep(std::time::Duration::from_millis(50));
+                            if !std::fs::read_to_string(&path)
+                                .unwrap_or_default()
+                                .is_empty()
+                            {
+                                continue;
+                            }
+                        }
+                        let _ = std::fs::remove_file(&path);
+                        continue;
+                    }
+                    return Ok(Claim::HeldByOther(holder.trim().to_string()));
+                }
+                Err(e) => return Err(werr(e)),
+            }
+        }
+        Ok(Claim::HeldByOther("a claim that keeps reappearing".into()))
     }
 
     /// Whether a record file exists (no verification).

@@ -28,6 +28,36 @@ pub enum StoreError {
     Table { path: PathBuf, message: String },
 }
 
+/// This machine's host name (cached), used to tell own leftovers from other hosts' files.
+pub fn this_host() -> &'static str {
+    static HOST: std::sync::OnceLock<String> = std::sync::OnceLock::new();
+    HOST.get_or_init(|| {
+        std::fs::read_to_string("/proc/sys/kernel/hostname")
+            .ok()
+            .map(|s| s.trim().to_string())
+            .filter(|s| !s.is_empty())
+            .or_else(|| std::env::var("HOSTNAME").ok())
+            .unwrap_or_else(|| "unknown".into())
+            .replace(['/', ' '], "_")
+    })
+}
+
+/// For a temporary file name written by [`write_atomic`], whether its writer is known to be
+/// dead (same host, no such process).
+pub fn temp_is_orphan(file_name: &str) -> bool {
+    let Some((_, tail)) = file_name.rsplit_once(".tmp-") else {
+        return false;
+    };
+    // tail = {host}-{pid}-{counter}; the host may itself contain '-'.
+    let mut parts = tail.rsplitn(3, '-');
+    let _counter = parts.next();
+    let pid = parts.next().and_then(|p| p.parse::<u32>().ok());
+    match (parts.next(), pid) {
+        (Some(h), Some(pid)) if h == this_host() => !Path::new(&format!("/proc/{pid}")).exists(),
+        _ => false,
+    }
+}
+
 static TMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 
 /// Writes `bytes` to `path` so that readers see either the old file or the whole new one:
@@ -42,7 +72,8 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
     std::fs::create_dir_all(dir).map_err(err)?;
     let name = path.file_name().and_then(|s| s.to_str()).unwrap_or("file");
     let tmp = dir.join(format!(
-        ".{name}.tmp-{}-{}",
+        ".{name}.tmp-{}-{}-{}",
+        this_host(),
         std::process::id(),
         TMP_COUNTER.fetch_add(1, Ordering::Relaxed)
     ));

@@ -4,6 +4,8 @@
 mod util;
 
 mod bad_input;
+mod hostile;
 mod numbers;
+mod reliability;
 mod rerun;
 mod tables;
