@@ -4,7 +4,10 @@
 //! (spec or arguments), 130 interrupted.
 
 mod check;
+mod compare;
 mod run;
+mod slurm;
+mod status;
 mod summary;
 mod verify;
 
@@ -30,6 +33,12 @@ enum Command {
     Run(RunArgs),
     /// Check every entry of a cache; move damaged ones aside; clear leftovers of killed runs.
     Verify(verify::VerifyArgs),
+    /// Count cells done, running (claimed), failed and missing, per shard.
+    Status(status::StatusArgs),
+    /// Write a Slurm job array that runs a spec in shards over a shared cache.
+    Slurm(slurm::SlurmArgs),
+    /// Whether two tables hold the same numbers, bit for bit (provenance ignored).
+    Compare(compare::CompareArgs),
 }
 
 /// Arguments shared by commands that read a spec.
@@ -61,6 +70,10 @@ pub struct RunArgs {
     /// No progress bar and no summary text (errors are still printed).
     #[arg(long, short = 'q')]
     pub quiet: bool,
+    /// Run only slice i of N (0-based) of the plan, balanced by estimated cost; writes to the
+    /// cache only. A plain `kiln run` afterwards assembles the table.
+    #[arg(long, value_name = "i/N")]
+    pub shard: Option<String>,
 }
 
 /// An error caused by the user's input: exit status 2.
@@ -119,6 +132,9 @@ pub fn main() -> ExitCode {
         Command::Check(a) => check::run(&a),
         Command::Run(a) => run::run(&a),
         Command::Verify(a) => verify::run(&a),
+        Command::Status(a) => status::run(&a),
+        Command::Slurm(a) => slurm::run(&a),
+        Command::Compare(a) => compare::run(&a),
     };
     match result {
         Ok(code) => code,

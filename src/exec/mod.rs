@@ -310,8 +310,14 @@ fn attempt(
         return Ok(Outcome::Cached(r));
     }
     match compute_cell(spec, cell, cache, prov, damaged) {
-        Ok(r) => Ok(Outcome::Computed(r)),
-        Err(CellError::Failed(m)) => Ok(Outcome::Failed(m)),
+        Ok(r) => {
+            cache.clear_failed(&cell.key);
+            Ok(Outcome::Computed(r))
+        }
+        Err(CellError::Failed(m)) => {
+            cache.mark_failed(&cell.key, &m)?;
+            Ok(Outcome::Failed(m))
+        }
         Err(CellError::Store(e)) => Err(e),
     }
 }

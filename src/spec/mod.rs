@@ -6,6 +6,7 @@
 
 pub mod error;
 pub mod plan;
+pub mod shard;
 
 use crate::algo::{AlgoSpec, anneal, descent};
 use crate::model::{Couplings, Family, ModelSpec};

@@ -214,6 +214,23 @@ impl Cache {
         Ok(Claim::HeldByOther("a claim that keeps reappearing".into()))
     }
 
+    pub fn failure_path(&self, key: &Key) -> PathBuf {
+        let h = key.hex();
+        self.root
+            .join("failed")
+            .join(&h[..2])
+            .join(format!("{h}.txt"))
+    }
+
+    /// Notes that a cell failed (for `kiln status`); cleared when it is computed.
+    pub fn mark_failed(&self, key: &Key, message: &str) -> Result<(), StoreError> {
+        write_atomic(&self.failure_path(key), message.as_bytes())
+    }
+
+    pub fn clear_failed(&self, key: &Key) {
+        let _ = std::fs::remove_file(self.failure_path(key));
+    }
+
     /// Whether a record file exists (no verification).
     pub fn has_record(&self, key: &Key) -> bool {
         self.record_path(key).is_file()

@@ -4,6 +4,7 @@
 mod util;
 
 mod bad_input;
+mod cluster;
 mod hostile;
 mod numbers;
 mod reliability;

@@ -1,0 +1,101 @@
+//! `kiln status`: where a spec stands in a cache — cells done, running (claimed), failed,
+//! missing — overall and per shard. Reads only; verifies nothing (see `kiln verify`).
+
+use super::{CommonArgs, out};
+use crate::spec::plan::expand;
+use crate::spec::shard;
+use crate::store::cache::Cache;
+use clap::Args;
+use std::collections::BTreeMap;
+use std::process::ExitCode;
+
+#[derive(Args, Debug)]
+pub struct StatusArgs {
+    #[command(flatten)]
+    pub common: CommonArgs,
+    /// Report per shard of an N-way split (as `kiln run --shard i/N` makes it).
+    #[arg(long, value_name = "N", default_value_t = 1)]
+    pub shards: u32,
+}
+
+#[derive(Default, Clone, Copy)]
+struct Tally {
+    cells: u64,
+    done: u64,
+    running: u64,
+    failed: u64,
+    missing: u64,
+}
+
+pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
+    let spec = a.common.load_spec()?;
+    if a.shards == 0 {
+        return Err(super::InputError("--shards 0: give at least 1".into()).into());
+    }
+    let plan = expand(&spec);
+    let cache = Cache::new(a.common.cache_dir());
+    let assign = shard::assign(&spec, &plan, a.shards);
+    let mut per: BTreeMap<u32, Tally> = (0..a.shards).map(|i| (i, Tally::default())).collect();
+    let mut seen = std::collections::HashSet::new();
+    for c in plan.cells.iter().filter(|c| seen.insert(c.key)) {
+        let t = per.get_mut(&assign[&c.base]).expect("shard");
+        t.cells += 1;
+        if cache.has_record(&c.key) {
+            t.done += 1;
+        } else if cache.claim_path(&c.key).exists() {
+            t.running += 1;
+        } else if cache.failure_path(&c.key).exists() {
+            t.failed += 1;
+        } else {
+            t.missing += 1;
+        }
+    }
+    let mut all = Tally::default();
+    for t in per.values() {
+        all.cells += t.cells;
+        all.done += t.done;
+        all.running += t.running;
+        all.failed += t.failed;
+        all.missing += t.missing;
+    }
+    if a.common.json {
+        let row = |t: &Tally| serde_json::json!({"cells": t.cells, "done": t.done, "running": t.running, "failed": t.failed, "missing": t.missing});
+        let v = serde_json::json!({
+            "experiment": spec.name,
+            "cache": cache.root().display().to_string(),
+            "all": row(&all),
+            "shards": per.iter().map(|(i, t)| {
+                let mut r = row(t);
+                r["shard"] = serde_json::json!(format!("{i}/{}", a.shards));
+                r
+            }).collect::<Vec<_>>(),
+        });
+        out(&format!("{v}\n"));
+    } else {
+        let mut s = format!(
+            "{} in {}\n{:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
+            spec.name,
+            cache.root().display(),
+            "shard",
+            "cells",
+            "done",
+            "running",
+            "failed",
+            "missing"
+        );
+        let line = |label: String, t: &Tally| {
+            format!(
+                "{label:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
+                t.cells, t.done, t.running, t.failed, t.missing
+            )
+        };
+        if a.shards > 1 {
+            for (i, t) in &per {
+                s += &line(format!("{i}/{}", a.shards), t);
+            }
+        }
+        s += &line("all".into(), &all);
+        out(&s);
+    }
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,155 @@
+//! Deterministic, cost-balanced slices of a plan for `--shard i/N`.
+//!
+//! The unit of work is a group: all ε levels of one (instance, algorithm), which share the
+//! reference run, so a shard never needs a reference computed by another. Groups are dealt
+//! largest first to the shard with the least estimated cost so far (ties: lowest index), with
+//! ties between groups broken by key — the longest-processing-time rule (Graham 1969). The
+//! result depends only on the plan: every task of a job array computes the same split.
+
+use super::Spec;
+use super::plan::{Cell, Plan};
+use crate::cell::Key;
+use std::collections::BTreeMap;
+
+/// `i/N` with 0 ≤ i < N.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Shard {
+    pub index: u32,
+    pub count: u32,
+}
+
+impl Shard {
+    /// Parses `i/N` (0-based i, as `$SLURM_ARRAY_TASK_ID/N` gives it).
+    pub fn parse(s: &str) -> Result<Shard, String> {
+        let (a, b) = s
+            .split_once('/')
+            .ok_or_else(|| format!("`{s}` is not a shard: write i/N, e.g. 0/4"))?;
+        let index: u32 = a
+            .trim()
+            .parse()
+            .map_err(|_| format!("`{a}` is not a shard index"))?;
+        let count: u32 = b
+            .trim()
+            .parse()
+            .map_err(|_| format!("`{b}` is not a shard count"))?;
+        if count == 0 || index >= count {
+            return Err(format!(
+                "shard {index}/{count}: the index must be in 0..{count} (0-based) and the count ≥ 1"
+            ));
+        }
+        Ok(Shard { index, count })
+    }
+}
+
+/// For every distinct base key of the plan, the shard (0-based) its group belongs to.
+pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> BTreeMap<Key, u32> {
+    // Group cost: the sum over its distinct cells.
+    let mut groups: BTreeMap<Key, (f64, std::collections::BTreeSet<Key>)> = BTreeMap::new();
+    for c in &plan.cells {
+        let g = groups.entry(c.base).or_default();
+        if g.1.insert(c.key) {
+            g.0 += spec.algorithms[c.algo].algo.cost(c.n);
+        }
+    }
+    let mut order: Vec<(Key, f64)> = groups.into_iter().map(|(k, (c, _))| (k, c)).collect();
+    order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    let mut load = vec![0.0f64; count as usize];
+    let mut out = BTreeMap::new();
+    for (k, c) in order {
+        let (best, _) = load
+            .iter()
+            .enumerate()
+            .min_by(|a, b| a.1.total_cmp(b.1).then(a.0.cmp(&b.0)))
+            .expect("count ≥ 1");
+        load[best] += c;
+        out.insert(k, best as u32);
+    }
+    out
+}
+
+/// The cells of one shard, in plan order.
+pub fn cells_of(spec: &Spec, plan: &Plan, shard: Shard) -> Vec<Cell> {
+    let a = assign(spec, plan, shard.count);
+    plan.cells
+        .iter()
+        .filter(|c| a[&c.base] == shard.index)
+        .cloned()
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::spec::{parse, plan::expand};
+
+    const S: &str = r#"
+[experiment]
+name = "s"
+[model]
+family = "sk"
+[sweep]
+sizes = [32, 64, 512, 1024]
+seeds = 7
+epsilons = [0.1, 0.2]
+[[algorithm]]
+kind = "descent"
+[[algorithm]]
+kind = "anneal"
+sweeps = 50
+"#;
+
+    #[test]
+    fn shards_partition_the_plan() {
+        let spec = parse(S, "t").unwrap();
+        let plan = expand(&spec);
+        for n in [1u32, 2, 3, 4, 7, 100] {
+            let mut all: Vec<Key> = Vec::new();
+            for i in 0..n {
+                all.extend(
+                    cells_of(&spec, &plan, Shard { index: i, count: n })
+                        .iter()
+                        .map(|c| c.key),
+                );
+            }
+            let mut want: Vec<Key> = plan.cells.iter().map(|c| c.key).collect();
+            want.sort();
+            all.sort();
+            assert_eq!(all, want, "{n} shards: not a partition");
+        }
+    }
+
+    #[test]
+    fn shards_are_balanced_by_cost() {
+        let spec = parse(S, "t").unwrap();
+        let plan = expand(&spec);
+        let n = 4;
+        let cost = |cells: &[Cell]| -> f64 {
+            cells
+                .iter()
+                .map(|c| spec.algorithms[c.algo].algo.cost(c.n))
+                .sum()
+        };
+        let loads: Vec<f64> = (0..n)
+            .map(|i| cost(&cells_of(&spec, &plan, Shard { index: i, count: n })))
+            .collect();
+        let biggest_group = 3.0 * spec.algorithms[1].algo.cost(1024);
+        let (lo, hi) = loads
+            .iter()
+            .fold((f64::MAX, 0.0f64), |(l, h), &x| (l.min(x), h.max(x)));
+        // LPT keeps the spread below one group's cost.
+        assert!(hi - lo <= biggest_group, "{loads:?}");
+        // By count the shards differ: the large cells are spread, not the number of cells.
+        let counts: Vec<usize> = (0..n)
+            .map(|i| cells_of(&spec, &plan, Shard { index: i, count: n }).len())
+            .collect();
+        assert!(counts.iter().max() != counts.iter().min(), "{counts:?}");
+    }
+
+    #[test]
+    fn parse_shards() {
+        assert_eq!(Shard::parse("0/4"), Ok(Shard { index: 0, count: 4 }));
+        assert!(Shard::parse("4/4").is_err());
+        assert!(Shard::parse("1/0").is_err());
+        assert!(Shard::parse("x").is_err());
+    }
+}
