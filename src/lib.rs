@@ -8,6 +8,7 @@ pub mod algo;
 pub mod cell;
 pub mod cli;
 pub mod exec;
+pub mod fit;
 pub mod measure;
 pub mod model;
 pub mod rng;

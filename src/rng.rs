@@ -25,6 +25,8 @@ pub enum Purpose {
     Perturbation = 2,
     /// The algorithm's own randomness (start, order, Metropolis uniforms).
     Algorithm = 3,
+    /// Resampling of seeds in the finite-size-scaling bootstrap.
+    Bootstrap = 4,
 }
 
 /// A 32-byte content hash naming an instance or a run.

@@ -5,6 +5,7 @@
 
 mod check;
 mod compare;
+mod fit;
 mod run;
 mod slurm;
 mod status;
@@ -39,6 +40,8 @@ enum Command {
     Slurm(slurm::SlurmArgs),
     /// Whether two tables hold the same numbers, bit for bit (provenance ignored).
     Compare(compare::CompareArgs),
+    /// Extrapolate energy per spin to n → ∞ (finite-size scaling) with error bars.
+    Fit(fit::FitArgs),
 }
 
 /// Arguments shared by commands that read a spec.
@@ -135,6 +138,7 @@ pub fn main() -> ExitCode {
         Command::Status(a) => status::run(&a),
         Command::Slurm(a) => slurm::run(&a),
         Command::Compare(a) => compare::run(&a),
+        Command::Fit(a) => fit::run(&a),
     };
     match result {
         Ok(code) => code,

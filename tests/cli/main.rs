@@ -5,6 +5,7 @@ mod util;
 
 mod bad_input;
 mod cluster;
+mod fitting;
 mod hostile;
 mod numbers;
 mod reliability;
