@@ -11,6 +11,7 @@ pub mod exec;
 pub mod fit;
 pub mod measure;
 pub mod model;
+pub mod plot;
 pub mod rng;
 pub mod spec;
 pub mod store;

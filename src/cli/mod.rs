@@ -6,6 +6,7 @@
 mod check;
 mod compare;
 mod fit;
+mod plot;
 mod run;
 mod slurm;
 mod status;
@@ -42,6 +43,8 @@ enum Command {
     Compare(compare::CompareArgs),
     /// Extrapolate energy per spin to n → ∞ (finite-size scaling) with error bars.
     Fit(fit::FitArgs),
+    /// Draw publication figures (SVG, PNG, PDF) with their data.
+    Plot(plot::PlotArgs),
 }
 
 /// Arguments shared by commands that read a spec.
@@ -139,6 +142,7 @@ pub fn main() -> ExitCode {
         Command::Slurm(a) => slurm::run(&a),
         Command::Compare(a) => compare::run(&a),
         Command::Fit(a) => fit::run(&a),
+        Command::Plot(a) => plot::run(&a),
     };
     match result {
         Ok(code) => code,

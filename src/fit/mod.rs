@@ -65,6 +65,28 @@ pub struct Fit {
     pub chi2: f64,
     pub dof: usize,
     pub warnings: Vec<String>,
+    /// Covariance of (e∞, a, b if fitted, ω if fitted) in that order.
+    pub cov: Vec<Vec<f64>>,
+}
+
+impl Fit {
+    /// e(n) at x = n^{-ω} and its 1σ error from the covariance of the linear parameters.
+    pub fn at(&self, x: f64) -> (f64, f64) {
+        let mut g = vec![1.0, x];
+        let mut y = self.e_inf + self.a * x;
+        if let Some((b, _)) = self.b {
+            g.push(x * x);
+            y += b * x * x;
+        }
+        let var: f64 = (0..g.len())
+            .map(|i| {
+                (0..g.len())
+                    .map(|j| g[i] * self.cov[i][j] * g[j])
+                    .sum::<f64>()
+            })
+            .sum();
+        (y, var.max(0.0).sqrt())
+    }
 }
 
 /// Why a fit could not be made.
@@ -209,6 +231,7 @@ pub fn fit(points: &[Point], params: &Params) -> Result<Fit, FitError> {
         chi2: sol.chi2,
         dof,
         warnings,
+        cov: cov_full,
     })
 }
 

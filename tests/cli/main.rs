@@ -8,6 +8,7 @@ mod cluster;
 mod fitting;
 mod hostile;
 mod numbers;
+mod plotting;
 mod reliability;
 mod rerun;
 mod tables;

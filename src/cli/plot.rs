@@ -1,0 +1,339 @@
+//! `kiln plot`: publication figures from an experiment's table, each in SVG, PNG (300 dpi)
+//! and PDF, each with a CSV sidecar holding exactly the data drawn and the spec hash.
+//!
+//! Figures: `energy-<family>-<couplings>` (energy per spin against n^{-ω} at ε = 0, per
+//! algorithm, with the fitted line, its 1σ band, the extrapolated point at n = ∞, and the
+//! reference value of the model) and `stability-<algorithm>` (mean distance against ε on
+//! log–log axes, one curve per n, with fitted slopes).
+
+use super::{InputError, out};
+use crate::fit::{self, Omega, Params};
+use crate::plot::figures::{self, EnergyFigure, EnergySeries, StabilityFigure, StabilitySeries};
+use crate::plot::{self as kplot, Size};
+use crate::store::{table, write_atomic};
+use clap::Args;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+#[derive(Args, Debug)]
+pub struct PlotArgs {
+    /// Experiment spec, or a results folder holding cells.parquet. Default: the built-in
+    /// default experiment.
+    pub spec: Option<PathBuf>,
+    /// Results folder (where results/<experiment>/cells.parquet is).
+    #[arg(long, value_name = "DIR", default_value = "results")]
+    pub results: PathBuf,
+    /// Correction exponent of the energy plot's x axis and fit. Default: 2/3.
+    #[arg(long, value_name = "X", default_value_t = 2.0 / 3.0)]
+    pub omega: f64,
+    /// Figure width: `one` column (3.4 in) or `two` columns (7 in).
+    #[arg(long, value_name = "one|two", default_value = "one")]
+    pub width: String,
+    /// Print the written files as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Reference values kiln knows for a model (value, legend, source for the caption), from its
+/// table of published values (`kiln theory` will compute them for any mixture).
+fn reference_lines(family: &str) -> Vec<(f64, String, String)> {
+    match family {
+        "sk" => vec![(
+            0.7631667,
+            "Parisi value 0.76317".into(),
+            "Parisi value 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)), from kiln's table of published values; for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).".into(),
+        )],
+        _ => vec![],
+    }
+}
+
+/// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
+type EnergySamples = BTreeMap<(String, String), BTreeMap<String, Vec<(u64, f64)>>>;
+
+fn csv_line(fields: &[String]) -> String {
+    fields.join(",") + "\n"
+}
+
+pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
+    let (name, dir) = match &a.spec {
+        Some(p) if p.is_dir() => (
+            p.file_name()
+                .and_then(|s| s.to_str())
+                .unwrap_or("results")
+                .to_string(),
+            p.clone(),
+        ),
+        Some(p) => {
+            let s = crate::spec::load(p)?;
+            (s.name.clone(), a.results.join(&s.name))
+        }
+        None => {
+            let s = crate::spec::default_spec();
+            (s.name.clone(), a.results.join(&s.name))
+        }
+    };
+    let size = match a.width.as_str() {
+        "one" => Size::OneColumn,
+        "two" => Size::TwoColumn,
+        w => return Err(InputError(format!("--width {w}: give `one` or `two`")).into()),
+    };
+    if !(a.omega > 0.0 && a.omega.is_finite()) {
+        return Err(InputError(format!("--omega {}: give a positive number", a.omega)).into());
+    }
+    let table_path = dir.join("cells.parquet");
+    if !table_path.is_file() {
+        return Err(InputError(format!(
+            "no table at {}: run the experiment first (kiln run)",
+            table_path.display()
+        ))
+        .into());
+    }
+    let spec_hash = std::fs::read_to_string(dir.join("manifest.toml"))
+        .ok()
+        .and_then(|t| t.parse::<toml::Table>().ok())
+        .and_then(|t| {
+            t.get("spec_hash")
+                .and_then(|v| v.as_str().map(String::from))
+        })
+        .unwrap_or_else(|| "unknown".into());
+
+    let df = table::read(&table_path)?;
+    let strs = |c: &str| -> anyhow::Result<Vec<String>> {
+        Ok(df
+            .column(c)?
+            .str()?
+            .iter()
+            .map(|s| s.unwrap_or("").to_string())
+            .collect())
+    };
+    let (fam, coup, alg) = (strs("family")?, strs("couplings")?, strs("algorithm")?);
+    let ns: Vec<u64> = df
+        .column("n")?
+        .u64()?
+        .iter()
+        .map(|x| x.unwrap_or(0))
+        .collect();
+    let eps: Vec<f64> = df
+        .column("epsilon")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(0.0))
+        .collect();
+    let energy: Vec<f64> = df
+        .column("energy")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect();
+    let dist: Vec<f64> = df
+        .column("distance")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect();
+
+    // (family, couplings) → algorithm → samples (n, energy) at ε = 0.
+    let mut energies: EnergySamples = BTreeMap::new();
+    // algorithm → n → ε bits → distances.
+    let mut distances: BTreeMap<String, BTreeMap<u64, BTreeMap<u64, Vec<f64>>>> = BTreeMap::new();
+    let mut order: Vec<String> = Vec::new();
+    for i in 0..df.height() {
+        if !order.contains(&alg[i]) {
+            order.push(alg[i].clone());
+        }
+        if eps[i] == 0.0 {
+            energies
+                .entry((fam[i].clone(), coup[i].clone()))
+                .or_default()
+                .entry(alg[i].clone())
+                .or_default()
+                .push((ns[i], energy[i]));
+        } else {
+            distances
+                .entry(alg[i].clone())
+                .or_default()
+                .entry(ns[i])
+                .or_default()
+                .entry(eps[i].to_bits())
+                .or_default()
+                .push(dist[i]);
+        }
+    }
+    let figdir = dir.join("figures");
+    let mut written: Vec<PathBuf> = Vec::new();
+    let params = Params {
+        omega: Omega::Fixed(a.omega),
+        ..Params::default()
+    };
+    for ((family, couplings), by_alg) in &energies {
+        let mut series = Vec::new();
+        let mut csv = format!(
+            "# kiln figure data: energy per spin against n^-omega; experiment={name}; spec_hash={spec_hash}; omega={}\nseries,kind,n,x,y,y_se\n",
+            a.omega
+        );
+        for label in order.iter().filter(|l| by_alg.contains_key(*l)) {
+            let pts = fit::points(&by_alg[label]);
+            let f = fit::fit(&pts, &params).ok();
+            for p in &pts {
+                csv += &csv_line(&[
+                    label.clone(),
+                    "mean".into(),
+                    format!("{}", p.n),
+                    format!("{:?}", p.n.powf(-a.omega)),
+                    format!("{:?}", p.mean),
+                    format!("{:?}", p.se),
+                ]);
+            }
+            if let Some(f) = &f {
+                csv += &csv_line(&[
+                    label.clone(),
+                    "extrapolated".into(),
+                    "inf".into(),
+                    "0.0".into(),
+                    format!("{:?}", f.e_inf),
+                    format!("{:?}", f.e_inf_se),
+                ]);
+            }
+            series.push(EnergySeries {
+                label: label.clone(),
+                points: pts.iter().map(|p| (p.n, p.mean, p.se)).collect(),
+                fit: f,
+            });
+        }
+        let refs = reference_lines(family);
+        for (v, l, _) in &refs {
+            csv += &csv_line(&[
+                format!("\"{l}\""),
+                "reference".into(),
+                "inf".into(),
+                "".into(),
+                format!("{v:?}"),
+                "".into(),
+            ]);
+        }
+        let caption = format!(
+            "{} ({} couplings): mean energy per spin over seeds at ε = 0, error bars 1 SE; lines: fits e∞ + a n^-ω with ω = {:.3} and 1σ bands; points at n^-ω = 0: extrapolations. {}",
+            family.to_uppercase(),
+            couplings,
+            a.omega,
+            refs.iter()
+                .map(|r| r.2.clone())
+                .collect::<Vec<_>>()
+                .join(" ")
+        );
+        let fig = EnergyFigure {
+            omega: a.omega,
+            series,
+            theory: refs.iter().map(|r| (r.0, r.1.clone())).collect(),
+            caption,
+        };
+        let base = figdir.join(format!("energy-{family}-{couplings}"));
+        written.extend(write_all(
+            &base,
+            size,
+            &csv,
+            |root| figures::draw_energy(root, &fig),
+            |root| figures::draw_energy(root, &fig),
+        )?);
+    }
+    for label in order.iter().filter(|l| distances.contains_key(*l)) {
+        let mut series = Vec::new();
+        let mut csv = format!(
+            "# kiln figure data: mean distance against epsilon; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nseries,n,epsilon,distance,distance_se,seeds\n"
+        );
+        for (n, by_eps) in &distances[label] {
+            let pts: Vec<(f64, f64, f64)> = by_eps
+                .iter()
+                .map(|(e, ds)| {
+                    let p = &fit::points(&ds.iter().map(|&d| (0u64, d)).collect::<Vec<_>>())[0];
+                    csv += &csv_line(&[
+                        format!("n={n}"),
+                        n.to_string(),
+                        format!("{:?}", f64::from_bits(*e)),
+                        format!("{:?}", p.mean),
+                        format!("{:?}", p.se),
+                        p.count.to_string(),
+                    ]);
+                    (f64::from_bits(*e), p.mean, p.se)
+                })
+                .collect();
+            let slope = figures::loglog_slope(&pts);
+            series.push(StabilitySeries {
+                label: format!("n = {n}"),
+                points: pts,
+                slope,
+            });
+        }
+        let fig = StabilityFigure {
+            title: format!("stability of {label}"),
+            series,
+            caption: "Mean distance ‖σ − σ'‖/√n between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; slopes: least-squares fits of log distance against log ε.".into(),
+        };
+        let safe: String = label
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                    c
+                } else {
+                    '_'
+                }
+            })
+            .collect();
+        let base = figdir.join(format!("stability-{safe}"));
+        match write_all(
+            &base,
+            size,
+            &csv,
+            |root| figures::draw_stability(root, &fig),
+            |root| figures::draw_stability(root, &fig),
+        ) {
+            Ok(w) => written.extend(w),
+            Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
+        }
+    }
+    if a.json {
+        let v = serde_json::json!({ "experiment": name, "files": written.iter().map(|p| p.display().to_string()).collect::<Vec<_>>() });
+        out(&format!("{v}\n"));
+    } else {
+        let mut s = String::new();
+        for p in &written {
+            s += &format!("wrote {}\n", p.display());
+        }
+        out(&s);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Writes base.svg, base.png, base.pdf and base.csv.
+fn write_all<F, G>(
+    base: &Path,
+    size: Size,
+    csv: &str,
+    svg_draw: F,
+    png_draw: G,
+) -> anyhow::Result<Vec<PathBuf>>
+where
+    F: Fn(
+        plotters::drawing::DrawingArea<plotters::prelude::SVGBackend, plotters::coord::Shift>,
+    ) -> Result<(), String>,
+    G: Fn(
+        plotters::drawing::DrawingArea<plotters::prelude::BitMapBackend, plotters::coord::Shift>,
+    ) -> Result<(), String>,
+{
+    let svg = kplot::to_svg(size, svg_draw).map_err(anyhow::Error::msg)?;
+    let png = kplot::to_png(size, png_draw).map_err(anyhow::Error::msg)?;
+    let pdf = kplot::svg_to_pdf(&svg).map_err(anyhow::Error::msg)?;
+    let mut out = Vec::new();
+    for (ext, bytes) in [
+        ("svg", svg.as_bytes()),
+        ("png", &png[..]),
+        ("pdf", &pdf[..]),
+        ("csv", csv.as_bytes()),
+    ] {
+        let p = base.with_extension(ext);
+        write_atomic(&p, bytes)?;
+        out.push(p);
+    }
+    Ok(out)
+}

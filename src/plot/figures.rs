@@ -1,0 +1,380 @@
+//! The figures kiln draws: energy against n^{-ω} with the finite-size-scaling fit, and
+//! stability (distance against ε on log–log axes).
+
+use super::{PALETTE, err, pt};
+use crate::fit::{Fit, format::with_error};
+use plotters::coord::Shift;
+use plotters::prelude::*;
+
+/// One algorithm's energies: per size (n, mean, se) and its fit.
+#[derive(Clone, Debug)]
+pub struct EnergySeries {
+    pub label: String,
+    pub points: Vec<(f64, f64, f64)>,
+    pub fit: Option<Fit>,
+}
+
+/// Energy per spin against n^{-ω}.
+#[derive(Clone, Debug)]
+pub struct EnergyFigure {
+    pub omega: f64,
+    pub series: Vec<EnergySeries>,
+    /// Horizontal reference lines (value, legend text).
+    pub theory: Vec<(f64, String)>,
+    pub caption: String,
+}
+
+/// One size's curve: (ε, mean distance, se) and the fitted log–log slope.
+#[derive(Clone, Debug)]
+pub struct StabilitySeries {
+    pub label: String,
+    pub points: Vec<(f64, f64, f64)>,
+    pub slope: Option<f64>,
+}
+
+#[derive(Clone, Debug)]
+pub struct StabilityFigure {
+    pub title: String,
+    pub series: Vec<StabilitySeries>,
+    pub caption: String,
+}
+
+/// Least-squares slope of log y against log x (points with y > 0).
+pub fn loglog_slope(points: &[(f64, f64, f64)]) -> Option<f64> {
+    let pts: Vec<(f64, f64)> = points
+        .iter()
+        .filter(|p| p.0 > 0.0 && p.1 > 0.0)
+        .map(|p| (p.0.ln(), p.1.ln()))
+        .collect();
+    if pts.len() < 2 {
+        return None;
+    }
+    let k = pts.len() as f64;
+    let mx = pts.iter().map(|p| p.0).sum::<f64>() / k;
+    let my = pts.iter().map(|p| p.1).sum::<f64>() / k;
+    let sxx: f64 = pts.iter().map(|p| (p.0 - mx) * (p.0 - mx)).sum();
+    let sxy: f64 = pts.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum();
+    (sxx > 0.0).then(|| sxy / sxx)
+}
+
+fn wrap(text: &str, width: usize) -> Vec<String> {
+    let mut lines = vec![String::new()];
+    for word in text.split_whitespace() {
+        let last = lines.last_mut().expect("one line");
+        if !last.is_empty() && last.chars().count() + 1 + word.chars().count() > width {
+            lines.push(word.to_string());
+        } else {
+            if !last.is_empty() {
+                last.push(' ');
+            }
+            last.push_str(word);
+        }
+    }
+    lines
+}
+
+/// Splits off the caption band and writes the caption into it; returns the plot area.
+fn with_caption<DB: DrawingBackend>(
+    root: &DrawingArea<DB, Shift>,
+    caption: &str,
+) -> Result<DrawingArea<DB, Shift>, String> {
+    root.fill(&WHITE).map_err(err)?;
+    let (w, h) = root.dim_in_pixel();
+    let size = pt(6.0);
+    let chars = (w as f64 / (0.52 * size)) as usize;
+    let lines = wrap(caption, chars.max(20));
+    let band = ((lines.len() as f64 + 0.6) * size * 1.25) as u32;
+    let (main, cap) = root.split_vertically(h.saturating_sub(band));
+    let style = TextStyle::from(("sans-serif", size).into_font()).color(&BLACK);
+    for (i, l) in lines.iter().enumerate() {
+        cap.draw_text(
+            l,
+            &style,
+            (
+                (0.02 * w as f64) as i32,
+                (i as f64 * size * 1.25 + 0.3 * size) as i32,
+            ),
+        )
+        .map_err(err)?;
+    }
+    Ok(main)
+}
+
+fn marker<DB: DrawingBackend>(
+    area: &DrawingArea<
+        DB,
+        plotters::coord::cartesian::Cartesian2d<
+            impl Ranged<ValueType = f64>,
+            impl Ranged<ValueType = f64>,
+        >,
+    >,
+    i: usize,
+    (x, y): (f64, f64),
+    color: RGBColor,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let r = pt(2.2) as i32;
+    let res = match i % 4 {
+        0 => area.draw(&Circle::new((x, y), r, color.filled())),
+        1 => area.draw(&TriangleMarker::new((x, y), r + 2, color.filled())),
+        2 => area.draw(&Cross::new((x, y), r, color.stroke_width(3))),
+        _ => area.draw(&Circle::new((x, y), r, color.stroke_width(3))),
+    };
+    res.map_err(err)
+}
+
+/// Draws the energy figure.
+pub fn draw_energy<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    fig: &EnergyFigure,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let main = with_caption(&root, &fig.caption)?;
+    let xs = |n: f64| n.powf(-fig.omega);
+    let xmax = fig
+        .series
+        .iter()
+        .flat_map(|s| s.points.iter().map(|p| xs(p.0)))
+        .fold(0.0, f64::max)
+        * 1.08;
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for s in &fig.series {
+        for p in &s.points {
+            lo = lo.min(p.1 - p.2);
+            hi = hi.max(p.1 + p.2);
+        }
+        if let Some(f) = &s.fit {
+            lo = lo.min(f.e_inf - f.e_inf_se);
+            hi = hi.max(f.e_inf + f.e_inf_se);
+        }
+    }
+    for (v, _) in &fig.theory {
+        lo = lo.min(*v);
+        hi = hi.max(*v);
+    }
+    let pad = 0.08 * (hi - lo).max(1e-3);
+    let (lo, hi) = (lo - pad, hi + 2.5 * pad);
+    let mut chart = ChartBuilder::on(&main)
+        .margin(pt(5.0) as u32)
+        .x_label_area_size(pt(20.0) as u32)
+        .y_label_area_size(pt(30.0) as u32)
+        .build_cartesian_2d(0.0..xmax, lo..hi)
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .disable_x_mesh()
+        .disable_y_mesh()
+        .x_desc(format!("n^-ω  (ω = {:.3})", fig.omega))
+        .y_desc("energy per spin  H/n")
+        .label_style(("sans-serif", pt(7.0)))
+        .axis_desc_style(("sans-serif", pt(8.0)))
+        .x_labels(5)
+        .y_labels(6)
+        .axis_style(BLACK.stroke_width(2))
+        .draw()
+        .map_err(err)?;
+    for (v, label) in &fig.theory {
+        chart
+            .draw_series(DashedLineSeries::new(
+                vec![(0.0, *v), (xmax, *v)],
+                pt(3.0) as u32,
+                pt(2.0) as u32,
+                BLACK.stroke_width(3),
+            ))
+            .map_err(err)?
+            .label(label.clone())
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+    }
+    for (i, s) in fig.series.iter().enumerate() {
+        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        if let Some(f) = &s.fit {
+            let grid: Vec<f64> = (0..=60).map(|k| xmax * k as f64 / 60.0).collect();
+            let mut band: Vec<(f64, f64)> = grid
+                .iter()
+                .map(|&x| {
+                    let (y, e) = f.at(x);
+                    (x, y + e)
+                })
+                .collect();
+            band.extend(grid.iter().rev().map(|&x| {
+                let (y, e) = f.at(x);
+                (x, y - e)
+            }));
+            chart
+                .draw_series(std::iter::once(Polygon::new(
+                    band,
+                    color.mix(0.22).filled(),
+                )))
+                .map_err(err)?;
+            chart
+                .draw_series(LineSeries::new(
+                    grid.iter().map(|&x| (x, f.at(x).0)),
+                    color.stroke_width(3),
+                ))
+                .map_err(err)?
+                .label(format!(
+                    "{}: e∞ = {}",
+                    s.label,
+                    with_error(f.e_inf, f.e_inf_se)
+                ))
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
+                });
+            chart
+                .draw_series(std::iter::once(ErrorBar::new_vertical(
+                    0.0,
+                    f.e_inf - f.e_inf_se,
+                    f.e_inf,
+                    f.e_inf + f.e_inf_se,
+                    color.stroke_width(3),
+                    pt(4.0) as u32,
+                )))
+                .map_err(err)?;
+            marker(chart.plotting_area(), i, (0.0, f.e_inf), color)?;
+        }
+        for p in &s.points {
+            let x = xs(p.0);
+            chart
+                .draw_series(std::iter::once(ErrorBar::new_vertical(
+                    x,
+                    p.1 - p.2,
+                    p.1,
+                    p.1 + p.2,
+                    color.stroke_width(2),
+                    pt(3.0) as u32,
+                )))
+                .map_err(err)?;
+            marker(chart.plotting_area(), i, (x, p.1), color)?;
+        }
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font(("sans-serif", pt(6.5)))
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(err)?;
+    root.present().map_err(err)
+}
+
+/// Draws a stability figure: distance against ε, log–log, one curve per size.
+pub fn draw_stability<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    fig: &StabilityFigure,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let main = with_caption(&root, &fig.caption)?;
+    let pos: Vec<&(f64, f64, f64)> = fig
+        .series
+        .iter()
+        .flat_map(|s| s.points.iter())
+        .filter(|p| p.0 > 0.0 && p.1 > 0.0)
+        .collect();
+    if pos.is_empty() {
+        return Err("no positive distances to draw".into());
+    }
+    let (xlo, xhi) = pos
+        .iter()
+        .fold((f64::MAX, 0.0f64), |(l, h), p| (l.min(p.0), h.max(p.0)));
+    let (ylo, yhi) = pos.iter().fold((f64::MAX, 0.0f64), |(l, h), p| {
+        (l.min((p.1 - p.2).max(p.1 * 0.5)), h.max(p.1 + p.2))
+    });
+    let mut chart = ChartBuilder::on(&main)
+        .margin(pt(5.0) as u32)
+        .caption(&fig.title, ("sans-serif", pt(8.0)))
+        .x_label_area_size(pt(20.0) as u32)
+        .y_label_area_size(pt(30.0) as u32)
+        .build_cartesian_2d(
+            (xlo / 1.6..xhi * 1.6).log_scale(),
+            (ylo / 1.3..yhi * 4.0).log_scale(),
+        )
+        .map_err(err)?;
+    chart
+        .configure_mesh()
+        .disable_x_mesh()
+        .disable_y_mesh()
+        .x_labels(4)
+        .y_labels(5)
+        .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))
+        .y_label_formatter(&|y| format!("{}", (y * 1e4).round() / 1e4))
+        .x_desc("ε  (disorder correlation 1 − ε)")
+        .y_desc("distance  ‖σ − σ'‖/√n")
+        .label_style(("sans-serif", pt(7.0)))
+        .axis_desc_style(("sans-serif", pt(8.0)))
+        .axis_style(BLACK.stroke_width(2))
+        .draw()
+        .map_err(err)?;
+    for (i, s) in fig.series.iter().enumerate() {
+        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        let pts: Vec<(f64, f64, f64)> = s
+            .points
+            .iter()
+            .copied()
+            .filter(|p| p.0 > 0.0 && p.1 > 0.0)
+            .collect();
+        let label = match s.slope {
+            Some(k) => format!("{}  (slope {k:.2})", s.label),
+            None => s.label.clone(),
+        };
+        chart
+            .draw_series(LineSeries::new(
+                pts.iter().map(|p| (p.0, p.1)),
+                color.stroke_width(3),
+            ))
+            .map_err(err)?
+            .label(label)
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
+            });
+        for p in &pts {
+            chart
+                .draw_series(std::iter::once(ErrorBar::new_vertical(
+                    p.0,
+                    (p.1 - p.2).max(p.1 * 0.5),
+                    p.1,
+                    p.1 + p.2,
+                    color.stroke_width(2),
+                    pt(3.0) as u32,
+                )))
+                .map_err(err)?;
+            marker(chart.plotting_area(), i, (p.0, p.1), color)?;
+        }
+    }
+    chart
+        .configure_series_labels()
+        .position(SeriesLabelPosition::UpperRight)
+        .label_font(("sans-serif", pt(6.5)))
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(err)?;
+    root.present().map_err(err)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn slopes() {
+        let pts: Vec<(f64, f64, f64)> = [0.01, 0.1, 1.0]
+            .iter()
+            .map(|&e: &f64| (e, 2.0 * e.powf(0.5), 0.0))
+            .collect();
+        assert!((loglog_slope(&pts).unwrap() - 0.5).abs() < 1e-12);
+        assert_eq!(loglog_slope(&pts[..1]), None);
+    }
+
+    #[test]
+    fn wrapping() {
+        assert_eq!(wrap("a bb ccc dddd", 6), vec!["a bb", "ccc", "dddd"]);
+    }
+}
