@@ -22,18 +22,20 @@ pub struct FitArgs {
     /// Results folder (where results/<experiment>/cells.parquet is).
     #[arg(long, value_name = "DIR", default_value = "results")]
     pub results: PathBuf,
-    /// Correction exponent: a number, or `fit` to fit it. Default: 2/3 (SK, Boettcher 2005).
+    /// Correction exponent: a number, or `fit` to fit it. Default: the spec's `[fit] omega`,
+    /// else 2/3 (SK, Boettcher 2005).
     #[arg(long, value_name = "X|fit")]
     pub omega: Option<String>,
-    /// Correction terms: 1 (a n^-ω) or 2 (adds b n^-2ω).
-    #[arg(long, default_value_t = 1)]
-    pub terms: usize,
-    /// Drop sizes below N.
-    #[arg(long, value_name = "N", default_value_t = 0)]
-    pub min_n: u64,
-    /// Bootstrap replicates over instance seeds (0 to skip).
-    #[arg(long, value_name = "B", default_value_t = 1000)]
-    pub bootstrap: usize,
+    /// Correction terms: 1 (a n^-ω) or 2 (adds b n^-2ω). Default: `[fit] terms`, else 1.
+    #[arg(long)]
+    pub terms: Option<usize>,
+    /// Drop sizes below N. Default: `[fit] min_n`, else none.
+    #[arg(long, value_name = "N")]
+    pub min_n: Option<u64>,
+    /// Bootstrap replicates over instance seeds (0 to skip). Default: `[fit] bootstrap`,
+    /// else 1000.
+    #[arg(long, value_name = "B")]
+    pub bootstrap: Option<usize>,
     /// Print a JSON summary instead of the table.
     #[arg(long)]
     pub json: bool,
@@ -64,23 +66,27 @@ fn points_of(by_n: &BTreeMap<u64, BTreeMap<u64, f64>>) -> Vec<Point> {
 }
 
 pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
-    let (name, dir) = match &a.spec {
+    let (name, dir, settings) = match &a.spec {
         Some(p) if p.is_dir() => (
             p.file_name()
                 .and_then(|s| s.to_str())
                 .unwrap_or("results")
                 .to_string(),
             p.clone(),
+            crate::spec::FitSettings::default(),
         ),
         Some(p) => {
             let s = crate::spec::load(p)?;
-            (s.name.clone(), a.results.join(&s.name))
+            (s.name.clone(), a.results.join(&s.name), s.fit)
         }
         None => {
             let s = crate::spec::default_spec();
-            (s.name.clone(), a.results.join(&s.name))
+            (s.name.clone(), a.results.join(&s.name), s.fit)
         }
     };
+    let terms = a.terms.or(settings.terms).unwrap_or(1);
+    let min_n = a.min_n.or(settings.min_n).unwrap_or(0);
+    let bootstrap = a.bootstrap.or(settings.bootstrap).unwrap_or(1000);
     let table_path = dir.join("cells.parquet");
     if !table_path.is_file() {
         return Err(InputError(format!(
@@ -90,7 +96,11 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         .into());
     }
     let omega = match a.omega.as_deref() {
-        None => Omega::Fixed(2.0 / 3.0),
+        None => match settings.omega {
+            Some(None) => Omega::Fitted,
+            Some(Some(x)) => Omega::Fixed(x),
+            None => Omega::Fixed(2.0 / 3.0),
+        },
         Some("fit") => Omega::Fitted,
         Some(x) => match x.parse::<f64>() {
             Ok(v) if v > 0.0 && v.is_finite() => Omega::Fixed(v),
@@ -101,12 +111,12 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
             }
         },
     };
-    if !(1..=2).contains(&a.terms) {
-        return Err(InputError(format!("--terms {}: give 1 or 2", a.terms)).into());
+    if !(1..=2).contains(&terms) {
+        return Err(InputError(format!("--terms {terms}: give 1 or 2")).into());
     }
     let params = Params {
         omega,
-        terms: a.terms,
+        terms,
         ..Params::default()
     };
 
@@ -150,7 +160,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         .collect();
     let mut groups: Groups = BTreeMap::new();
     for i in 0..df.height() {
-        if ns[i] < a.min_n {
+        if ns[i] < min_n || (settings.reference_only && eps[i] != 0.0) {
             continue;
         }
         groups
@@ -193,7 +203,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
                 Err(e) => problems.push(format!("{family}/{label}/ε={epsilon}: {e}")),
             }
         }
-        if a.bootstrap == 0 || fits.is_empty() {
+        if bootstrap == 0 || fits.is_empty() {
             continue;
         }
         // Paired bootstrap: one draw of seeds per size, shared by all algorithms of the group.
@@ -204,7 +214,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
             .hash("bootstrap");
         let labels: Vec<&String> = fits.keys().copied().collect();
         let mut reps: BTreeMap<&String, Vec<f64>> = BTreeMap::new();
-        for b in 0..a.bootstrap {
+        for b in 0..bootstrap {
             let mut rng = stream(&id, Purpose::Bootstrap, b as u64);
             // Per size: the seeds common to the group, resampled with replacement.
             let all_ns: std::collections::BTreeSet<u64> = labels

@@ -39,6 +39,24 @@ struct RawSpec {
     sweep: RawSweep,
     #[serde(default)]
     algorithm: Vec<Spanned<RawAlgorithm>>,
+    #[serde(default)]
+    fit: Option<RawFit>,
+}
+
+/// `[fit]`: defaults for `kiln fit` and `kiln plot` (command-line flags override them).
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFit {
+    #[serde(default)]
+    omega: Option<Spanned<toml::Value>>,
+    #[serde(default)]
+    terms: Option<Spanned<i64>>,
+    #[serde(default)]
+    min_n: Option<Spanned<i64>>,
+    #[serde(default)]
+    bootstrap: Option<Spanned<i64>>,
+    #[serde(default)]
+    epsilon: Option<Spanned<String>>,
 }
 
 #[derive(Deserialize)]
@@ -94,6 +112,18 @@ const ANNEAL_KEYS: &[&str] = &["sweeps", "beta", "quench"];
 
 // ---------------------------------------------------------------- resolved spec
 
+/// Fit settings of a spec (`[fit]`); `None` means the command's default.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct FitSettings {
+    /// `Some(None)` = fit ω; `Some(Some(x))` = fixed at x.
+    pub omega: Option<Option<f64>>,
+    pub terms: Option<usize>,
+    pub min_n: Option<u64>,
+    pub bootstrap: Option<usize>,
+    /// Fit only the reference runs (ε = 0) instead of every ε level.
+    pub reference_only: bool,
+}
+
 /// One algorithm of a spec: its label (not part of any key) and its resolved settings.
 #[derive(Clone, Debug, PartialEq)]
 pub struct AlgoEntry {
@@ -117,6 +147,7 @@ pub struct Spec {
     /// Stability levels; always starts with 0 (the reference run).
     pub epsilons: Vec<f64>,
     pub algorithms: Vec<AlgoEntry>,
+    pub fit: FitSettings,
 }
 
 impl Spec {
@@ -468,7 +499,13 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         ));
     }
 
+    let fit = match &raw.fit {
+        None => FitSettings::default(),
+        Some(f) => fit_settings(f, loc)?,
+    };
+
     Ok(Spec {
+        fit,
         origin: loc.origin.to_string(),
         text: loc.text.to_string(),
         name,
@@ -479,6 +516,59 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         epsilons,
         algorithms,
     })
+}
+
+fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
+    let mut out = FitSettings::default();
+    if let Some(o) = &f.omega {
+        out.omega = Some(match o.get_ref() {
+            toml::Value::String(s) if s == "fit" => None,
+            toml::Value::Float(x) if *x > 0.0 && x.is_finite() => Some(*x),
+            toml::Value::Integer(x) if *x > 0 => Some(*x as f64),
+            other => {
+                return Err(loc.at(
+                    Some(o.span()),
+                    "fit.omega",
+                    format!("`{other}` is not a correction exponent"),
+                    Some("give a positive number (e.g. 0.6667) or \"fit\"".into()),
+                ));
+            }
+        });
+    }
+    if let Some(t) = &f.terms {
+        let v = positive(t, loc, "fit.terms", 2)?;
+        out.terms = Some(v as usize);
+    }
+    if let Some(m) = &f.min_n {
+        out.min_n = Some(positive(m, loc, "fit.min_n", MAX_N)?);
+    }
+    if let Some(b) = &f.bootstrap {
+        let x = *b.get_ref();
+        if !(0..=1_000_000).contains(&x) {
+            return Err(loc.at(
+                Some(b.span()),
+                "fit.bootstrap",
+                format!("{x} bootstrap replicates"),
+                Some("give 0 (no bootstrap) to 1000000".into()),
+            ));
+        }
+        out.bootstrap = Some(x as usize);
+    }
+    if let Some(e) = &f.epsilon {
+        out.reference_only = match e.get_ref().as_str() {
+            "each" => false,
+            "reference" => true,
+            other => {
+                return Err(loc.at(
+                    Some(e.span()),
+                    "fit.epsilon",
+                    format!("unknown choice `{other}`"),
+                    Some(choice_hint(other, &["each", "reference"])),
+                ));
+            }
+        };
+    }
+    Ok(out)
 }
 
 fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64, SpecError> {

@@ -106,3 +106,49 @@ fn fit_refuses_without_a_table_or_with_bad_options() {
     let o = w.kiln(&["fit", s.to_str().unwrap(), "--omega", "-1"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
 }
+
+/// The spec's `[fit]` section sets the defaults: fitted ω, reference runs only, a size cut.
+#[test]
+fn spec_fit_section_chooses() {
+    let w = Work::new();
+    let text = GROUND
+        .replace("seeds = 24", "seeds = 6\nepsilons = [0.0, 0.2]")
+        .replace("sweeps = 3000", "sweeps = 200")
+        + "\n[fit]\nomega = \"fit\"\nepsilon = \"reference\"\nmin_n = 64\nbootstrap = 50\n";
+    let s = w.spec("g.toml", &text);
+    w.run_json(&s, &[]);
+    let o = w.kiln(&["fit", s.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let fits = v["fits"].as_array().unwrap();
+    assert_eq!(fits.len(), 2, "one group per algorithm at ε = 0 only");
+    for f in fits {
+        assert_eq!(f["epsilon"], 0.0);
+        assert_eq!(f["sizes"], 4);
+        assert!(
+            f["omega_se"].as_f64().unwrap() > 0.0,
+            "ω was not fitted: {f}"
+        );
+    }
+    // A flag overrides the spec.
+    let o = w.kiln(&[
+        "fit",
+        s.to_str().unwrap(),
+        "--json",
+        "--omega",
+        "0.5",
+        "--min-n",
+        "32",
+    ]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["fits"][0]["omega"], 0.5);
+    assert_eq!(v["fits"][0]["sizes"], 5);
+    // A bad value is located.
+    let bad = w.spec(
+        "b.toml",
+        &text.replace("omega = \"fit\"", "omega = \"fast\""),
+    );
+    let o = w.kiln(&["check", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("key `fit.omega`"), "{}", stderr(&o));
+}
