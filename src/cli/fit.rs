@@ -6,7 +6,7 @@ use super::{InputError, out};
 use crate::cell::Canon;
 use crate::fit::{self, Fit, Omega, Params, Point, format::with_error};
 use crate::rng::{Purpose, stream};
-use crate::store::{table, write_atomic};
+use crate::store::write_atomic;
 use anyhow::Context;
 use clap::Args;
 use polars::prelude::*;
@@ -66,35 +66,12 @@ fn points_of(by_n: &BTreeMap<u64, BTreeMap<u64, f64>>) -> Vec<Point> {
 }
 
 pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
-    let (name, dir, settings) = match &a.spec {
-        Some(p) if p.is_dir() => (
-            p.file_name()
-                .and_then(|s| s.to_str())
-                .unwrap_or("results")
-                .to_string(),
-            p.clone(),
-            crate::spec::FitSettings::default(),
-        ),
-        Some(p) => {
-            let s = crate::spec::load(p)?;
-            (s.name.clone(), a.results.join(&s.name), s.fit)
-        }
-        None => {
-            let s = crate::spec::default_spec();
-            (s.name.clone(), a.results.join(&s.name), s.fit)
-        }
-    };
+    let exp = super::cells::Experiment::resolve(a.spec.as_ref(), &a.results)?;
+    let (name, dir, settings) = (exp.name.clone(), exp.dir.clone(), exp.fit.clone());
     let terms = a.terms.or(settings.terms).unwrap_or(1);
     let min_n = a.min_n.or(settings.min_n).unwrap_or(0);
     let bootstrap = a.bootstrap.or(settings.bootstrap).unwrap_or(1000);
-    let table_path = dir.join("cells.parquet");
-    if !table_path.is_file() {
-        return Err(InputError(format!(
-            "no table at {}: run the experiment first (kiln run)",
-            table_path.display()
-        ))
-        .into());
-    }
+    let table_path = exp.table()?;
     let omega = match a.omega.as_deref() {
         None => match settings.omega {
             Some(None) => Omega::Fitted,
@@ -120,46 +97,12 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         ..Params::default()
     };
 
-    let df = table::read(&table_path)?;
-    let col_str = |c: &str| -> anyhow::Result<Vec<String>> {
-        Ok(df
-            .column(c)?
-            .str()?
-            .iter()
-            .map(|s| s.unwrap_or("").to_string())
-            .collect())
-    };
-    let (fam, coup, alg) = (
-        col_str("family")?,
-        col_str("couplings")?,
-        col_str("algorithm")?,
-    );
-    let ns: Vec<u64> = df
-        .column("n")?
-        .u64()?
-        .iter()
-        .map(|x| x.unwrap_or(0))
-        .collect();
-    let seeds: Vec<u64> = df
-        .column("seed")?
-        .u64()?
-        .iter()
-        .map(|x| x.unwrap_or(0))
-        .collect();
-    let eps: Vec<f64> = df
-        .column("epsilon")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(0.0))
-        .collect();
-    let energy: Vec<f64> = df
-        .column("energy_perturbed")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
+    let cells = super::cells::Cells::read(&table_path)?;
+    let (fam, coup, alg) = (&cells.family, &cells.couplings, &cells.algorithm);
+    let (ns, seeds, eps) = (&cells.n, &cells.seed, &cells.epsilon);
+    let energy = &cells.energy_perturbed;
     let mut groups: Groups = BTreeMap::new();
-    for i in 0..df.height() {
+    for i in 0..cells.len() {
         if ns[i] < min_n || (settings.reference_only && eps[i] != 0.0) {
             continue;
         }

@@ -3,6 +3,7 @@
 //! Exit status: 0 success, 1 failure (a cell failed, the disk refused a write), 2 bad input
 //! (spec or arguments), 130 interrupted.
 
+mod cells;
 mod check;
 mod compare;
 mod fit;

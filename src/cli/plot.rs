@@ -10,7 +10,7 @@ use super::{InputError, out};
 use crate::fit::{self, Omega, Params};
 use crate::plot::figures::{self, EnergyFigure, EnergySeries, StabilityFigure, StabilitySeries};
 use crate::plot::{self as kplot, Size};
-use crate::store::{table, write_atomic};
+use crate::store::write_atomic;
 use clap::Args;
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -56,23 +56,8 @@ fn csv_line(fields: &[String]) -> String {
 }
 
 pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
-    let (name, dir) = match &a.spec {
-        Some(p) if p.is_dir() => (
-            p.file_name()
-                .and_then(|s| s.to_str())
-                .unwrap_or("results")
-                .to_string(),
-            p.clone(),
-        ),
-        Some(p) => {
-            let s = crate::spec::load(p)?;
-            (s.name.clone(), a.results.join(&s.name))
-        }
-        None => {
-            let s = crate::spec::default_spec();
-            (s.name.clone(), a.results.join(&s.name))
-        }
-    };
+    let exp = super::cells::Experiment::resolve(a.spec.as_ref(), &a.results)?;
+    let (name, dir) = (exp.name.clone(), exp.dir.clone());
     let size = match a.width.as_str() {
         "one" => Size::OneColumn,
         "two" => Size::TwoColumn,
@@ -81,64 +66,19 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     if !(a.omega > 0.0 && a.omega.is_finite()) {
         return Err(InputError(format!("--omega {}: give a positive number", a.omega)).into());
     }
-    let table_path = dir.join("cells.parquet");
-    if !table_path.is_file() {
-        return Err(InputError(format!(
-            "no table at {}: run the experiment first (kiln run)",
-            table_path.display()
-        ))
-        .into());
-    }
-    let spec_hash = std::fs::read_to_string(dir.join("manifest.toml"))
-        .ok()
-        .and_then(|t| t.parse::<toml::Table>().ok())
-        .and_then(|t| {
-            t.get("spec_hash")
-                .and_then(|v| v.as_str().map(String::from))
-        })
-        .unwrap_or_else(|| "unknown".into());
-
-    let df = table::read(&table_path)?;
-    let strs = |c: &str| -> anyhow::Result<Vec<String>> {
-        Ok(df
-            .column(c)?
-            .str()?
-            .iter()
-            .map(|s| s.unwrap_or("").to_string())
-            .collect())
-    };
-    let (fam, coup, alg) = (strs("family")?, strs("couplings")?, strs("algorithm")?);
-    let ns: Vec<u64> = df
-        .column("n")?
-        .u64()?
-        .iter()
-        .map(|x| x.unwrap_or(0))
-        .collect();
-    let eps: Vec<f64> = df
-        .column("epsilon")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(0.0))
-        .collect();
-    let energy: Vec<f64> = df
-        .column("energy")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
-    let dist: Vec<f64> = df
-        .column("distance")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
+    let table_path = exp.table()?;
+    let spec_hash = exp.spec_hash();
+    let cells = super::cells::Cells::read(&table_path)?;
+    let (fam, coup, alg) = (&cells.family, &cells.couplings, &cells.algorithm);
+    let (ns, eps) = (&cells.n, &cells.epsilon);
+    let (energy, dist) = (&cells.energy, &cells.distance);
 
     // (family, couplings) → algorithm → samples (n, energy) at ε = 0.
     let mut energies: EnergySamples = BTreeMap::new();
     // algorithm → n → ε bits → distances.
     let mut distances: BTreeMap<String, BTreeMap<u64, BTreeMap<u64, Vec<f64>>>> = BTreeMap::new();
     let mut order: Vec<String> = Vec::new();
-    for i in 0..df.height() {
+    for i in 0..cells.len() {
         if !order.contains(&alg[i]) {
             order.push(alg[i].clone());
         }

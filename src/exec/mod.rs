@@ -430,55 +430,23 @@ fn load_reference(
     cache: &Cache,
     damaged: &Mutex<Vec<String>>,
 ) -> Result<Option<Reference>, CellError> {
-    let note = |l: &Lookup<()>| {
-        if let Lookup::Damaged {
-            path,
-            reason,
-            moved_to,
-        } = l
-        {
-            damaged
-                .lock()
-                .expect("lock")
-                .push(describe_damage(path, reason, moved_to));
-        }
+    // The reference cell: same instance and algorithm at ε = 0. Its record and spins are
+    // verified (and damage reported) by the same lookup the run starts with.
+    let base = Cell {
+        key: cell.base,
+        epsilon: 0.0,
+        ..cell.clone()
     };
-    let record = match cache.read_record(&cell.base)? {
-        Lookup::Hit(r) => r,
-        Lookup::Missing => return Ok(None),
-        Lookup::Damaged {
-            path,
-            reason,
-            moved_to,
-        } => {
-            note(&Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            });
-            return Ok(None);
-        }
+    let Some(record) = cached_record(cache, &base, damaged)? else {
+        return Ok(None);
     };
-    let spins = match cache.read_spins(&cell.base)? {
-        Lookup::Hit(s) if s.len() == cell.n as usize => s,
-        Lookup::Hit(_) | Lookup::Missing => return Ok(None),
-        Lookup::Damaged {
-            path,
-            reason,
-            moved_to,
-        } => {
-            note(&Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            });
-            return Ok(None);
-        }
-    };
-    Ok(Some(Reference {
-        spins,
-        energy: record.energy,
-    }))
+    match cache.read_spins(&cell.base)? {
+        Lookup::Hit(spins) if spins.len() as u64 == cell.n => Ok(Some(Reference {
+            spins,
+            energy: record.energy,
+        })),
+        _ => Ok(None),
+    }
 }
 
 /// Host name, best effort.

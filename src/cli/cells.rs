@@ -1,0 +1,131 @@
+//! Shared by the commands that read an experiment's table (`fit`, `plot`): which experiment
+//! and folder a command argument names, and the table's columns as plain vectors.
+
+use super::InputError;
+use crate::spec::FitSettings;
+use crate::store::table;
+use std::path::{Path, PathBuf};
+
+/// An experiment's results folder, as named by a spec, a folder, or the built-in default.
+pub struct Experiment {
+    pub name: String,
+    pub dir: PathBuf,
+    pub fit: FitSettings,
+}
+
+impl Experiment {
+    /// `arg` is a spec file or a results folder holding `cells.parquet`; none means the
+    /// built-in default experiment.
+    pub fn resolve(arg: Option<&PathBuf>, results: &Path) -> anyhow::Result<Experiment> {
+        Ok(match arg {
+            Some(p) if p.is_dir() => Experiment {
+                name: p
+                    .file_name()
+                    .and_then(|s| s.to_str())
+                    .unwrap_or("results")
+                    .to_string(),
+                dir: p.clone(),
+                fit: FitSettings::default(),
+            },
+            Some(p) => {
+                let s = crate::spec::load(p)?;
+                Experiment {
+                    dir: results.join(&s.name),
+                    name: s.name,
+                    fit: s.fit,
+                }
+            }
+            None => {
+                let s = crate::spec::default_spec();
+                Experiment {
+                    dir: results.join(&s.name),
+                    name: s.name,
+                    fit: s.fit,
+                }
+            }
+        })
+    }
+
+    /// The table's path, or an input error saying to run the experiment first.
+    pub fn table(&self) -> anyhow::Result<PathBuf> {
+        let p = self.dir.join("cells.parquet");
+        if !p.is_file() {
+            return Err(InputError(format!(
+                "no table at {}: run the experiment first (kiln run)",
+                p.display()
+            ))
+            .into());
+        }
+        Ok(p)
+    }
+
+    /// The spec hash recorded in the manifest, or `unknown`.
+    pub fn spec_hash(&self) -> String {
+        std::fs::read_to_string(self.dir.join("manifest.toml"))
+            .ok()
+            .and_then(|t| t.parse::<toml::Table>().ok())
+            .and_then(|t| {
+                t.get("spec_hash")
+                    .and_then(|v| v.as_str().map(String::from))
+            })
+            .unwrap_or_else(|| "unknown".into())
+    }
+}
+
+/// The columns `fit` and `plot` use, one entry per row.
+pub struct Cells {
+    pub family: Vec<String>,
+    pub couplings: Vec<String>,
+    pub algorithm: Vec<String>,
+    pub n: Vec<u64>,
+    pub seed: Vec<u64>,
+    pub epsilon: Vec<f64>,
+    pub energy: Vec<f64>,
+    pub energy_perturbed: Vec<f64>,
+    pub distance: Vec<f64>,
+}
+
+impl Cells {
+    pub fn read(path: &Path) -> anyhow::Result<Cells> {
+        let df = table::read(path)?;
+        let strs = |c: &str| -> anyhow::Result<Vec<String>> {
+            Ok(df
+                .column(c)?
+                .str()?
+                .iter()
+                .map(|s| s.unwrap_or("").to_string())
+                .collect())
+        };
+        let u64s = |c: &str| -> anyhow::Result<Vec<u64>> {
+            Ok(df
+                .column(c)?
+                .u64()?
+                .iter()
+                .map(|x| x.unwrap_or(0))
+                .collect())
+        };
+        let f64s = |c: &str| -> anyhow::Result<Vec<f64>> {
+            Ok(df
+                .column(c)?
+                .f64()?
+                .iter()
+                .map(|x| x.unwrap_or(f64::NAN))
+                .collect())
+        };
+        Ok(Cells {
+            family: strs("family")?,
+            couplings: strs("couplings")?,
+            algorithm: strs("algorithm")?,
+            n: u64s("n")?,
+            seed: u64s("seed")?,
+            epsilon: f64s("epsilon")?,
+            energy: f64s("energy")?,
+            energy_perturbed: f64s("energy_perturbed")?,
+            distance: f64s("distance")?,
+        })
+    }
+
+    pub fn len(&self) -> usize {
+        self.n.len()
+    }
+}
