@@ -15,6 +15,7 @@ pub mod plot;
 pub mod rng;
 pub mod spec;
 pub mod store;
+pub mod theory;
 
 /// kiln's version, recorded (not hashed) in every record and manifest.
 pub const VERSION: &str = env!("CARGO_PKG_VERSION");

@@ -12,6 +12,7 @@ mod run;
 mod slurm;
 mod status;
 mod summary;
+mod theory;
 mod verify;
 
 use crate::spec::{self, Spec, SpecError};
@@ -46,6 +47,8 @@ enum Command {
     Fit(fit::FitArgs),
     /// Draw publication figures (SVG, PNG, PDF) with their data.
     Plot(plot::PlotArgs),
+    /// Theory values for the model: Parisi functional (RS, k-step RSB), sphere, algorithmic.
+    Theory(theory::TheoryArgs),
 }
 
 /// Arguments shared by commands that read a spec.
@@ -144,6 +147,7 @@ pub fn main() -> ExitCode {
         Command::Compare(a) => compare::run(&a),
         Command::Fit(a) => fit::run(&a),
         Command::Plot(a) => plot::run(&a),
+        Command::Theory(a) => theory::run(&a),
     };
     match result {
         Ok(code) => code,

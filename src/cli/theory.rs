@@ -1,0 +1,157 @@
+//! `kiln theory`: theory values for a mixture ξ — on the cube the replica-symmetric,
+//! constant-γ and k-step RSB values of the zero-temperature Parisi functional; on the sphere
+//! the one-step Crisanti–Sommers ground state and the algorithmic value ∫₀¹ √ξ''.
+
+use super::{InputError, out};
+use crate::theory::{Mixture, cube, sphere};
+use clap::Args;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Args, Debug)]
+pub struct TheoryArgs {
+    /// Experiment spec whose model to use (SK: ξ = q²/2). Default: the built-in default.
+    pub spec: Option<PathBuf>,
+    /// A mixture instead of a spec: `p:c2,…` with ξ(q) = Σ c2·q^p, e.g. `2:0.5,4:0.25`.
+    #[arg(long, value_name = "p:c2,…")]
+    pub mixture: Option<String>,
+    /// Largest number of RSB steps on the cube.
+    #[arg(long, value_name = "K", default_value_t = 3)]
+    pub k: usize,
+    /// Print JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
+    let mut terms = Vec::new();
+    for part in s.split(',') {
+        let (p, c) = part
+            .split_once(':')
+            .ok_or_else(|| InputError(format!("--mixture: `{part}` is not p:c2")))?;
+        let p: u32 = p
+            .trim()
+            .parse()
+            .map_err(|_| InputError(format!("--mixture: `{p}` is not a degree p")))?;
+        let c: f64 = c
+            .trim()
+            .parse()
+            .map_err(|_| InputError(format!("--mixture: `{c}` is not a weight c2")))?;
+        if !((2..=30).contains(&p) && c >= 0.0 && c.is_finite()) {
+            return Err(InputError(format!(
+                "--mixture: term {p}:{c} needs 2 ≤ p ≤ 30 and c2 ≥ 0"
+            )));
+        }
+        terms.push((p, c));
+    }
+    if terms.iter().all(|t| t.1 == 0.0) {
+        return Err(InputError("--mixture: all weights are zero".into()));
+    }
+    Ok(Mixture { terms })
+}
+
+pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
+    let xi = match &a.mixture {
+        Some(m) => parse_mixture(m)?,
+        None => {
+            let spec = match &a.spec {
+                Some(p) => crate::spec::load(p)?,
+                None => crate::spec::default_spec(),
+            };
+            match spec.model.family {
+                crate::model::Family::Sk => Mixture::sk(),
+            }
+        }
+    };
+    if !(1..=6).contains(&a.k) {
+        return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
+    }
+    let s = cube::Settings::default();
+    let rs = cube::replica_symmetric(&xi);
+    let cg = cube::constant_gamma(&xi);
+    let mut ks = Vec::new();
+    for k in 1..=a.k {
+        let t = std::time::Instant::now();
+        let sol = cube::k_rsb(&xi, k, &s);
+        ks.push((k, sol, t.elapsed().as_secs_f64()));
+    }
+    let (gs, l, m, q0) = sphere::ground_state(&xi);
+    let (alg, condition) = sphere::algorithmic(&xi);
+    let mixture = xi
+        .terms
+        .iter()
+        .map(|(p, c)| format!("{c}·q^{p}"))
+        .collect::<Vec<_>>()
+        .join(" + ");
+    if a.json {
+        let v = serde_json::json!({
+            "mixture": xi.terms,
+            "cube": {
+                "replica_symmetric": rs,
+                "constant_gamma": {"value": cg.value, "m": cg.steps.m[0]},
+                "rsb": ks.iter().map(|(k, sol, secs)| serde_json::json!({
+                    "k": k, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m, "seconds": secs,
+                })).collect::<Vec<_>>(),
+            },
+            "sphere": {
+                "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
+                "algorithmic": alg, "algorithmic_equals_ground_state": condition,
+            },
+        });
+        out(&format!("{v}\n"));
+    } else {
+        let mut o = format!(
+            "ξ(q) = {mixture}\n\ncube, zero temperature (lim max H/n; Auffinger–Chen functional)\n"
+        );
+        o += &format!("  replica symmetric        {rs:.7}\n");
+        o += &format!(
+            "  constant γ (q₀ = 0)      {:.7}   m = {:.4}\n",
+            cg.value, cg.steps.m[0]
+        );
+        for (k, sol, secs) in &ks {
+            let q: Vec<String> = sol.steps.q[1..].iter().map(|x| format!("{x:.4}")).collect();
+            let m: Vec<String> = sol.steps.m[1..].iter().map(|x| format!("{x:.4}")).collect();
+            o += &format!(
+                "  {k}-step RSB               {:.7}   q = [{}]  m = [{}]  ({secs:.1} s)\n",
+                sol.value,
+                q.join(", "),
+                m.join(", ")
+            );
+        }
+        if xi == Mixture::sk() {
+            o += "  (full RSB: not computed yet; the published value is 0.7631667, Crisanti & Rizzo 2002)\n";
+        } else {
+            o += "  (full RSB: not computed yet; the k-step values are upper bounds that decrease with k)\n";
+        }
+        o += &format!(
+            "\nsphere, zero temperature\n  ground state (one-step Crisanti–Sommers)   {gs:.7}   L = {l:.4}, m = {m:.4}, q₀ = {q0:.4}\n"
+        );
+        o += &format!(
+            "  algorithmic value ∫₀¹ √ξ''                {alg:.7}   {}\n",
+            if condition {
+                "= ground state (ξ''^-1/2 is concave: Subag 2018)"
+            } else {
+                "below the ground state (ξ''^-1/2 is not concave on (0, 1])"
+            }
+        );
+        out(&o);
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mixtures_parse() {
+        assert_eq!(
+            parse_mixture("2:0.5,4:0.25").unwrap().terms,
+            vec![(2, 0.5), (4, 0.25)]
+        );
+        assert!(parse_mixture("1:1").is_err());
+        assert!(parse_mixture("2:-1").is_err());
+        assert!(parse_mixture("x").is_err());
+        assert!(parse_mixture("3:0").is_err());
+    }
+}

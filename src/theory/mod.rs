@@ -1,0 +1,152 @@
+//! Theory values computed in-tool: the zero-temperature Parisi functional on the cube
+//! (replica-symmetric and k-step replica-symmetry-breaking solutions) and the spherical
+//! ground state and algorithmic value.
+//!
+//! Normalisation (as everywhere in kiln): E[H(σ)H(τ)] = n·ξ(R(σ,τ)), ξ(q) = Σ_p c_p² q^p;
+//! SK is ξ(q) = q²/2. Values are lim max H/n (maximisation).
+
+pub mod cube;
+pub mod quad;
+pub mod sphere;
+
+/// A mixture ξ(q) = Σ_p c_p² q^p, given by its (p, c_p²) terms.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Mixture {
+    pub terms: Vec<(u32, f64)>,
+}
+
+impl Mixture {
+    /// SK in kiln's normalisation: ξ(q) = q²/2.
+    pub fn sk() -> Mixture {
+        Mixture {
+            terms: vec![(2, 0.5)],
+        }
+    }
+
+    /// Pure p-spin, ξ(q) = q^p.
+    pub fn pure(p: u32) -> Mixture {
+        Mixture {
+            terms: vec![(p, 1.0)],
+        }
+    }
+
+    pub fn xi(&self, q: f64) -> f64 {
+        self.terms.iter().map(|&(p, c)| c * q.powi(p as i32)).sum()
+    }
+
+    /// ξ'(q).
+    pub fn d1(&self, q: f64) -> f64 {
+        self.terms
+            .iter()
+            .map(|&(p, c)| c * p as f64 * q.powi(p as i32 - 1))
+            .sum()
+    }
+
+    /// ξ''(q).
+    pub fn d2(&self, q: f64) -> f64 {
+        self.terms
+            .iter()
+            .filter(|&&(p, _)| p >= 2)
+            .map(|&(p, c)| c * (p * (p - 1)) as f64 * q.powi(p as i32 - 2))
+            .sum()
+    }
+}
+
+/// Nelder–Mead minimisation (Nelder & Mead 1965) of `f` from `x0` with initial step `step`.
+/// Returns the best point and value after `iters` iterations or when the simplex's values
+/// agree to `tol`.
+pub fn nelder_mead<F: Fn(&[f64]) -> f64>(
+    f: F,
+    x0: &[f64],
+    step: f64,
+    iters: usize,
+    tol: f64,
+) -> (Vec<f64>, f64) {
+    let d = x0.len();
+    let mut simplex: Vec<(Vec<f64>, f64)> = (0..=d)
+        .map(|i| {
+            let mut x = x0.to_vec();
+            if i > 0 {
+                x[i - 1] += step;
+            }
+            let v = f(&x);
+            (x, v)
+        })
+        .collect();
+    for _ in 0..iters {
+        simplex.sort_by(|a, b| a.1.total_cmp(&b.1));
+        if (simplex[d].1 - simplex[0].1).abs() < tol {
+            break;
+        }
+        let centroid: Vec<f64> = (0..d)
+            .map(|j| simplex[..d].iter().map(|s| s.0[j]).sum::<f64>() / d as f64)
+            .collect();
+        let along = |t: f64| -> Vec<f64> {
+            (0..d)
+                .map(|j| centroid[j] + t * (simplex[d].0[j] - centroid[j]))
+                .collect()
+        };
+        let xr = along(-1.0);
+        let fr = f(&xr);
+        if fr < simplex[0].1 {
+            let xe = along(-2.0);
+            let fe = f(&xe);
+            simplex[d] = if fe < fr { (xe, fe) } else { (xr, fr) };
+        } else if fr < simplex[d - 1].1 {
+            simplex[d] = (xr, fr);
+        } else {
+            let xc = if fr < simplex[d].1 {
+                along(-0.5)
+            } else {
+                along(0.5)
+            };
+            let fc = f(&xc);
+            if fc < simplex[d].1.min(fr) {
+                simplex[d] = (xc, fc);
+            } else {
+                let best = simplex[0].0.clone();
+                for s in simplex.iter_mut().skip(1) {
+                    let x: Vec<f64> =
+                        s.0.iter()
+                            .zip(&best)
+                            .map(|(a, b)| b + 0.5 * (a - b))
+                            .collect();
+                    let v = f(&x);
+                    *s = (x, v);
+                }
+            }
+        }
+    }
+    simplex.sort_by(|a, b| a.1.total_cmp(&b.1));
+    let (x, v) = simplex.swap_remove(0);
+    (x, v)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mixture_derivatives() {
+        let m = Mixture {
+            terms: vec![(2, 0.5), (4, 0.25)],
+        };
+        let h = 1e-6;
+        for q in [0.1, 0.5, 0.9] {
+            assert!(((m.xi(q + h) - m.xi(q - h)) / (2.0 * h) - m.d1(q)).abs() < 1e-8);
+            assert!(((m.d1(q + h) - m.d1(q - h)) / (2.0 * h) - m.d2(q)).abs() < 1e-7);
+        }
+    }
+
+    #[test]
+    fn nelder_mead_finds_a_quadratic_minimum() {
+        let (x, v) = nelder_mead(
+            |x| (x[0] - 1.0).powi(2) + 3.0 * (x[1] + 2.0).powi(2),
+            &[0.0, 0.0],
+            0.5,
+            2000,
+            1e-16,
+        );
+        assert!((x[0] - 1.0).abs() < 1e-5 && (x[1] + 2.0).abs() < 1e-5 && v < 1e-10);
+    }
+}
