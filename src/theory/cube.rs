@@ -38,7 +38,7 @@ impl Default for Settings {
     }
 }
 
-/// A step order parameter: γ = m[j] on [q[j], q[j+1]), q[0] = 0, last interval ends at 1.
+/// A step order parameter: γ = `m[j]` on `[q[j], q[j+1])`, `q[0] = 0`, the last interval ends at 1.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Steps {
     pub q: Vec<f64>,
