@@ -18,6 +18,9 @@ pub struct TheoryArgs {
     /// Largest number of RSB steps on the cube.
     #[arg(long, value_name = "K", default_value_t = 3)]
     pub k: usize,
+    /// Also the replica-symmetric free energy at these inverse temperatures (comma-separated).
+    #[arg(long, value_name = "β,…", value_delimiter = ',')]
+    pub beta: Vec<f64>,
     /// Print JSON.
     #[arg(long)]
     pub json: bool,
@@ -77,6 +80,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     }
     let (gs, l, m, q0) = sphere::ground_state(&xi);
     let (alg, condition) = sphere::algorithmic(&xi);
+    if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
+        return Err(InputError("--beta: give positive inverse temperatures".into()).into());
+    }
+    let temps: Vec<(f64, f64, f64)> = a
+        .beta
+        .iter()
+        .map(|&b| {
+            let (p, q) = crate::theory::temperature::rs_free_energy(&xi, b);
+            (b, p, q)
+        })
+        .collect();
     let mixture = xi
         .terms
         .iter()
@@ -93,6 +107,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                     "k": k, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m, "seconds": secs,
                 })).collect::<Vec<_>>(),
             },
+            "temperature_rs": temps.iter().map(|(b, p, q)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
             "sphere": {
                 "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
                 "algorithmic": alg, "algorithmic_equals_ground_state": condition,
@@ -122,6 +137,12 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             o += "  (full RSB: not computed yet; the published value is 0.7631667, Crisanti & Rizzo 2002)\n";
         } else {
             o += "  (full RSB: not computed yet; the k-step values are upper bounds that decrease with k)\n";
+        }
+        if !temps.is_empty() {
+            o += "\ncube, positive temperature, replica symmetric (lim (1/n) E log Z ≤ P_RS)\n";
+            for (b, p, q) in &temps {
+                o += &format!("  β = {b:<8} P_RS = {p:.10}   q = {q:.6}\n");
+            }
         }
         o += &format!(
             "\nsphere, zero temperature\n  ground state (one-step Crisanti–Sommers)   {gs:.7}   L = {l:.4}, m = {m:.4}, q₀ = {q0:.4}\n"

@@ -8,6 +8,7 @@
 pub mod cube;
 pub mod quad;
 pub mod sphere;
+pub mod temperature;
 
 /// A mixture ξ(q) = Σ_p c_p² q^p, given by its (p, c_p²) terms.
 #[derive(Clone, Debug, PartialEq)]

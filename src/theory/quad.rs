@@ -1,10 +1,15 @@
 //! Gaussian expectations: Gauss–Hermite quadrature for E f(Z), Z ~ N(0, 1), and the normal
 //! distribution function.
 
-/// Nodes and weights of the n-point rule for E f(Z) (probabilists' form, weights sum to 1).
+/// Nodes and weights of the n-point rule for E f(Z) (probabilists' form, weights sum to 1),
+/// for 2 ≤ n ≤ 100 (the root guesses lose the larger roots beyond that).
 /// Computed by Newton's method on the orthonormal Hermite recurrence (Golub & Welsch 1969
 /// give the same rule; this is the classic root-polishing form).
 pub fn gauss_hermite(n: usize) -> Vec<(f64, f64)> {
+    assert!(
+        (2..=100).contains(&n),
+        "Gauss–Hermite rules are provided for 2 to 100 nodes"
+    );
     // Physicists' rule for ∫ e^{-x²} f(x) dx, then x → √2 x, w → w/√π.
     let mut out = vec![(0.0, 0.0); n];
     let m = n.div_ceil(2);
@@ -74,6 +79,13 @@ mod tests {
         assert!((m(4) - 3.0).abs() < 1e-11);
         assert!((m(6) - 15.0).abs() < 1e-10);
         assert!(m(3).abs() < 1e-12);
+    }
+
+    #[test]
+    fn largest_supported_rule() {
+        let r = gauss_hermite(100);
+        assert!((r.iter().map(|p| p.1).sum::<f64>() - 1.0).abs() < 1e-12);
+        assert!((r.iter().map(|&(x, w)| w * x.powi(4)).sum::<f64>() - 3.0).abs() < 1e-10);
     }
 
     #[test]
