@@ -64,6 +64,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         &Options {
             jobs,
             progress: talk,
+            note: (jobs < jobs_wanted).then(|| format!("{jobs} at a time (memory)")),
         },
         &prov,
     )

@@ -39,6 +39,8 @@ pub struct Provenance {
 pub struct Options {
     pub jobs: usize,
     pub progress: bool,
+    /// Shown on the progress line (e.g. why fewer cells run at once than asked).
+    pub note: Option<String>,
 }
 
 /// What happened.
@@ -178,9 +180,12 @@ pub fn execute(
     let skipped = AtomicU64::new(0);
     let set_msg = || {
         bar.set_message(format!(
-            "computed {} · cached {cached} · failed {}",
+            "computed {} · cached {cached} · failed {}{}",
             computed.load(Ordering::Relaxed),
-            failed.load(Ordering::Relaxed)
+            failed.load(Ordering::Relaxed),
+            opts.note
+                .as_ref()
+                .map_or(String::new(), |n| format!(" · {n}"))
         ))
     };
     set_msg();
