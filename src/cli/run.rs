@@ -124,10 +124,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         let v = serde_json::json!({
             "experiment": spec.name,
             "spec_hash": plan.spec_hash.hex(),
-            "cells": {
-                "total": k.total, "cached": k.cached, "computed": k.computed,
-                "failed": k.failed, "skipped": k.skipped,
-            },
+            "cells": counts_json(k),
             "rows": rows.len(),
             "table": table_path.display().to_string(),
             "manifest": manifest_path.display().to_string(),
@@ -135,7 +132,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             "jobs": jobs,
             "wall_seconds": wall,
             "interrupted": report.interrupted,
-            "failures": report.failures.iter().map(|(key, m)| serde_json::json!({"cell_key": key, "error": m})).collect::<Vec<_>>(),
+            "failures": failures_json(&report),
             "damaged": report.damaged,
         });
         out(&format!("{v}\n"));
@@ -153,22 +150,10 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             manifest_path.display()
         ));
     }
-    for (key, m) in &report.failures {
-        eprintln!("failed: cell {}: {m}", &key[..12]);
-    }
-    if report.interrupted {
-        eprintln!(
-            "interrupted: {} cells not run; the table holds the {} rows done so far. Run the same command again to resume.",
-            k.skipped,
-            rows.len()
-        );
-        return Ok(ExitCode::from(130));
-    }
-    Ok(if k.failed > 0 {
-        ExitCode::from(1)
-    } else {
-        ExitCode::SUCCESS
-    })
+    Ok(finish(
+        &report,
+        &format!("the table holds the {} rows done so far", rows.len()),
+    ))
 }
 
 /// A shard writes only to the cache; it reports its counts.
@@ -178,13 +163,10 @@ fn shard_summary(a: &RunArgs, name: &str, sh: Shard, report: &exec::Report, wall
         let v = serde_json::json!({
             "experiment": name,
             "shard": format!("{}/{}", sh.index, sh.count),
-            "cells": {
-                "total": k.total, "cached": k.cached, "computed": k.computed,
-                "failed": k.failed, "skipped": k.skipped,
-            },
+            "cells": counts_json(k),
             "wall_seconds": wall,
             "interrupted": report.interrupted,
-            "failures": report.failures.iter().map(|(key, m)| serde_json::json!({"cell_key": key, "error": m})).collect::<Vec<_>>(),
+            "failures": failures_json(report),
             "damaged": report.damaged,
         });
         out(&format!("{v}\n"));
@@ -194,17 +176,37 @@ fn shard_summary(a: &RunArgs, name: &str, sh: Shard, report: &exec::Report, wall
             sh.index, sh.count, k.total, k.computed, k.cached, k.failed
         ));
     }
+    finish(report, "the cache holds what is done")
+}
+
+fn counts_json(k: &crate::store::manifest::CellCounts) -> serde_json::Value {
+    serde_json::json!({
+        "total": k.total, "cached": k.cached, "computed": k.computed,
+        "failed": k.failed, "skipped": k.skipped,
+    })
+}
+
+fn failures_json(report: &exec::Report) -> serde_json::Value {
+    report
+        .failures
+        .iter()
+        .map(|(key, m)| serde_json::json!({"cell_key": key, "error": m}))
+        .collect()
+}
+
+/// Prints failures and the resume hint; the exit status of a run.
+fn finish(report: &exec::Report, done: &str) -> ExitCode {
     for (key, m) in &report.failures {
         eprintln!("failed: cell {}: {m}", &key[..12]);
     }
     if report.interrupted {
         eprintln!(
-            "interrupted: {} cells not run. Run the same command again to resume.",
-            k.skipped
+            "interrupted: {} cells not run; {done}. Run the same command again to resume.",
+            report.counts.skipped
         );
         return ExitCode::from(130);
     }
-    if k.failed > 0 {
+    if report.counts.failed > 0 {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS

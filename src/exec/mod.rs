@@ -63,46 +63,32 @@ fn cached_record(
     cell: &Cell,
     damaged: &Mutex<Vec<String>>,
 ) -> Result<Option<Record>, StoreError> {
-    let note = |path: &std::path::Path, reason: &str, moved_to: &Option<std::path::PathBuf>| {
-        damaged
-            .lock()
-            .expect("lock")
-            .push(describe_damage(path, reason, moved_to));
-    };
     // A reference cell needs its spins too; check them even when the record is gone, so a
     // damaged artifact is reported and moved aside rather than silently overwritten.
-    let spins_ok = if cell.is_base() {
-        match cache.read_spins(&cell.key)? {
-            Lookup::Hit(s) => s.len() as u64 == cell.n,
-            Lookup::Missing => false,
-            Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            } => {
-                note(&path, &reason, &moved_to);
-                false
-            }
-        }
-    } else {
-        true
-    };
-    let record = match cache.read_record(&cell.key)? {
-        Lookup::Hit(r) => r,
-        Lookup::Missing => return Ok(None),
+    let spins_ok = !cell.is_base()
+        || verified(cache.read_spins(&cell.key)?, damaged)
+            .is_some_and(|s| s.len() as u64 == cell.n);
+    let record = verified(cache.read_record(&cell.key)?, damaged);
+    Ok(record.filter(|_| spins_ok))
+}
+
+/// A hit, or None after noting a damaged entry (the cache has already moved it aside).
+fn verified<T>(l: Lookup<T>, damaged: &Mutex<Vec<String>>) -> Option<T> {
+    match l {
+        Lookup::Hit(x) => Some(x),
+        Lookup::Missing => None,
         Lookup::Damaged {
             path,
             reason,
             moved_to,
         } => {
-            note(&path, &reason, &moved_to);
-            return Ok(None);
+            damaged
+                .lock()
+                .expect("lock")
+                .push(describe_damage(&path, &reason, &moved_to));
+            None
         }
-    };
-    if !spins_ok {
-        return Ok(None);
     }
-    Ok(Some(record))
 }
 
 /// Looks up every distinct cell of the plan. Returns records found and keys missing.

@@ -161,21 +161,11 @@ pub fn fit(points: &[Point], params: &Params) -> Result<Fit, FitError> {
             let best = (0..grid.len())
                 .min_by(|&i, &j| chi(grid[i]).total_cmp(&chi(grid[j])))
                 .expect("grid");
-            let (mut a, mut b) = (
+            let (a, b) = (
                 grid[best.saturating_sub(1)],
                 grid[(best + 1).min(grid.len() - 1)],
             );
-            let g = (5f64.sqrt() - 1.0) / 2.0;
-            for _ in 0..100 {
-                let c = b - g * (b - a);
-                let d = a + g * (b - a);
-                if chi(c) < chi(d) {
-                    b = d;
-                } else {
-                    a = c;
-                }
-            }
-            let om = 0.5 * (a + b);
+            let om = crate::theory::golden_section(chi, a, b, 100);
             if (om - lo).abs() < 1e-3 * lo || (hi - om).abs() < 1e-3 * hi {
                 warnings.push(format!(
                     "fitted ω = {om:.3} sits at the edge of its range [{lo}, {hi}]"

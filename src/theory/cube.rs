@@ -168,18 +168,7 @@ pub struct Solution {
 /// Constant γ ≡ m on [0, 1) (one step with q₀ = 0): min_m [m ξ(1)/2 + log(2Φ(m√ξ'(1)))/m].
 pub fn constant_gamma(xi: &Mixture) -> Solution {
     let f = |m: f64| 0.5 * m * xi.xi(1.0) + (2.0 * normal_cdf(m * xi.d1(1.0).sqrt())).ln() / m;
-    let (mut lo, mut hi) = (1e-6, 50.0);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    for _ in 0..200 {
-        let c = hi - g * (hi - lo);
-        let d = lo + g * (hi - lo);
-        if f(c) < f(d) {
-            hi = d;
-        } else {
-            lo = c;
-        }
-    }
-    let m = 0.5 * (lo + hi);
+    let m = super::golden_section(f, 1e-6, 50.0, 200);
     Solution {
         value: f(m),
         steps: Steps {

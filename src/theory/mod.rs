@@ -53,6 +53,22 @@ impl Mixture {
     }
 }
 
+/// Golden-section search for the minimum of a unimodal `f` on [lo, hi] (`iters` steps, each
+/// shrinking the bracket by 0.618).
+pub fn golden_section<F: Fn(f64) -> f64>(f: F, mut lo: f64, mut hi: f64, iters: usize) -> f64 {
+    let g = (5f64.sqrt() - 1.0) / 2.0;
+    for _ in 0..iters {
+        let c = hi - g * (hi - lo);
+        let d = lo + g * (hi - lo);
+        if f(c) < f(d) {
+            hi = d;
+        } else {
+            lo = c;
+        }
+    }
+    0.5 * (lo + hi)
+}
+
 /// Nelder–Mead minimisation (Nelder & Mead 1965) of `f` from `x0` with initial step `step`.
 /// Returns the best point and value after `iters` iterations or when the simplex's values
 /// agree to `tol`.
