@@ -21,6 +21,13 @@ pub struct TheoryArgs {
     /// Also the replica-symmetric free energy at these inverse temperatures (comma-separated).
     #[arg(long, value_name = "β,…", value_delimiter = ',')]
     pub beta: Vec<f64>,
+    /// Results folder: the order parameters go to `<results>/<experiment>/theory.csv` (or
+    /// `<results>/theory-<hash>.csv` for a --mixture).
+    #[arg(long, value_name = "DIR", default_value = "results")]
+    pub results: PathBuf,
+    /// Cache folder for solved order parameters. Default: `<results>/.cache`.
+    #[arg(long, value_name = "DIR")]
+    pub cache: Option<PathBuf>,
     /// Print JSON.
     #[arg(long)]
     pub json: bool,
@@ -54,18 +61,24 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
 }
 
 pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
-    let xi = match &a.mixture {
-        Some(m) => parse_mixture(m)?,
+    let (xi, experiment) = match &a.mixture {
+        Some(m) => (parse_mixture(m)?, None),
         None => {
             let spec = match &a.spec {
                 Some(p) => crate::spec::load(p)?,
                 None => crate::spec::default_spec(),
             };
-            match spec.model.family {
+            let xi = match spec.model.family {
                 crate::model::Family::Sk => Mixture::sk(),
-            }
+            };
+            (xi, Some(spec.name))
         }
     };
+    let cache_dir = a
+        .cache
+        .clone()
+        .unwrap_or_else(|| a.results.join(".cache"))
+        .join("theory");
     if !(1..=6).contains(&a.k) {
         return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
     }
@@ -75,9 +88,47 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let mut ks = Vec::new();
     for k in 1..=a.k {
         let t = std::time::Instant::now();
-        let sol = cube::k_rsb(&xi, k, &s);
+        let sol = cached_k_rsb(&cache_dir, &xi, k, &s)?;
         ks.push((k, sol, t.elapsed().as_secs_f64()));
     }
+    // The order parameters, for incremental AMP and for plots.
+    let mut csv = format!(
+        "# kiln theory: zero-temperature step order parameters gamma = m on [q_start, q_end); xi(q) = {}\nsolution,k,value,q_start,q_end,m\n",
+        xi.terms
+            .iter()
+            .map(|(p, c)| format!("{c}*q^{p}"))
+            .collect::<Vec<_>>()
+            .join(" + ")
+    );
+    for (k, sol, _) in &ks {
+        let qs = &sol.steps.q;
+        for j in 0..qs.len() {
+            let end = if j + 1 < qs.len() { qs[j + 1] } else { 1.0 };
+            csv += &format!(
+                "{k}rsb,{k},{:?},{:?},{end:?},{:?}\n",
+                sol.value, qs[j], sol.steps.m[j]
+            );
+        }
+    }
+    let tag = crate::cell::Canon::List(
+        xi.terms
+            .iter()
+            .map(|&(p, c)| {
+                crate::cell::Canon::List(vec![
+                    crate::cell::Canon::Int(p as i64),
+                    crate::cell::Canon::Real(c),
+                ])
+            })
+            .collect(),
+    )
+    .hash("mixture");
+    let csv_path = match &experiment {
+        Some(name) => a.results.join(name).join("theory.csv"),
+        None => a
+            .results
+            .join(format!("theory-{}.csv", &hex::encode(tag)[..12])),
+    };
+    crate::store::write_atomic(&csv_path, csv.as_bytes())?;
     let (gs, l, m, q0) = sphere::ground_state(&xi);
     let (alg, condition) = sphere::algorithmic(&xi);
     if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
@@ -107,6 +158,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                     "k": k, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m, "seconds": secs,
                 })).collect::<Vec<_>>(),
             },
+            "order_parameters": csv_path.display().to_string(),
             "temperature_rs": temps.iter().map(|(b, p, q)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
             "sphere": {
                 "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
@@ -155,9 +207,59 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 "below the ground state (ξ''^-1/2 is not concave on (0, 1])"
             }
         );
+        o += &format!("\norder parameters: {}\n", csv_path.display());
         out(&o);
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Revision of the zero-temperature solver; enters the cache key of solved order parameters.
+const SOLVER_REVISION: u32 = 1;
+
+/// k-step RSB from the cache, or solved and stored (seconds: the original solve time).
+fn cached_k_rsb(
+    dir: &std::path::Path,
+    xi: &Mixture,
+    k: usize,
+    s: &cube::Settings,
+) -> anyhow::Result<cube::Solution> {
+    use crate::cell::Canon;
+    let key = Canon::map()
+        .with(
+            "mixture",
+            Canon::List(
+                xi.terms
+                    .iter()
+                    .map(|&(p, c)| Canon::List(vec![Canon::Int(p as i64), Canon::Real(c)]))
+                    .collect(),
+            ),
+        )
+        .with("k", k)
+        .with("grid", s.grid)
+        .with("half_width", s.half_width)
+        .with("nodes", s.nodes)
+        .with("revision", SOLVER_REVISION)
+        .hash("theory-krsb");
+    let hex_key = hex::encode(key);
+    let path = dir.join(format!("{hex_key}.json"));
+    if let Ok(text) = std::fs::read_to_string(&path)
+        && let Ok(v) = serde_json::from_str::<serde_json::Value>(&text)
+        && v["key"] == hex_key.as_str()
+    {
+        let floats =
+            |f: &str| -> Option<Vec<f64>> { v[f].as_array()?.iter().map(|x| x.as_f64()).collect() };
+        if let (Some(value), Some(q), Some(m)) = (v["value"].as_f64(), floats("q"), floats("m")) {
+            return Ok(cube::Solution {
+                value,
+                steps: cube::Steps { q, m },
+            });
+        }
+    }
+    let sol = cube::k_rsb(xi, k, s);
+    let v =
+        serde_json::json!({"key": hex_key, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m});
+    crate::store::write_atomic(&path, v.to_string().as_bytes())?;
+    Ok(sol)
 }
 
 #[cfg(test)]

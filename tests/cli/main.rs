@@ -12,3 +12,4 @@ mod plotting;
 mod reliability;
 mod rerun;
 mod tables;
+mod theory;
