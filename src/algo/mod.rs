@@ -5,6 +5,7 @@
 
 pub mod anneal;
 pub mod descent;
+pub mod exhaustive;
 
 use crate::cell::Canon;
 use crate::model::Instance;
@@ -44,15 +45,17 @@ pub enum AlgoError {
 pub enum AlgoSpec {
     Descent(descent::Params),
     Anneal(anneal::Params),
+    Exhaustive(exhaustive::Params),
 }
 
 impl AlgoSpec {
-    pub const KINDS: [&'static str; 2] = ["descent", "anneal"];
+    pub const KINDS: [&'static str; 3] = ["descent", "anneal", "exhaustive"];
 
     pub fn kind(&self) -> &'static str {
         match self {
             AlgoSpec::Descent(_) => "descent",
             AlgoSpec::Anneal(_) => "anneal",
+            AlgoSpec::Exhaustive(_) => "exhaustive",
         }
     }
 
@@ -60,6 +63,7 @@ impl AlgoSpec {
         match self {
             AlgoSpec::Descent(_) => descent::REVISION,
             AlgoSpec::Anneal(_) => anneal::REVISION,
+            AlgoSpec::Exhaustive(_) => exhaustive::REVISION,
         }
     }
 
@@ -71,6 +75,7 @@ impl AlgoSpec {
         match self {
             AlgoSpec::Descent(p) => p.canon(c),
             AlgoSpec::Anneal(p) => p.canon(c),
+            AlgoSpec::Exhaustive(p) => p.canon(c),
         }
     }
 
@@ -91,6 +96,7 @@ impl AlgoSpec {
         match self {
             AlgoSpec::Descent(_) => n * n,
             AlgoSpec::Anneal(p) => n * n * (1.0 + 0.3 * p.sweeps as f64),
+            AlgoSpec::Exhaustive(_) => n * 2f64.powf(n - 1.0),
         }
     }
 
@@ -98,6 +104,7 @@ impl AlgoSpec {
         match (self, inst) {
             (AlgoSpec::Descent(p), Instance::Dense(d)) => Ok(descent::run(p, d, rng)),
             (AlgoSpec::Anneal(p), Instance::Dense(d)) => Ok(anneal::run(p, d, rng)),
+            (AlgoSpec::Exhaustive(p), Instance::Dense(d)) => Ok(exhaustive::run(p, d)),
         }
     }
 }

@@ -8,7 +8,7 @@ pub mod error;
 pub mod plan;
 pub mod shard;
 
-use crate::algo::{AlgoSpec, anneal, descent};
+use crate::algo::{AlgoSpec, anneal, descent, exhaustive};
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
@@ -373,6 +373,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         let allowed: &[&str] = match kind {
             "descent" => DESCENT_KEYS,
             "anneal" => ANNEAL_KEYS,
+            "exhaustive" => &[],
             _ => {
                 return Err(loc.at(
                     Some(a.kind.span()),
@@ -387,14 +388,18 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 Some(s.clone()),
                 format!("{at}.{k}"),
                 format!("`{k}` does not apply to kind `{kind}`"),
-                Some(format!(
-                    "settings of `{kind}`: {}",
-                    allowed
-                        .iter()
-                        .map(|c| format!("`{c}`"))
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )),
+                Some(if allowed.is_empty() {
+                    format!("`{kind}` takes no settings")
+                } else {
+                    format!(
+                        "settings of `{kind}`: {}",
+                        allowed
+                            .iter()
+                            .map(|c| format!("`{c}`"))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    )
+                }),
             ));
         }
         let algo = match kind {
@@ -414,6 +419,17 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                     p.max_sweeps = positive(m, loc, &format!("{at}.max_sweeps"), 1_000_000_000)?;
                 }
                 AlgoSpec::Descent(p)
+            }
+            "exhaustive" => {
+                if let Some((n, span)) = sizes.iter().find(|(n, _)| *n > exhaustive::MAX_N) {
+                    return Err(loc.at(
+                        Some(span.clone()),
+                        "sweep.sizes",
+                        format!("exhaustive search ({at}) cannot enumerate n = {n}: 2^{} states", n - 1),
+                        Some(format!("exhaustive search needs every size ≤ {}; run it in a spec of its own with small sizes", exhaustive::MAX_N)),
+                    ));
+                }
+                AlgoSpec::Exhaustive(exhaustive::Params {})
             }
             _ => {
                 let mut p = anneal::Params::default();

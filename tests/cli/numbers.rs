@@ -108,3 +108,49 @@ fn long_annealing_approaches_the_ground_state() {
         "annealing does not beat descent clearly"
     );
 }
+
+/// Exhaustive search through the CLI: exact per instance, so every other algorithm's energy on
+/// the same instance (same seed) is at most the exhaustive one.
+#[test]
+fn exhaustive_search_bounds_the_other_algorithms() {
+    let w = crate::util::Work::new();
+    let s = w.spec(
+        "x.toml",
+        "[experiment]\nname = \"exact\"\n[model]\nfamily = \"sk\"\n[sweep]\nsizes = [8, 14, 20]\nseeds = 4\n\
+         [[algorithm]]\nkind = \"exhaustive\"\n[[algorithm]]\nkind = \"descent\"\n[[algorithm]]\nkind = \"anneal\"\n",
+    );
+    w.run_json(&s, &[]);
+    let df = kiln::store::table::read(&w.path().join("results/exact/cells.parquet")).unwrap();
+    let alg = df.column("algorithm").unwrap().str().unwrap().clone();
+    let n = df.column("n").unwrap().u64().unwrap().clone();
+    let seed = df.column("seed").unwrap().u64().unwrap().clone();
+    let e = df.column("energy").unwrap().f64().unwrap().clone();
+    let mut exact = std::collections::HashMap::new();
+    for i in 0..df.height() {
+        if alg.get(i) == Some("exhaustive") {
+            exact.insert((n.get(i), seed.get(i)), e.get(i).unwrap());
+        }
+    }
+    assert_eq!(exact.len(), 12);
+    for i in 0..df.height() {
+        let best = exact[&(n.get(i), seed.get(i))];
+        assert!(
+            e.get(i).unwrap() <= best + 1e-12,
+            "{:?} beats exhaustive",
+            alg.get(i)
+        );
+    }
+    let bad = w.spec(
+        "y.toml",
+        &std::fs::read_to_string(&s)
+            .unwrap()
+            .replace("[8, 14, 20]", "[8, 31]"),
+    );
+    let o = w.kiln(&["check", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        crate::util::stderr(&o).contains("cannot enumerate n = 31"),
+        "{}",
+        crate::util::stderr(&o)
+    );
+}
