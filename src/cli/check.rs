@@ -4,7 +4,6 @@ use super::{CommonArgs, out};
 use crate::exec::memory;
 use crate::spec::plan::expand;
 use crate::store::cache::Cache;
-use std::collections::BTreeSet;
 use std::process::ExitCode;
 
 pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
@@ -15,9 +14,8 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let fit = memory::check(&spec, budget)?;
     let plan = expand(&spec);
     let cache = Cache::new(a.cache_dir());
-    let keys: BTreeSet<_> = plan.cells.iter().map(|c| c.key).collect();
-    let cached = keys.iter().filter(|k| cache.has_record(k)).count();
-    let total = keys.len();
+    let total = plan.distinct().count();
+    let cached = plan.distinct().filter(|c| cache.has_record(&c.key)).count();
     let (largest, largest_n) = memory::largest_cell(&spec);
     let parallel = jobs.min(fit).min(total.max(1));
     let sweep = format!(

@@ -18,7 +18,7 @@ mod verify;
 use crate::spec::{self, Spec, SpecError};
 use clap::{Args, Parser, Subcommand};
 use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Reproducible threshold studies of optimisation algorithms on random landscapes.
@@ -165,12 +165,6 @@ pub fn main() -> ExitCode {
             }
         }
     }
-}
-
-/// The results folder of an experiment, refusing names that would leave `results`.
-pub fn experiment_dir(results: &Path, name: &str) -> PathBuf {
-    debug_assert!(!name.contains('/') && !name.starts_with('.'));
-    results.join(name)
 }
 
 /// Writes to stdout, treating a closed pipe as success.

@@ -1,6 +1,6 @@
 //! `kiln run`: run the missing cells of a spec, then write the table and the manifest.
 
-use super::{RunArgs, experiment_dir, out};
+use super::{RunArgs, out};
 use crate::exec::{self, INTERRUPTED, Options, Provenance, memory};
 use crate::spec::plan::expand;
 use crate::spec::shard::{self, Shard};
@@ -50,7 +50,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         );
     });
 
-    let host = exec::host_name();
+    let host = crate::store::this_host().to_string();
     let prov = Provenance {
         host: host.clone(),
         kiln_version: crate::VERSION.into(),
@@ -97,7 +97,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             })
         })
         .collect();
-    let dir = experiment_dir(&c.results, &spec.name);
+    let dir = c.results.join(&spec.name);
     let table_path = dir.join("cells.parquet");
     let manifest_path = dir.join("manifest.toml");
     table::write(&table_path, &rows, &plan.spec_hash.hex())?;

@@ -69,13 +69,10 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
         None => ((largest * a.cpus as u128) / (1 << 20)) as u64 + 512,
     };
     // Time: the most loaded shard's cost at the conservative rate, ×2, at least 10 minutes.
-    let assign = shard::assign(&spec, &plan, a.tasks);
-    let mut load = vec![0.0f64; a.tasks as usize];
-    let mut seen = std::collections::HashSet::new();
-    for cell in plan.cells.iter().filter(|x| seen.insert(x.key)) {
-        load[assign[&cell.base] as usize] += spec.algorithms[cell.algo].algo.cost(cell.n);
-    }
-    let worst = load.iter().cloned().fold(0.0, f64::max);
+    let worst = shard::assign(&spec, &plan, a.tasks)
+        .load
+        .into_iter()
+        .fold(0.0, f64::max);
     let time = match &a.time {
         Some(t) => t.clone(),
         None => {

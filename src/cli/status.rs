@@ -34,10 +34,9 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
     }
     let plan = expand(&spec);
     let cache = Cache::new(a.common.cache_dir());
-    let assign = shard::assign(&spec, &plan, a.shards);
+    let assign = shard::assign(&spec, &plan, a.shards).shard_of;
     let mut per: BTreeMap<u32, Tally> = (0..a.shards).map(|i| (i, Tally::default())).collect();
-    let mut seen = std::collections::HashSet::new();
-    for c in plan.cells.iter().filter(|c| seen.insert(c.key)) {
+    for c in plan.distinct() {
         let t = per.get_mut(&assign[&c.base]).expect("shard");
         t.cells += 1;
         if cache.has_record(&c.key) {

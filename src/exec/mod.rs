@@ -97,8 +97,7 @@ pub fn lookup(
     cache: &Cache,
     damaged: &Mutex<Vec<String>>,
 ) -> Result<(HashMap<Key, Record>, Vec<Key>), StoreError> {
-    let mut seen = std::collections::HashSet::new();
-    let cells: Vec<&Cell> = plan.cells.iter().filter(|c| seen.insert(c.key)).collect();
+    let cells: Vec<&Cell> = plan.distinct().collect();
     let found: Vec<Result<Option<Record>, StoreError>> = cells
         .par_iter()
         .map(|c| cached_record(cache, c, damaged))
@@ -438,9 +437,4 @@ fn load_reference(
         })),
         _ => Ok(None),
     }
-}
-
-/// Host name, best effort.
-pub fn host_name() -> String {
-    crate::store::this_host().to_string()
 }

@@ -357,7 +357,6 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     let mut label_spans: Vec<Range<usize>> = Vec::new();
     for (i, a) in raw.algorithm.iter().enumerate() {
         let at = format!("algorithm[{}]", i + 1);
-        let a_span = a.span();
         let a = a.get_ref();
         let kind = a.kind.get_ref().as_str();
         let present: Vec<(&str, Range<usize>)> = [
@@ -497,7 +496,6 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 Some("labels name table rows: give each algorithm its own".into()),
             ));
         }
-        let _ = a_span;
         label_spans.push(lspan);
         algorithms.push(AlgoEntry { label, algo });
     }

@@ -30,6 +30,15 @@ pub struct Cell {
     pub run: Id,
 }
 
+impl Plan {
+    /// Each distinct cell once (two labels with identical settings share their cells), in
+    /// plan order.
+    pub fn distinct(&self) -> impl Iterator<Item = &Cell> {
+        let mut seen = std::collections::HashSet::new();
+        self.cells.iter().filter(move |c| seen.insert(c.key))
+    }
+}
+
 impl Cell {
     pub fn is_base(&self) -> bool {
         self.epsilon == 0.0

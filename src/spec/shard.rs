@@ -41,17 +41,20 @@ impl Shard {
     }
 }
 
-/// For every distinct base key of the plan, the shard (0-based) its group belongs to.
-pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> BTreeMap<Key, u32> {
+/// How groups were dealt: each base key's shard (0-based) and each shard's estimated cost.
+pub struct Assignment {
+    pub shard_of: BTreeMap<Key, u32>,
+    pub load: Vec<f64>,
+}
+
+/// Deals the plan's groups to `count` shards.
+pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> Assignment {
     // Group cost: the sum over its distinct cells.
-    let mut groups: BTreeMap<Key, (f64, std::collections::BTreeSet<Key>)> = BTreeMap::new();
-    for c in &plan.cells {
-        let g = groups.entry(c.base).or_default();
-        if g.1.insert(c.key) {
-            g.0 += spec.algorithms[c.algo].algo.cost(c.n);
-        }
+    let mut groups: BTreeMap<Key, f64> = BTreeMap::new();
+    for c in plan.distinct() {
+        *groups.entry(c.base).or_default() += spec.algorithms[c.algo].algo.cost(c.n);
     }
-    let mut order: Vec<(Key, f64)> = groups.into_iter().map(|(k, (c, _))| (k, c)).collect();
+    let mut order: Vec<(Key, f64)> = groups.into_iter().collect();
     order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     let mut load = vec![0.0f64; count as usize];
     let mut out = BTreeMap::new();
@@ -64,12 +67,15 @@ pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> BTreeMap<Key, u32> {
         load[best] += c;
         out.insert(k, best as u32);
     }
-    out
+    Assignment {
+        shard_of: out,
+        load,
+    }
 }
 
 /// The cells of one shard, in plan order.
 pub fn cells_of(spec: &Spec, plan: &Plan, shard: Shard) -> Vec<Cell> {
-    let a = assign(spec, plan, shard.count);
+    let a = assign(spec, plan, shard.count).shard_of;
     plan.cells
         .iter()
         .filter(|c| a[&c.base] == shard.index)
