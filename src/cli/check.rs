@@ -13,7 +13,7 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let budget = memory::budget(max_memory);
     let fit = memory::check(&spec, budget)?;
     let plan = expand(&spec);
-    let cache = Cache::new(a.cache_dir());
+    let cache = Cache::new(a.folders.cache_dir());
     let total = plan.distinct().count();
     let cached = plan.distinct().filter(|c| cache.has_record(&c.key)).count();
     let (largest, largest_n) = memory::largest_cell(&spec);

@@ -157,30 +157,32 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
             .hash("bootstrap");
         let labels: Vec<&String> = fits.keys().copied().collect();
         let mut reps: BTreeMap<&String, Vec<f64>> = BTreeMap::new();
+        // Per size, the seeds of the group (from its first algorithm), and each algorithm's
+        // original points: fixed across replicates, so computed once.
+        let seeds_by_n: Vec<(u64, Vec<u64>)> = labels
+            .iter()
+            .flat_map(|l| algs[*l].keys().copied())
+            .collect::<std::collections::BTreeSet<u64>>()
+            .into_iter()
+            .filter_map(|n| {
+                let seeds: Vec<u64> = algs[labels[0]].get(&n)?.keys().copied().collect();
+                (!seeds.is_empty()).then_some((n, seeds))
+            })
+            .collect();
+        let originals: Vec<Vec<Point>> = labels.iter().map(|l| points_of(&algs[*l])).collect();
         for b in 0..bootstrap {
             let mut rng = stream(&id, Purpose::Bootstrap, b as u64);
-            // Per size: the seeds common to the group, resampled with replacement.
-            let all_ns: std::collections::BTreeSet<u64> = labels
+            // Per size: the group's seeds resampled with replacement.
+            let draw: BTreeMap<u64, Vec<u64>> = seeds_by_n
                 .iter()
-                .flat_map(|l| algs[*l].keys().copied())
-                .collect();
-            let mut draw: BTreeMap<u64, Vec<u64>> = BTreeMap::new();
-            for n in all_ns {
-                let seeds: Vec<u64> = algs[labels[0]]
-                    .get(&n)
-                    .map_or(vec![], |m| m.keys().copied().collect());
-                if seeds.is_empty() {
-                    continue;
-                }
-                draw.insert(
-                    n,
-                    (0..seeds.len())
+                .map(|(n, seeds)| {
+                    let d = (0..seeds.len())
                         .map(|_| seeds[rng.below(seeds.len() as u64) as usize])
-                        .collect(),
-                );
-            }
-            for &l in &labels {
-                let original = points_of(&algs[l]);
+                        .collect();
+                    (*n, d)
+                })
+                .collect();
+            for (&l, original) in labels.iter().zip(&originals) {
                 let pts: Vec<Point> = original
                     .iter()
                     .filter_map(|p| {

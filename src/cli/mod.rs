@@ -51,17 +51,32 @@ enum Command {
     Theory(theory::TheoryArgs),
 }
 
-/// Arguments shared by commands that read a spec.
+/// Where results and the cache live; shared by every command that touches them.
 #[derive(Args, Debug, Clone)]
-pub struct CommonArgs {
-    /// Experiment spec (TOML). Without it, the built-in default experiment.
-    pub spec: Option<PathBuf>,
+pub struct Folders {
     /// Folder for tables and manifests (`results/<experiment>/…`).
     #[arg(long, value_name = "DIR", default_value = "results")]
     pub results: PathBuf,
     /// Cache folder, shared by experiments. Default: `<results>/.cache`.
     #[arg(long, value_name = "DIR")]
     pub cache: Option<PathBuf>,
+}
+
+impl Folders {
+    pub fn cache_dir(&self) -> PathBuf {
+        self.cache
+            .clone()
+            .unwrap_or_else(|| self.results.join(".cache"))
+    }
+}
+
+/// Arguments shared by commands that read a spec.
+#[derive(Args, Debug, Clone)]
+pub struct CommonArgs {
+    /// Experiment spec (TOML). Without it, the built-in default experiment.
+    pub spec: Option<PathBuf>,
+    #[command(flatten)]
+    pub folders: Folders,
     /// Cells run in parallel. Default: the number of cores.
     #[arg(long, short = 'j', value_name = "N")]
     pub jobs: Option<usize>,
@@ -92,12 +107,6 @@ pub struct RunArgs {
 pub struct InputError(pub String);
 
 impl CommonArgs {
-    pub fn cache_dir(&self) -> PathBuf {
-        self.cache
-            .clone()
-            .unwrap_or_else(|| self.results.join(".cache"))
-    }
-
     pub fn load_spec(&self) -> Result<Spec, SpecError> {
         match &self.spec {
             Some(p) => spec::load(p),

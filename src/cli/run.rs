@@ -31,7 +31,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     if let Some(sh) = shard {
         plan.cells = shard::cells_of(&spec, &plan, sh);
     }
-    let cache = Cache::new(c.cache_dir());
+    let cache = Cache::new(c.folders.cache_dir());
     cache.prepare()?;
     let talk = !a.quiet && !c.json;
     if jobs < jobs_wanted && !c.json {
@@ -97,7 +97,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             })
         })
         .collect();
-    let dir = c.results.join(&spec.name);
+    let dir = c.folders.results.join(&spec.name);
     let table_path = dir.join("cells.parquet");
     let manifest_path = dir.join("manifest.toml");
     table::write(&table_path, &rows, &plan.spec_hash.hex())?;

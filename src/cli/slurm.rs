@@ -83,8 +83,8 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
         }
     };
 
-    let results = absolute(&c.results);
-    let cache = absolute(&c.cache_dir());
+    let results = absolute(&c.folders.results);
+    let cache = absolute(&c.folders.cache_dir());
     let dir = absolute(
         &a.dir
             .clone()

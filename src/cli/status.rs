@@ -33,7 +33,7 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
         return Err(super::InputError("--shards 0: give at least 1".into()).into());
     }
     let plan = expand(&spec);
-    let cache = Cache::new(a.common.cache_dir());
+    let cache = Cache::new(a.common.folders.cache_dir());
     let assign = shard::assign(&spec, &plan, a.shards).shard_of;
     let mut per: BTreeMap<u32, Tally> = (0..a.shards).map(|i| (i, Tally::default())).collect();
     for c in plan.distinct() {

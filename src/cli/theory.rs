@@ -21,13 +21,11 @@ pub struct TheoryArgs {
     /// Also the replica-symmetric free energy at these inverse temperatures (comma-separated).
     #[arg(long, value_name = "β,…", value_delimiter = ',')]
     pub beta: Vec<f64>,
-    /// Results folder: the order parameters go to `<results>/<experiment>/theory.csv` (or
-    /// `<results>/theory-<hash>.csv` for a --mixture).
-    #[arg(long, value_name = "DIR", default_value = "results")]
-    pub results: PathBuf,
-    /// Cache folder for solved order parameters. Default: `<results>/.cache`.
-    #[arg(long, value_name = "DIR")]
-    pub cache: Option<PathBuf>,
+    /// The order parameters go to `<results>/<experiment>/theory.csv` (or
+    /// `<results>/theory-<hash>.csv` for a --mixture); solutions are cached under
+    /// `<cache>/theory`.
+    #[command(flatten)]
+    pub folders: super::Folders,
     /// Print JSON.
     #[arg(long)]
     pub json: bool,
@@ -74,11 +72,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             (xi, Some(spec.name))
         }
     };
-    let cache_dir = a
-        .cache
-        .clone()
-        .unwrap_or_else(|| a.results.join(".cache"))
-        .join("theory");
+    let cache_dir = a.folders.cache_dir().join("theory");
     if !(1..=6).contains(&a.k) {
         return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
     }
@@ -110,21 +104,11 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             );
         }
     }
-    let tag = crate::cell::Canon::List(
-        xi.terms
-            .iter()
-            .map(|&(p, c)| {
-                crate::cell::Canon::List(vec![
-                    crate::cell::Canon::Int(p as i64),
-                    crate::cell::Canon::Real(c),
-                ])
-            })
-            .collect(),
-    )
-    .hash("mixture");
+    let tag = xi.canon().hash("mixture");
     let csv_path = match &experiment {
-        Some(name) => a.results.join(name).join("theory.csv"),
+        Some(name) => a.folders.results.join(name).join("theory.csv"),
         None => a
+            .folders
             .results
             .join(format!("theory-{}.csv", &hex::encode(tag)[..12])),
     };
@@ -225,15 +209,7 @@ fn cached_k_rsb(
 ) -> anyhow::Result<cube::Solution> {
     use crate::cell::Canon;
     let key = Canon::map()
-        .with(
-            "mixture",
-            Canon::List(
-                xi.terms
-                    .iter()
-                    .map(|&(p, c)| Canon::List(vec![Canon::Int(p as i64), Canon::Real(c)]))
-                    .collect(),
-            ),
-        )
+        .with("mixture", xi.canon())
         .with("k", k)
         .with("grid", s.grid)
         .with("half_width", s.half_width)

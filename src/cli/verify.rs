@@ -11,12 +11,8 @@ use std::process::ExitCode;
 
 #[derive(Args, Debug)]
 pub struct VerifyArgs {
-    /// Results folder whose cache to check (the cache is <results>/.cache unless --cache).
-    #[arg(long, value_name = "DIR", default_value = "results")]
-    pub results: PathBuf,
-    /// Cache folder to check.
-    #[arg(long, value_name = "DIR")]
-    pub cache: Option<PathBuf>,
+    #[command(flatten)]
+    pub folders: super::Folders,
     /// Print a JSON summary.
     #[arg(long)]
     pub json: bool,
@@ -33,7 +29,7 @@ struct Counts {
 }
 
 pub fn run(a: &VerifyArgs) -> anyhow::Result<ExitCode> {
-    let root = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
+    let root = a.folders.cache_dir();
     if !root.is_dir() {
         return Err(super::InputError(format!(
             "no cache at {}: nothing to verify (give --cache DIR or --results DIR)",

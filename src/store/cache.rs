@@ -135,20 +135,21 @@ impl Cache {
         &self.root
     }
 
-    pub fn record_path(&self, key: &Key) -> PathBuf {
+    /// `<root>/<folder>/<first two hex digits>/<key>.<ext>`.
+    fn entry(&self, key: &Key, folder: &str, ext: &str) -> PathBuf {
         let h = key.hex();
         self.root
-            .join("records")
+            .join(folder)
             .join(&h[..2])
-            .join(format!("{h}.rec"))
+            .join(format!("{h}.{ext}"))
+    }
+
+    pub fn record_path(&self, key: &Key) -> PathBuf {
+        self.entry(key, "records", "rec")
     }
 
     pub fn spins_path(&self, key: &Key) -> PathBuf {
-        let h = key.hex();
-        self.root
-            .join("spins")
-            .join(&h[..2])
-            .join(format!("{h}.spins"))
+        self.entry(key, "spins", "spins")
     }
 
     /// Creates the cache folders, so that an unusable location is reported up front.
@@ -161,11 +162,7 @@ impl Cache {
     }
 
     pub fn claim_path(&self, key: &Key) -> PathBuf {
-        let h = key.hex();
-        self.root
-            .join("claims")
-            .join(&h[..2])
-            .join(format!("{h}.claim"))
+        self.entry(key, "claims", "claim")
     }
 
     /// Claims a cell for computation by atomic creation of its claim file. A claim left by a
@@ -215,11 +212,7 @@ impl Cache {
     }
 
     pub fn failure_path(&self, key: &Key) -> PathBuf {
-        let h = key.hex();
-        self.root
-            .join("failed")
-            .join(&h[..2])
-            .join(format!("{h}.txt"))
+        self.entry(key, "failed", "txt")
     }
 
     /// Notes that a cell failed (for `kiln status`); cleared when it is computed.

@@ -31,6 +31,17 @@ impl Mixture {
         }
     }
 
+    /// Canonical identity: the (p, c_p²) terms in the order given.
+    pub fn canon(&self) -> crate::cell::Canon {
+        use crate::cell::Canon;
+        Canon::List(
+            self.terms
+                .iter()
+                .map(|&(p, c)| Canon::List(vec![Canon::Int(p as i64), Canon::Real(c)]))
+                .collect(),
+        )
+    }
+
     pub fn xi(&self, q: f64) -> f64 {
         self.terms.iter().map(|&(p, c)| c * q.powi(p as i32)).sum()
     }
