@@ -169,13 +169,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             caption,
         };
         let base = figdir.join(format!("energy-{family}-{couplings}"));
-        written.extend(write_all(
-            &base,
-            size,
-            &csv,
-            |root| figures::draw_energy(root, &fig),
-            |root| figures::draw_energy(root, &fig),
-        )?);
+        written.extend(write_all(&base, size, &csv, &fig)?);
     }
     for label in order.iter().filter(|l| distances.contains_key(*l)) {
         let mut series = Vec::new();
@@ -221,13 +215,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             })
             .collect();
         let base = figdir.join(format!("stability-{safe}"));
-        match write_all(
-            &base,
-            size,
-            &csv,
-            |root| figures::draw_stability(root, &fig),
-            |root| figures::draw_stability(root, &fig),
-        ) {
+        match write_all(&base, size, &csv, &fig) {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
         }
@@ -246,23 +234,14 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
 }
 
 /// Writes base.svg, base.png, base.pdf and base.csv.
-fn write_all<F, G>(
+fn write_all(
     base: &Path,
     size: Size,
     csv: &str,
-    svg_draw: F,
-    png_draw: G,
-) -> anyhow::Result<Vec<PathBuf>>
-where
-    F: Fn(
-        plotters::drawing::DrawingArea<plotters::prelude::SVGBackend, plotters::coord::Shift>,
-    ) -> Result<(), String>,
-    G: Fn(
-        plotters::drawing::DrawingArea<plotters::prelude::BitMapBackend, plotters::coord::Shift>,
-    ) -> Result<(), String>,
-{
-    let svg = kplot::to_svg(size, svg_draw).map_err(anyhow::Error::msg)?;
-    let png = kplot::to_png(size, png_draw).map_err(anyhow::Error::msg)?;
+    fig: &impl kplot::Figure,
+) -> anyhow::Result<Vec<PathBuf>> {
+    let svg = kplot::to_svg(size, fig).map_err(anyhow::Error::msg)?;
+    let png = kplot::to_png(size, fig).map_err(anyhow::Error::msg)?;
     let pdf = kplot::svg_to_pdf(&svg).map_err(anyhow::Error::msg)?;
     let mut out = Vec::new();
     for (ext, bytes) in [

@@ -39,6 +39,24 @@ pub struct StabilityFigure {
     pub caption: String,
 }
 
+impl super::Figure for EnergyFigure {
+    fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        draw_energy(root, self)
+    }
+}
+
+impl super::Figure for StabilityFigure {
+    fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        draw_stability(root, self)
+    }
+}
+
 /// Least-squares slope of log y against log x (points with y > 0).
 pub fn loglog_slope(points: &[(f64, f64, f64)]) -> Option<f64> {
     let pts: Vec<(f64, f64)> = points

@@ -66,17 +66,24 @@ pub fn pixels(size: Size) -> (u32, u32) {
     ((w * DPI).round() as u32, (h * DPI).round() as u32)
 }
 
-/// Renders with `draw` to an SVG string sized in inches.
-pub fn to_svg<F>(size: Size, draw: F) -> Result<String, String>
-where
-    F: Fn(DrawingArea<SVGBackend, plotters::coord::Shift>) -> Result<(), String>,
-{
+/// A figure drawable on any plotters backend (SVG and PNG share one drawing routine).
+pub trait Figure {
+    fn draw<DB: DrawingBackend>(
+        &self,
+        root: DrawingArea<DB, plotters::coord::Shift>,
+    ) -> Result<(), String>
+    where
+        DB::ErrorType: 'static;
+}
+
+/// Renders a figure to an SVG string sized in inches.
+pub fn to_svg(size: Size, fig: &impl Figure) -> Result<String, String> {
     register_font();
     let (w, h) = pixels(size);
     let mut s = String::new();
     {
         let root = SVGBackend::with_string(&mut s, (w, h)).into_drawing_area();
-        draw(root)?;
+        fig.draw(root)?;
     }
     let (wi, hi) = size.inches();
     let from = format!("width=\"{w}\" height=\"{h}\"");
@@ -84,17 +91,14 @@ where
     Ok(s.replacen(&from, &to, 1))
 }
 
-/// Renders with `draw` to a PNG at 300 dpi (resolution recorded in the pHYs chunk).
-pub fn to_png<F>(size: Size, draw: F) -> Result<Vec<u8>, String>
-where
-    F: Fn(DrawingArea<BitMapBackend, plotters::coord::Shift>) -> Result<(), String>,
-{
+/// Renders a figure to a PNG at 300 dpi (resolution recorded in the pHYs chunk).
+pub fn to_png(size: Size, fig: &impl Figure) -> Result<Vec<u8>, String> {
     register_font();
     let (w, h) = pixels(size);
     let mut rgb = vec![255u8; (w * h * 3) as usize];
     {
         let root = BitMapBackend::with_buffer(&mut rgb, (w, h)).into_drawing_area();
-        draw(root)?;
+        fig.draw(root)?;
     }
     let mut out = Vec::new();
     {
