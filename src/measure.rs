@@ -1,4 +1,5 @@
-//! Measurements on outputs: energy per spin, overlap, distance. Integer sums, so exact.
+//! Measurements on outputs: overlap and distance (spins: integer sums, so exact; points: f64
+//! sums in a fixed order).
 
 /// σ·τ/n.
 pub fn overlap(a: &[i8], b: &[i8]) -> f64 {
@@ -12,6 +13,18 @@ pub fn distance(a: &[i8], b: &[i8]) -> f64 {
     assert_eq!(a.len(), b.len());
     let diff = a.iter().zip(b).filter(|(x, y)| x != y).count();
     2.0 * (diff as f64 / a.len() as f64).sqrt()
+}
+
+/// x·y/n for points on the sphere of radius √n.
+pub fn overlap_points(a: &[f64], b: &[f64]) -> f64 {
+    assert_eq!(a.len(), b.len());
+    a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>() / a.len() as f64
+}
+
+/// ‖x − y‖/√n.
+pub fn distance_points(a: &[f64], b: &[f64]) -> f64 {
+    assert_eq!(a.len(), b.len());
+    (a.iter().zip(b).map(|(x, y)| (x - y).powi(2)).sum::<f64>() / a.len() as f64).sqrt()
 }
 
 #[cfg(test)]

@@ -8,7 +8,7 @@
 
 use super::{Info, Output, descent, random_start};
 use crate::cell::Canon;
-use crate::model::sk::Dense;
+use crate::model::Cube;
 use crate::rng::Stream;
 
 /// Revision of this algorithm's code. Bump when its numbers change.
@@ -45,7 +45,7 @@ impl Params {
 }
 
 /// Anneals from a random start drawn from `rng`.
-pub fn run(p: &Params, d: &Dense, rng: &mut Stream) -> Output {
+pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
     let mut h = vec![0.0; n];
@@ -84,7 +84,11 @@ pub fn run(p: &Params, d: &Dense, rng: &mut Stream) -> Output {
         info.sweeps += q.sweeps;
         info.converged = q.converged;
     }
-    Output { spins: s, info }
+    Output {
+        spins: s,
+        point: None,
+        info,
+    }
 }
 
 #[cfg(test)]

@@ -9,7 +9,7 @@
 
 use super::{Info, Output, random_start};
 use crate::cell::Canon;
-use crate::model::sk::Dense;
+use crate::model::Cube;
 use crate::rng::Stream;
 
 /// Revision of this algorithm's code. Bump when its numbers change.
@@ -69,19 +69,23 @@ impl Params {
 }
 
 /// Runs the descent from a random start drawn from `rng`.
-pub fn run(p: &Params, d: &Dense, rng: &mut Stream) -> Output {
+pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
     let mut h = vec![0.0; n];
     d.fields(&s, &mut h);
     let info = descend(p, d, &mut s, &mut h, rng);
-    Output { spins: s, info }
+    Output {
+        spins: s,
+        point: None,
+        info,
+    }
 }
 
 /// Descends from the given state (fields must equal Aσ). Also used as annealing's quench.
-pub(crate) fn descend(
+pub(crate) fn descend<M: Cube>(
     p: &Params,
-    d: &Dense,
+    d: &M,
     s: &mut [i8],
     h: &mut [f64],
     rng: &mut Stream,

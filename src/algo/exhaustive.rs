@@ -6,7 +6,7 @@
 
 use super::{Info, Output};
 use crate::cell::Canon;
-use crate::model::sk::Dense;
+use crate::model::Cube;
 
 /// Revision of this algorithm's code.
 pub const REVISION: u32 = 1;
@@ -24,7 +24,7 @@ impl Params {
 }
 
 /// Enumerates all states (n ≤ [`MAX_N`], checked by the spec).
-pub fn run(_p: &Params, d: &Dense) -> Output {
+pub fn run<M: Cube>(_p: &Params, d: &M) -> Output {
     let n = d.n();
     let mut s = vec![1i8; n];
     let mut h = vec![0.0; n];
@@ -45,6 +45,7 @@ pub fn run(_p: &Params, d: &Dense) -> Output {
     }
     Output {
         spins: best_s,
+        point: None,
         info: Info {
             iterations: steps,
             sweeps: 1,
@@ -61,7 +62,7 @@ mod tests {
     use crate::model::sk::sample;
     use crate::rng::{Purpose, stream};
 
-    fn brute_force(d: &Dense) -> f64 {
+    fn brute_force(d: &crate::model::sk::Dense) -> f64 {
         let n = d.n();
         (0u64..1 << n)
             .map(|b| {

@@ -6,6 +6,8 @@
 pub mod anneal;
 pub mod descent;
 pub mod exhaustive;
+pub mod gradient;
+pub mod spectral;
 
 use crate::cell::Canon;
 use crate::model::Instance;
@@ -25,19 +27,24 @@ pub struct Info {
 /// The result of one run.
 #[derive(Clone, Debug)]
 pub struct Output {
-    /// Final configuration, entries ±1.
+    /// Final configuration, entries ±1 (on the sphere: the signs of the point).
     pub spins: Vec<i8>,
+    /// The continuous point before rounding (norm √n), for algorithms that have one; on the
+    /// sphere it is the output.
+    pub point: Option<Vec<f64>>,
     pub info: Info,
 }
 
 /// Numerical failure, with the data needed to understand it.
 #[derive(Debug, thiserror::Error)]
 pub enum AlgoError {
-    #[error("{kind} does not apply to the {family} family")]
+    #[error("{kind} does not apply to this instance: {why}")]
     Unsupported {
         kind: &'static str,
-        family: &'static str,
+        why: &'static str,
     },
+    #[error("numerical failure: {message}")]
+    Numerical { message: String },
 }
 
 /// A fully resolved algorithm with its settings (defaults filled in).
@@ -46,16 +53,21 @@ pub enum AlgoSpec {
     Descent(descent::Params),
     Anneal(anneal::Params),
     Exhaustive(exhaustive::Params),
+    Spectral(spectral::Params),
+    Gradient(gradient::Params),
 }
 
 impl AlgoSpec {
-    pub const KINDS: [&'static str; 3] = ["descent", "anneal", "exhaustive"];
+    pub const KINDS: [&'static str; 5] =
+        ["descent", "anneal", "exhaustive", "spectral", "gradient"];
 
     pub fn kind(&self) -> &'static str {
         match self {
             AlgoSpec::Descent(_) => "descent",
             AlgoSpec::Anneal(_) => "anneal",
             AlgoSpec::Exhaustive(_) => "exhaustive",
+            AlgoSpec::Spectral(_) => "spectral",
+            AlgoSpec::Gradient(_) => "gradient",
         }
     }
 
@@ -64,6 +76,8 @@ impl AlgoSpec {
             AlgoSpec::Descent(_) => descent::REVISION,
             AlgoSpec::Anneal(_) => anneal::REVISION,
             AlgoSpec::Exhaustive(_) => exhaustive::REVISION,
+            AlgoSpec::Spectral(_) => spectral::REVISION,
+            AlgoSpec::Gradient(_) => gradient::REVISION,
         }
     }
 
@@ -76,6 +90,8 @@ impl AlgoSpec {
             AlgoSpec::Descent(p) => p.canon(c),
             AlgoSpec::Anneal(p) => p.canon(c),
             AlgoSpec::Exhaustive(p) => p.canon(c),
+            AlgoSpec::Spectral(p) => p.canon(c),
+            AlgoSpec::Gradient(p) => p.canon(c),
         }
     }
 
@@ -86,25 +102,85 @@ impl AlgoSpec {
 
     /// Work-space bytes beyond the instance for size n.
     pub fn work_bytes(&self, n: u64) -> u128 {
-        // spins (i8), fields (f64), an order permutation (u32), a copy of the reference spins.
-        (n as u128) * (1 + 8 + 4 + 1)
+        let n = n as u128;
+        match self {
+            // Lanczos basis (basis + 2 vectors of f64) and the point.
+            AlgoSpec::Spectral(p) => 8 * n * (p.basis.max(2) as u128 + 4),
+            // point, gradient, spins.
+            AlgoSpec::Gradient(_) => n * (8 + 8 + 8 + 1),
+            // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
+            _ => n * (1 + 8 + 4 + 1),
+        }
     }
 
-    /// Relative cost of one run at size n, for ordering work (largest first) and sharding.
-    pub fn cost(&self, n: u64) -> f64 {
+    /// Relative cost of one run at size n when one spin flip (or one coordinate of a
+    /// matrix–vector product) touches `flip` entries, for ordering work and sharding.
+    pub fn cost(&self, n: u64, flip: f64) -> f64 {
         let n = n as f64;
         match self {
-            AlgoSpec::Descent(_) => n * n,
-            AlgoSpec::Anneal(p) => n * n * (1.0 + 0.3 * p.sweeps as f64),
-            AlgoSpec::Exhaustive(_) => n * 2f64.powf(n - 1.0),
+            AlgoSpec::Descent(_) => n * flip,
+            AlgoSpec::Anneal(p) => n * flip * (1.0 + 0.3 * p.sweeps as f64),
+            AlgoSpec::Exhaustive(_) => flip * 2f64.powf(n - 1.0),
+            AlgoSpec::Spectral(_) => 200.0 * n * flip,
+            AlgoSpec::Gradient(_) => 300.0 * n * flip,
+        }
+    }
+
+    /// Why this algorithm cannot run on the model, if it cannot (checked by the spec).
+    pub fn unsupported(&self, m: &crate::model::ModelSpec) -> Option<&'static str> {
+        let quadratic = m.xi.terms.iter().all(|&(p, _)| p == 2);
+        match self {
+            AlgoSpec::Descent(_) | AlgoSpec::Anneal(_) | AlgoSpec::Exhaustive(_) => {
+                (!m.family.is_cube())
+                    .then_some("it moves ±1 spins; the sphere family has real coordinates")
+            }
+            AlgoSpec::Spectral(_) => (!quadratic && !m.family.is_sparse()).then_some(
+                "it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })",
+            ),
+            AlgoSpec::Gradient(_) => (m.family.is_cube())
+                .then_some("projected gradient ascent runs on the sphere family"),
         }
     }
 
     pub fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
+        let kind = self.kind();
         match (self, inst) {
             (AlgoSpec::Descent(p), Instance::Dense(d)) => Ok(descent::run(p, d, rng)),
+            (AlgoSpec::Descent(p), Instance::Mixed(d)) => Ok(descent::run(p, d, rng)),
+            (AlgoSpec::Descent(p), Instance::Sparse(d)) => Ok(descent::run(p, d, rng)),
             (AlgoSpec::Anneal(p), Instance::Dense(d)) => Ok(anneal::run(p, d, rng)),
+            (AlgoSpec::Anneal(p), Instance::Mixed(d)) => Ok(anneal::run(p, d, rng)),
+            (AlgoSpec::Anneal(p), Instance::Sparse(d)) => Ok(anneal::run(p, d, rng)),
             (AlgoSpec::Exhaustive(p), Instance::Dense(d)) => Ok(exhaustive::run(p, d)),
+            (AlgoSpec::Exhaustive(p), Instance::Mixed(d)) => Ok(exhaustive::run(p, d)),
+            (AlgoSpec::Exhaustive(p), Instance::Sparse(d)) => Ok(exhaustive::run(p, d)),
+            (AlgoSpec::Spectral(p), Instance::Dense(d)) => {
+                Ok(spectral::run(p, d.n(), |x, y| d.matvec(x, y), rng)?.0)
+            }
+            (AlgoSpec::Spectral(p), Instance::Sparse(g)) => {
+                Ok(spectral::run(p, g.n(), |x, y| g.matvec(x, y), rng)?.0)
+            }
+            (AlgoSpec::Spectral(p), Instance::Mixed(m) | Instance::Sphere(m)) => {
+                match (m.dense(), m.is_quadratic()) {
+                    (Some(d), true) => Ok(spectral::run(p, d.n(), |x, y| d.matvec(x, y), rng)?.0),
+                    _ => Err(AlgoError::Unsupported {
+                        kind,
+                        why: "H is not quadratic",
+                    }),
+                }
+            }
+            (AlgoSpec::Gradient(p), Instance::Sphere(m)) => Ok(gradient::run(p, m, rng)),
+            (
+                AlgoSpec::Descent(_) | AlgoSpec::Anneal(_) | AlgoSpec::Exhaustive(_),
+                Instance::Sphere(_),
+            ) => Err(AlgoError::Unsupported {
+                kind,
+                why: "it moves ±1 spins; the sphere has real coordinates",
+            }),
+            (AlgoSpec::Gradient(_), _) => Err(AlgoError::Unsupported {
+                kind,
+                why: "projected gradient ascent runs on the sphere",
+            }),
         }
     }
 }

@@ -66,8 +66,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 Some(p) => crate::spec::load(p)?,
                 None => crate::spec::default_spec(),
             };
+            use crate::model::Family;
             let xi = match spec.model.family {
-                crate::model::Family::Sk => Mixture::sk(),
+                Family::Sk | Family::Cube | Family::Sphere => spec.model.xi.clone(),
+                other => {
+                    return Err(InputError(format!(
+                        "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere); {} is `{}`",
+                        spec.origin,
+                        other.name()
+                    ))
+                    .into());
+                }
             };
             (xi, Some(spec.name))
         }

@@ -59,6 +59,7 @@ pub struct Report {
 /// The verified cache entry of a cell: its record and, for a reference cell, its spins
 /// artifact too (later ε levels need it). Damaged entries are moved aside and noted.
 fn cached_record(
+    spec: &Spec,
     cache: &Cache,
     cell: &Cell,
     damaged: &Mutex<Vec<String>>,
@@ -68,8 +69,17 @@ fn cached_record(
     let spins_ok = !cell.is_base()
         || verified(cache.read_spins(&cell.key)?, damaged)
             .is_some_and(|s| s.len() as u64 == cell.n);
+    let point_ok = !cell.is_base()
+        || !needs_point(spec)
+        || verified(cache.read_point(&cell.key)?, damaged)
+            .is_some_and(|x| x.len() as u64 == cell.n);
     let record = verified(cache.read_record(&cell.key)?, damaged);
-    Ok(record.filter(|_| spins_ok))
+    Ok(record.filter(|_| spins_ok && point_ok))
+}
+
+/// Whether outputs are measured on their continuous points (the sphere) rather than spins.
+fn needs_point(spec: &Spec) -> bool {
+    !spec.model.family.is_cube()
 }
 
 /// A hit, or None after noting a damaged entry (the cache has already moved it aside).
@@ -93,6 +103,7 @@ fn verified<T>(l: Lookup<T>, damaged: &Mutex<Vec<String>>) -> Option<T> {
 
 /// Looks up every distinct cell of the plan. Returns records found and keys missing.
 pub fn lookup(
+    spec: &Spec,
     plan: &Plan,
     cache: &Cache,
     damaged: &Mutex<Vec<String>>,
@@ -100,7 +111,7 @@ pub fn lookup(
     let cells: Vec<&Cell> = plan.distinct().collect();
     let found: Vec<Result<Option<Record>, StoreError>> = cells
         .par_iter()
-        .map(|c| cached_record(cache, c, damaged))
+        .map(|c| cached_record(spec, cache, c, damaged))
         .collect();
     let mut records = HashMap::new();
     let mut missing = Vec::new();
@@ -142,7 +153,7 @@ pub fn execute(
     prov: &Provenance,
 ) -> Result<Report, StoreError> {
     let damaged = Mutex::new(Vec::new());
-    let (mut records, missing) = lookup(plan, cache, &damaged)?;
+    let (mut records, missing) = lookup(spec, plan, cache, &damaged)?;
     let by_key: BTreeMap<Key, &Cell> = plan.cells.iter().map(|c| (c.key, c)).collect();
     let total = by_key.len() as u64;
     let cached = records.len() as u64;
@@ -185,7 +196,11 @@ pub fn execute(
         .map(|k| by_key[k])
         .filter(|c| !c.is_base())
         .collect();
-    let cost = |c: &&Cell| spec.algorithms[c.algo].algo.cost(c.n);
+    let cost = |c: &&Cell| {
+        spec.algorithms[c.algo]
+            .algo
+            .cost(c.n, spec.model.flip_cost(c.n))
+    };
     phase_base.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
     phase_eps.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
 
@@ -296,7 +311,7 @@ fn attempt(
         Claim::Acquired(g) => g,
         Claim::HeldByOther(_) => return Ok(Outcome::Deferred),
     };
-    if let Some(r) = cached_record(cache, cell, damaged)? {
+    if let Some(r) = cached_record(spec, cache, cell, damaged)? {
         return Ok(Outcome::Cached(r));
     }
     match compute_cell(spec, cell, cache, prov, damaged) {
@@ -328,10 +343,23 @@ impl From<StoreError> for CellError {
 /// The reference output of a cell's (instance, algorithm): from the cache, else recomputed.
 struct Reference {
     spins: Vec<i8>,
+    point: Option<Vec<f64>>,
     energy: f64,
 }
 
-fn run_reference(spec: &Spec, cell: &Cell) -> Result<(crate::algo::Output, f64), CellError> {
+/// H/n of an output: at the point on the sphere, at the spins elsewhere.
+fn energy_of(spec: &Spec, inst: &crate::model::Instance, out: &crate::algo::Output) -> f64 {
+    let n = inst.n() as f64;
+    match (&out.point, needs_point(spec)) {
+        (Some(x), true) => inst.value(x) / n,
+        _ => inst.energy(&out.spins) / n,
+    }
+}
+
+fn run_reference(
+    spec: &Spec,
+    cell: &Cell,
+) -> Result<(crate::algo::Output, f64, Extras), CellError> {
     let n = cell.n as usize;
     let inst = spec.model.sample(n, &cell.instance, 0.0);
     let mut rng = stream(&cell.run, Purpose::Algorithm, 0);
@@ -339,8 +367,30 @@ fn run_reference(spec: &Spec, cell: &Cell) -> Result<(crate::algo::Output, f64),
         .algo
         .run(&inst, &mut rng)
         .map_err(|e| CellError::Failed(e.to_string()))?;
-    let energy = inst.energy(&out.spins) / n as f64;
-    Ok((out, energy))
+    if needs_point(spec) && out.point.is_none() {
+        return Err(CellError::Failed(
+            "the algorithm returned no point on the sphere".into(),
+        ));
+    }
+    let energy = energy_of(spec, &inst, &out);
+    let extras = extras(spec, &inst, energy);
+    Ok((out, energy, extras))
+}
+
+/// Family-specific columns of the reference output: (energy_reduced, cut_fraction).
+type Extras = (Option<f64>, Option<f64>);
+
+fn extras(spec: &Spec, inst: &crate::model::Instance, energy: f64) -> Extras {
+    let reduced = spec.model.reduced_scale().map(|s| energy / s);
+    let cut = match (spec.model.couplings, inst.edges()) {
+        (crate::model::Couplings::Cut, Some(m)) if m > 0 => {
+            // H = −(m − 2·cut) for all-(−1) couplings, so cut = (m + H)/2.
+            let h = energy * inst.n() as f64;
+            Some(((m as f64 + h) / 2.0).round() / m as f64)
+        }
+        _ => None,
+    };
+    (reduced, cut)
 }
 
 fn compute_cell(
@@ -371,6 +421,8 @@ fn compute_cell(
         iterations: 0,
         sweeps: 0,
         converged: false,
+        energy_reduced: None,
+        cut_fraction: None,
         wall_seconds: 0.0,
         host: prov.host.clone(),
         threads: prov.threads,
@@ -378,23 +430,39 @@ fn compute_cell(
         computed_by: prov.computed_by.clone(),
     };
     if cell.is_base() {
-        let (out, energy) = run_reference(spec, cell)?;
+        let (out, energy, (reduced, cut)) = run_reference(spec, cell)?;
+        if let Some(x) = &out.point {
+            cache.write_point(&cell.key, x)?;
+        }
         cache.write_spins(&cell.key, &out.spins)?;
         record.energy = energy;
         record.energy_perturbed = energy;
+        record.energy_reduced = reduced;
+        record.cut_fraction = cut;
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
     } else {
-        let reference = load_reference(cell, cache, damaged)?;
-        let reference = match reference {
-            Some(r) => r,
+        let reference = load_reference(spec, cell, cache, damaged)?;
+        let (reference, reduced, cut) = match reference {
+            Some(r) => {
+                let (rd, ct) = (
+                    spec.model.reduced_scale().map(|s| r.reference.energy / s),
+                    r.cut,
+                );
+                (r.reference, rd, ct)
+            }
             None => {
-                let (out, energy) = run_reference(spec, cell)?;
-                Reference {
-                    spins: out.spins,
-                    energy,
-                }
+                let (out, energy, (rd, ct)) = run_reference(spec, cell)?;
+                (
+                    Reference {
+                        spins: out.spins,
+                        point: out.point,
+                        energy,
+                    },
+                    rd,
+                    ct,
+                )
             }
         };
         let inst = spec.model.sample(n, &cell.instance, cell.epsilon);
@@ -403,9 +471,24 @@ fn compute_cell(
             .run(&inst, &mut rng)
             .map_err(|e| CellError::Failed(e.to_string()))?;
         record.energy = reference.energy;
-        record.energy_perturbed = inst.energy(&out.spins) / n as f64;
-        record.overlap = measure::overlap(&reference.spins, &out.spins);
-        record.distance = measure::distance(&reference.spins, &out.spins);
+        record.energy_perturbed = energy_of(spec, &inst, &out);
+        record.energy_reduced = reduced;
+        record.cut_fraction = cut;
+        match (needs_point(spec), &reference.point, &out.point) {
+            (true, Some(a), Some(b)) => {
+                record.overlap = measure::overlap_points(a, b);
+                record.distance = measure::distance_points(a, b);
+            }
+            (true, _, _) => {
+                return Err(CellError::Failed(
+                    "the algorithm returned no point on the sphere".into(),
+                ));
+            }
+            _ => {
+                record.overlap = measure::overlap(&reference.spins, &out.spins);
+                record.distance = measure::distance(&reference.spins, &out.spins);
+            }
+        }
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
@@ -415,26 +498,46 @@ fn compute_cell(
     Ok(record)
 }
 
+/// A cached reference with the reference record's cut fraction.
+struct CachedReference {
+    reference: Reference,
+    cut: Option<f64>,
+}
+
 fn load_reference(
+    spec: &Spec,
     cell: &Cell,
     cache: &Cache,
     damaged: &Mutex<Vec<String>>,
-) -> Result<Option<Reference>, CellError> {
-    // The reference cell: same instance and algorithm at ε = 0. Its record and spins are
+) -> Result<Option<CachedReference>, CellError> {
+    // The reference cell: same instance and algorithm at ε = 0. Its record and artifacts are
     // verified (and damage reported) by the same lookup the run starts with.
     let base = Cell {
         key: cell.base,
         epsilon: 0.0,
         ..cell.clone()
     };
-    let Some(record) = cached_record(cache, &base, damaged)? else {
+    let Some(record) = cached_record(spec, cache, &base, damaged)? else {
         return Ok(None);
     };
-    match cache.read_spins(&cell.base)? {
-        Lookup::Hit(spins) if spins.len() as u64 == cell.n => Ok(Some(Reference {
+    let spins = match cache.read_spins(&cell.base)? {
+        Lookup::Hit(spins) if spins.len() as u64 == cell.n => spins,
+        _ => return Ok(None),
+    };
+    let point = if needs_point(spec) {
+        match cache.read_point(&cell.base)? {
+            Lookup::Hit(x) if x.len() as u64 == cell.n => Some(x),
+            _ => return Ok(None),
+        }
+    } else {
+        None
+    };
+    Ok(Some(CachedReference {
+        reference: Reference {
             spins,
+            point,
             energy: record.energy,
-        })),
-        _ => Ok(None),
-    }
+        },
+        cut: record.cut_fraction,
+    }))
 }

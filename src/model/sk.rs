@@ -41,43 +41,29 @@ unsafe impl Sync for SendPtr {}
 
 /// Samples the instance (ε = 0) or its correlated copy (ε > 0).
 pub fn sample(n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Dense {
+    sample_weighted(n, couplings, 0.5, instance, epsilon)
+}
+
+/// The p = 2 term of a mixture with weight c2 = c_2²: A = sqrt(2·c2)·J/√n (c2 = 1/2 is SK,
+/// bit for bit: sqrt(1) = 1 exactly).
+pub fn sample_weighted(
+    n: usize,
+    couplings: Couplings,
+    c2: f64,
+    instance: &Id,
+    epsilon: f64,
+) -> Dense {
     let mut a = vec![0.0f64; n * n];
-    let scale = 1.0 / (n as f64).sqrt();
+    let scale = (2.0 * c2).sqrt() / (n as f64).sqrt();
     let keep = 1.0 - epsilon;
     let fresh = (epsilon * (2.0 - epsilon)).sqrt();
     a.par_chunks_mut(n).enumerate().for_each(|(i, row)| {
         let mut js = stream(instance, Purpose::Couplings, i as u64);
         let upper = &mut row[i + 1..];
-        match couplings {
-            Couplings::Gaussian => {
-                for x in upper.iter_mut() {
-                    *x = js.normal();
-                }
-            }
-            Couplings::Pm1 => {
-                for x in upper.iter_mut() {
-                    *x = js.sign();
-                }
-            }
-        }
+        super::draw(&mut js, couplings, upper);
         if epsilon > 0.0 {
             let mut gs = stream(instance, Purpose::Perturbation, i as u64);
-            match couplings {
-                Couplings::Gaussian => {
-                    for x in upper.iter_mut() {
-                        *x = keep * *x + fresh * gs.normal();
-                    }
-                }
-                Couplings::Pm1 => {
-                    for x in upper.iter_mut() {
-                        let u = gs.uniform();
-                        let s = gs.sign();
-                        if u < epsilon {
-                            *x = s;
-                        }
-                    }
-                }
-            }
+            super::perturb(&mut gs, couplings, keep, fresh, epsilon, upper);
         }
         for x in upper.iter_mut() {
             *x *= scale;
@@ -128,6 +114,13 @@ impl Dense {
         }
     }
 
+    /// y = A x.
+    pub fn matvec(&self, x: &[f64], y: &mut [f64]) {
+        for (i, yi) in y.iter_mut().enumerate() {
+            *yi = dot(self.row(i), x);
+        }
+    }
+
     /// H(σ) = ½ σᵀAσ, from scratch, summed in a fixed order.
     pub fn energy(&self, s: &[i8]) -> f64 {
         let mut e = 0.0;
@@ -164,6 +157,40 @@ fn dot_signs(row: &[f64], s: &[i8]) -> f64 {
         }
     }
     (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// Dot product with four partial sums in a fixed pattern: deterministic and vectorisable.
+#[inline(always)]
+pub(crate) fn dot(row: &[f64], x: &[f64]) -> f64 {
+    let mut acc = [0.0f64; 4];
+    let rc = row.chunks_exact(4);
+    let xc = x.chunks_exact(4);
+    let mut tail = 0.0;
+    for (&a, &b) in rc.remainder().iter().zip(xc.remainder()) {
+        tail += a * b;
+    }
+    for (r, q) in rc.zip(xc) {
+        for ((a, &u), &v) in acc.iter_mut().zip(r).zip(q) {
+            *a += u * v;
+        }
+    }
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+impl super::Cube for Dense {
+    fn n(&self) -> usize {
+        self.n
+    }
+    fn fields(&self, s: &[i8], h: &mut [f64]) {
+        Dense::fields(self, s, h)
+    }
+    fn energy(&self, s: &[i8]) -> f64 {
+        Dense::energy(self, s)
+    }
+    #[inline(always)]
+    fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
+        Dense::flip(self, s, h, k)
+    }
 }
 
 #[cfg(test)]

@@ -8,7 +8,7 @@ pub mod error;
 pub mod plan;
 pub mod shard;
 
-use crate::algo::{AlgoSpec, anneal, descent, exhaustive};
+use crate::algo::{AlgoSpec, anneal, descent, exhaustive, gradient, spectral};
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
@@ -73,6 +73,15 @@ struct RawModel {
     family: Spanned<String>,
     #[serde(default)]
     couplings: Option<Spanned<String>>,
+    /// ξ's coefficients c_p², keyed by the degree p (cube, sphere).
+    #[serde(default)]
+    xi: Option<Spanned<std::collections::BTreeMap<String, Spanned<f64>>>>,
+    /// Mean degree (erdos-renyi) or degree (regular).
+    #[serde(default)]
+    degree: Option<Spanned<toml::Value>>,
+    /// Lattice dimension D.
+    #[serde(default)]
+    dimension: Option<Spanned<i64>>,
 }
 
 #[derive(Deserialize)]
@@ -105,10 +114,25 @@ struct RawAlgorithm {
     beta: Option<Spanned<Vec<f64>>>,
     #[serde(default)]
     quench: Option<Spanned<bool>>,
+    // spectral, gradient
+    #[serde(default)]
+    tol: Option<Spanned<f64>>,
+    #[serde(default)]
+    basis: Option<Spanned<i64>>,
+    #[serde(default)]
+    max_matvecs: Option<Spanned<i64>>,
+    #[serde(default)]
+    step: Option<Spanned<f64>>,
+    #[serde(default)]
+    max_iterations: Option<Spanned<i64>>,
 }
 
 const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
 const ANNEAL_KEYS: &[&str] = &["sweeps", "beta", "quench"];
+const SPECTRAL_KEYS: &[&str] = &["tol", "basis", "max_matvecs"];
+const GRADIENT_KEYS: &[&str] = &["step", "tol", "max_iterations"];
+/// Largest degree p of a mixture term.
+pub const MAX_P: u32 = 8;
 
 // ---------------------------------------------------------------- resolved spec
 
@@ -262,16 +286,27 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     })?;
     let couplings = match &raw.model.couplings {
         None => Couplings::Gaussian,
-        Some(c) => Couplings::parse(c.get_ref()).ok_or_else(|| {
-            loc.at(
-                Some(c.span()),
-                "model.couplings",
-                format!("unknown coupling law `{}`", c.get_ref()),
-                Some(choice_hint(c.get_ref(), &Couplings::NAMES)),
-            )
-        })?,
+        Some(c) => {
+            let law = Couplings::parse(c.get_ref()).ok_or_else(|| {
+                loc.at(
+                    Some(c.span()),
+                    "model.couplings",
+                    format!("unknown coupling law `{}`", c.get_ref()),
+                    Some(choice_hint(c.get_ref(), &Couplings::NAMES)),
+                )
+            })?;
+            if law == Couplings::Cut && !matches!(family, Family::ErdosRenyi | Family::Regular) {
+                return Err(loc.at(
+                    Some(c.span()),
+                    "model.couplings",
+                    format!("`cut` does not apply to the `{}` family", family.name()),
+                    Some("max-cut couplings are for the graph families `erdos-renyi` and `regular`; use `gaussian` or `pm1`".into()),
+                ));
+            }
+            law
+        }
     };
-    let model = ModelSpec { family, couplings };
+    let model = model_from(&raw.model, family, couplings, loc)?;
 
     // [sweep]
     let sizes_raw = &raw.sweep.sizes;
@@ -285,7 +320,33 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     }
     let mut sizes = Vec::new();
     for s in sizes_raw.get_ref() {
-        let n = *s.get_ref();
+        let mut n = *s.get_ref();
+        if family == Family::Lattice {
+            // Sizes of a lattice are side lengths L; the cell's n is L^D.
+            let l = n;
+            if l < 3 {
+                return Err(loc.at(
+                    Some(s.span()),
+                    "sweep.sizes",
+                    format!("side length L = {l} is too small for a periodic lattice"),
+                    Some("lattice sizes are side lengths L ≥ 3 (n = L^D sites)".into()),
+                ));
+            }
+            n = match l.checked_pow(model.dimension) {
+                Some(x) if x <= MAX_N => x,
+                _ => {
+                    return Err(loc.at(
+                        Some(s.span()),
+                        "sweep.sizes",
+                        format!(
+                            "L = {l} gives more than {MAX_N} sites in dimension {}",
+                            model.dimension
+                        ),
+                        Some("use a smaller side length".into()),
+                    ));
+                }
+            };
+        }
         if n < 2 {
             return Err(loc.at(
                 Some(s.span()),
@@ -309,6 +370,9 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 format!("size {n} is listed twice"),
                 Some("list each size once".into()),
             ));
+        }
+        if let Some(why) = size_problem(&model, n as u64) {
+            return Err(loc.at(Some(s.span()), "sweep.sizes", why.0, Some(why.1)));
         }
         sizes.push((n as u64, s.span()));
     }
@@ -365,6 +429,14 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             ("sweeps", a.sweeps.as_ref().map(|x| x.span())),
             ("beta", a.beta.as_ref().map(|x| x.span())),
             ("quench", a.quench.as_ref().map(|x| x.span())),
+            ("tol", a.tol.as_ref().map(|x| x.span())),
+            ("basis", a.basis.as_ref().map(|x| x.span())),
+            ("max_matvecs", a.max_matvecs.as_ref().map(|x| x.span())),
+            ("step", a.step.as_ref().map(|x| x.span())),
+            (
+                "max_iterations",
+                a.max_iterations.as_ref().map(|x| x.span()),
+            ),
         ]
         .into_iter()
         .filter_map(|(k, s)| s.map(|s| (k, s)))
@@ -373,6 +445,8 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             "descent" => DESCENT_KEYS,
             "anneal" => ANNEAL_KEYS,
             "exhaustive" => &[],
+            "spectral" => SPECTRAL_KEYS,
+            "gradient" => GRADIENT_KEYS,
             _ => {
                 return Err(loc.at(
                     Some(a.kind.span()),
@@ -430,6 +504,42 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 }
                 AlgoSpec::Exhaustive(exhaustive::Params {})
             }
+            "spectral" => {
+                let mut p = spectral::Params::default();
+                if let Some(t) = &a.tol {
+                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
+                }
+                if let Some(b) = &a.basis {
+                    p.basis = positive(b, loc, &format!("{at}.basis"), 10_000)?.max(2);
+                }
+                if let Some(m) = &a.max_matvecs {
+                    p.max_matvecs = positive(m, loc, &format!("{at}.max_matvecs"), 1_000_000_000)?;
+                }
+                AlgoSpec::Spectral(p)
+            }
+            "gradient" => {
+                let mut p = gradient::Params::default();
+                if let Some(t) = &a.tol {
+                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
+                }
+                if let Some(st) = &a.step {
+                    let x = *st.get_ref();
+                    if !(x > 0.0 && x.is_finite()) {
+                        return Err(loc.at(
+                            Some(st.span()),
+                            format!("{at}.step"),
+                            format!("step {x} is not a positive number"),
+                            Some("a step size η > 0, e.g. step = 0.5".into()),
+                        ));
+                    }
+                    p.step = x;
+                }
+                if let Some(m) = &a.max_iterations {
+                    p.max_iterations =
+                        positive(m, loc, &format!("{at}.max_iterations"), 1_000_000_000)?;
+                }
+                AlgoSpec::Gradient(p)
+            }
             _ => {
                 let mut p = anneal::Params::default();
                 if let Some(s) = &a.sweeps {
@@ -472,6 +582,20 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 AlgoSpec::Anneal(p)
             }
         };
+        if let Some(why) = algo.unsupported(&model) {
+            return Err(loc.at(
+                Some(a.kind.span()),
+                format!("{at}.kind"),
+                format!(
+                    "`{kind}` cannot run on the `{}` family: {why}",
+                    model.family.name()
+                ),
+                Some(format!(
+                    "kinds for this family: {}",
+                    kinds_for(&model).join(", ")
+                )),
+            ));
+        }
         let (label, lspan) = match &a.label {
             Some(l) => (l.get_ref().clone(), l.span()),
             None => (kind.to_string(), a.kind.span()),
@@ -583,6 +707,210 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
         };
     }
     Ok(out)
+}
+
+/// The kinds that can run on a model (for hints).
+fn kinds_for(m: &ModelSpec) -> Vec<String> {
+    [
+        AlgoSpec::Descent(Default::default()),
+        AlgoSpec::Anneal(Default::default()),
+        AlgoSpec::Exhaustive(Default::default()),
+        AlgoSpec::Spectral(Default::default()),
+        AlgoSpec::Gradient(Default::default()),
+    ]
+    .iter()
+    .filter(|a| a.unsupported(m).is_none())
+    .map(|a| format!("`{}`", a.kind()))
+    .collect()
+}
+
+fn tolerance(v: &Spanned<f64>, loc: &Locator, key: &str) -> Result<f64, SpecError> {
+    let x = *v.get_ref();
+    if !(x > 0.0 && x < 1.0) {
+        return Err(loc.at(
+            Some(v.span()),
+            key,
+            format!("tolerance {x} is not in (0, 1)"),
+            Some("a small positive number, e.g. tol = 1e-8".into()),
+        ));
+    }
+    Ok(x)
+}
+
+/// The family-specific `[model]` keys: each required where it applies and refused elsewhere.
+fn model_from(
+    raw: &RawModel,
+    family: Family,
+    couplings: Couplings,
+    loc: &Locator,
+) -> Result<ModelSpec, SpecError> {
+    let mut m = ModelSpec::sk(couplings);
+    m.family = family;
+    let misplaced = |span: Range<usize>, key: &str, belongs: &str| {
+        loc.at(
+            Some(span),
+            format!("model.{key}"),
+            format!("`{key}` does not apply to the `{}` family", family.name()),
+            Some(format!("`{key}` belongs to {belongs}; remove it")),
+        )
+    };
+    let missing = |key: &str, example: &str| {
+        loc.at(
+            Some(raw.family.span()),
+            format!("model.{key}"),
+            format!("the `{}` family needs `{key}`", family.name()),
+            Some(format!("add e.g. {example} under [model]")),
+        )
+    };
+    // xi
+    match (&raw.xi, matches!(family, Family::Cube | Family::Sphere)) {
+        (Some(x), false) => {
+            return Err(misplaced(
+                x.span(),
+                "xi",
+                "the `cube` and `sphere` families",
+            ));
+        }
+        (None, true) => {
+            return Err(missing(
+                "xi",
+                "xi = { 2 = 0.5, 4 = 0.25 } (ξ(q) = Σ c_p² q^p)",
+            ));
+        }
+        (Some(x), true) => {
+            let mut terms = Vec::new();
+            for (k, v) in x.get_ref() {
+                let key = format!("model.xi.{k}");
+                let p: u32 = match k.parse() {
+                    Ok(p) if (2..=MAX_P).contains(&p) => p,
+                    _ => {
+                        return Err(loc.at(
+                            Some(v.span()),
+                            key,
+                            format!("`{k}` is not a degree p"),
+                            Some(format!("keys of xi are degrees p from 2 to {MAX_P}, values the weights c_p²")),
+                        ));
+                    }
+                };
+                let c = *v.get_ref();
+                if !(c >= 0.0 && c.is_finite()) {
+                    return Err(loc.at(
+                        Some(v.span()),
+                        key,
+                        format!("weight {c} is not a number ≥ 0"),
+                        Some("values of xi are the weights c_p² ≥ 0 of ξ(q) = Σ c_p² q^p".into()),
+                    ));
+                }
+                if c > 0.0 {
+                    terms.push((p, c));
+                }
+            }
+            if terms.is_empty() {
+                return Err(loc.at(
+                    Some(x.span()),
+                    "model.xi",
+                    "every weight of xi is zero",
+                    Some("give at least one positive c_p², e.g. xi = { 3 = 1.0 }".into()),
+                ));
+            }
+            terms.sort_by_key(|t| t.0);
+            m.xi = crate::theory::Mixture { terms };
+        }
+        (None, false) => {}
+    }
+    // degree
+    match (&raw.degree, family) {
+        (Some(d), Family::ErdosRenyi | Family::Regular) => {
+            let key = "model.degree";
+            let x = match d.get_ref() {
+                toml::Value::Integer(i) => *i as f64,
+                toml::Value::Float(f) if family == Family::ErdosRenyi => *f,
+                _ => {
+                    return Err(loc.at(
+                        Some(d.span()),
+                        key,
+                        "degree must be a number".to_string(),
+                        Some(if family == Family::Regular {
+                            "a whole degree d ≥ 1, e.g. degree = 3".into()
+                        } else {
+                            "a mean degree d > 0, e.g. degree = 5".into()
+                        }),
+                    ));
+                }
+            };
+            if !(x > 0.0 && x.is_finite() && x <= 1e6) || (family == Family::Regular && x < 1.0) {
+                return Err(loc.at(
+                    Some(d.span()),
+                    key,
+                    format!("degree {x} is out of range"),
+                    Some("a degree between 1 and 10⁶".into()),
+                ));
+            }
+            m.degree = x;
+        }
+        (Some(d), _) => {
+            return Err(misplaced(
+                d.span(),
+                "degree",
+                "the `erdos-renyi` and `regular` families",
+            ));
+        }
+        (None, Family::ErdosRenyi) => return Err(missing("degree", "degree = 5 (mean degree d)")),
+        (None, Family::Regular) => return Err(missing("degree", "degree = 3")),
+        (None, _) => {}
+    }
+    // dimension
+    match (&raw.dimension, family) {
+        (Some(d), Family::Lattice) => {
+            let x = *d.get_ref();
+            if !(1..=4).contains(&x) {
+                return Err(loc.at(
+                    Some(d.span()),
+                    "model.dimension",
+                    format!("dimension {x} is not supported"),
+                    Some("lattices of dimension D = 1 to 4 (2 and 3 are the usual glasses)".into()),
+                ));
+            }
+            m.dimension = x as u32;
+            m.degree = 2.0 * x as f64;
+        }
+        (Some(d), _) => return Err(misplaced(d.span(), "dimension", "the `lattice` family")),
+        (None, Family::Lattice) => return Err(missing("dimension", "dimension = 2")),
+        (None, _) => {}
+    }
+    Ok(m)
+}
+
+/// Why size n does not fit the model, if it does not: (message, hint).
+fn size_problem(m: &ModelSpec, n: u64) -> Option<(String, String)> {
+    match m.family {
+        Family::Cube | Family::Sphere => {
+            let p = m.xi.terms.iter().map(|t| t.0).max().unwrap_or(2) as u64;
+            (n < p).then(|| {
+                (
+                    format!("n = {n} is smaller than the largest degree p = {p}"),
+                    "a p-spin term needs n ≥ p".into(),
+                )
+            })
+        }
+        Family::Regular => {
+            let d = m.degree as u64;
+            if d >= n {
+                Some((
+                    format!("no simple {d}-regular graph on n = {n} vertices"),
+                    "a d-regular graph needs n > d".into(),
+                ))
+            } else if (n * d) % 2 == 1 {
+                Some((
+                    format!("n·d = {n}·{d} is odd: no {d}-regular graph on {n} vertices"),
+                    "use an even n (or an even degree)".into(),
+                ))
+            } else {
+                None
+            }
+        }
+        _ => None,
+    }
 }
 
 fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64, SpecError> {

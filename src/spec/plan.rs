@@ -56,7 +56,7 @@ pub struct Plan {
 
 pub fn instance_id(spec: &Spec, n: u64, seed: u64) -> Id {
     Canon::map()
-        .with("model", spec.model.canon())
+        .with("model", spec.model.disorder_canon())
         .with("n", n)
         .with("seed", seed)
         .hash("instance")

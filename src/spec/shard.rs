@@ -52,7 +52,9 @@ pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> Assignment {
     // Group cost: the sum over its distinct cells.
     let mut groups: BTreeMap<Key, f64> = BTreeMap::new();
     for c in plan.distinct() {
-        *groups.entry(c.base).or_default() += spec.algorithms[c.algo].algo.cost(c.n);
+        *groups.entry(c.base).or_default() += spec.algorithms[c.algo]
+            .algo
+            .cost(c.n, spec.model.flip_cost(c.n));
     }
     let mut order: Vec<(Key, f64)> = groups.into_iter().collect();
     order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
@@ -132,13 +134,17 @@ sweeps = 50
         let cost = |cells: &[Cell]| -> f64 {
             cells
                 .iter()
-                .map(|c| spec.algorithms[c.algo].algo.cost(c.n))
+                .map(|c| {
+                    spec.algorithms[c.algo]
+                        .algo
+                        .cost(c.n, spec.model.flip_cost(c.n))
+                })
                 .sum()
         };
         let loads: Vec<f64> = (0..n)
             .map(|i| cost(&cells_of(&spec, &plan, Shard { index: i, count: n })))
             .collect();
-        let biggest_group = 3.0 * spec.algorithms[1].algo.cost(1024);
+        let biggest_group = 3.0 * spec.algorithms[1].algo.cost(1024, 1024.0);
         let (lo, hi) = loads
             .iter()
             .fold((f64::MAX, 0.0f64), |(l, h), &x| (l.min(x), h.max(x)));

@@ -19,6 +19,7 @@ use std::path::{Path, PathBuf};
 pub const RECORD_FORMAT: u32 = 1;
 const RECORD_MAGIC: &str = "kiln-record 1 sha256=";
 const SPINS_MAGIC: &[u8; 8] = b"KILNSPN1";
+const POINT_MAGIC: &[u8; 8] = b"KILNPNT1";
 
 /// Everything kiln keeps about one computed cell. Identity fields, the numbers, and provenance.
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
@@ -37,13 +38,19 @@ pub struct Record {
     pub energy: f64,
     /// H'(σ')/n of the run on the perturbed disorder (equals `energy` at ε = 0).
     pub energy_perturbed: f64,
-    /// σ·σ'/n.
+    /// σ·σ'/n (sphere: x·x'/n).
     pub overlap: f64,
     /// ‖σ − σ'‖/√n.
     pub distance: f64,
     pub iterations: u64,
     pub sweeps: u64,
     pub converged: bool,
+    /// energy/√d on sparse graphs and lattices (d the (mean) degree); absent elsewhere.
+    #[serde(default)]
+    pub energy_reduced: Option<f64>,
+    /// Cut edges / all edges of the reference output, for `cut` couplings.
+    #[serde(default)]
+    pub cut_fraction: Option<f64>,
     // provenance (not part of the numbers)
     pub wall_seconds: f64,
     pub host: String,
@@ -152,9 +159,13 @@ impl Cache {
         self.entry(key, "spins", "spins")
     }
 
+    pub fn point_path(&self, key: &Key) -> PathBuf {
+        self.entry(key, "points", "point")
+    }
+
     /// Creates the cache folders, so that an unusable location is reported up front.
     pub fn prepare(&self) -> Result<(), StoreError> {
-        for sub in ["records", "spins", "claims"] {
+        for sub in ["records", "spins", "points", "claims"] {
             let path = self.root.join(sub);
             std::fs::create_dir_all(&path).map_err(|source| StoreError::Write { path, source })?;
         }
@@ -282,6 +293,34 @@ impl Cache {
         }
     }
 
+    /// Writes the continuous output point of a reference run: `KILNPNT1`, the key, n as u64
+    /// LE, n f64 LE, then the SHA-256 of everything before it.
+    pub fn write_point(&self, key: &Key, x: &[f64]) -> Result<(), StoreError> {
+        let mut buf = Vec::with_capacity(8 + 32 + 8 + 8 * x.len() + 32);
+        buf.extend_from_slice(POINT_MAGIC);
+        buf.extend_from_slice(&key.0);
+        buf.extend_from_slice(&(x.len() as u64).to_le_bytes());
+        for v in x {
+            buf.extend_from_slice(&v.to_le_bytes());
+        }
+        let sum = Sha256::digest(&buf);
+        buf.extend_from_slice(&sum);
+        write_atomic(&self.point_path(key), &buf)
+    }
+
+    pub fn read_point(&self, key: &Key) -> Result<Lookup<Vec<f64>>, StoreError> {
+        let path = self.point_path(key);
+        let bytes = match std::fs::read(&path) {
+            Ok(b) => b,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
+            Err(source) => return Err(StoreError::Read { path, source }),
+        };
+        match decode_point(&bytes, key) {
+            Ok(s) => Ok(Lookup::Hit(s)),
+            Err(reason) => Ok(self.quarantine(path, reason)),
+        }
+    }
+
     /// Moves a damaged file to `quarantine/` under a unique name.
     fn quarantine<T>(&self, path: PathBuf, reason: String) -> Lookup<T> {
         let dir = self.root.join("quarantine");
@@ -329,7 +368,13 @@ fn decode_record(bytes: &[u8], key: &Key) -> Result<Record, String> {
     Ok(r)
 }
 
-fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
+/// Checks an artifact's checksum, magic and key; returns (n, body).
+fn open_artifact<'a>(
+    bytes: &'a [u8],
+    magic: &[u8; 8],
+    what: &str,
+    key: &Key,
+) -> Result<(usize, &'a [u8]), String> {
     if bytes.len() < 8 + 32 + 8 + 32 {
         return Err("truncated".into());
     }
@@ -337,8 +382,8 @@ fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
     if Sha256::digest(data).as_slice() != sum {
         return Err("checksum mismatch".into());
     }
-    if &data[..8] != SPINS_MAGIC {
-        return Err("not a kiln spins artifact".into());
+    if &data[..8] != magic {
+        return Err(format!("not a kiln {what} artifact"));
     }
     if data[8..40] != key.0 {
         return Err(format!(
@@ -347,7 +392,11 @@ fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
         ));
     }
     let n = u64::from_le_bytes(data[40..48].try_into().expect("8 bytes")) as usize;
-    let packed = &data[48..];
+    Ok((n, &data[48..]))
+}
+
+fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
+    let (n, packed) = open_artifact(bytes, SPINS_MAGIC, "spins", key)?;
     if packed.len() != n.div_ceil(8) {
         return Err("length does not match n".into());
     }
@@ -359,6 +408,17 @@ fn decode_spins(bytes: &[u8], key: &Key) -> Result<Vec<i8>, String> {
                 1
             }
         })
+        .collect())
+}
+
+fn decode_point(bytes: &[u8], key: &Key) -> Result<Vec<f64>, String> {
+    let (n, body) = open_artifact(bytes, POINT_MAGIC, "point", key)?;
+    if body.len() != 8 * n {
+        return Err("length does not match n".into());
+    }
+    Ok(body
+        .chunks_exact(8)
+        .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
         .collect())
 }
 
@@ -390,6 +450,8 @@ mod tests {
             iterations: 3,
             sweeps: 2,
             converged: true,
+            energy_reduced: None,
+            cut_fraction: None,
             wall_seconds: 0.5,
             host: "h".into(),
             threads: 2,

@@ -14,7 +14,7 @@ use std::path::Path;
 pub const TABLE_FORMAT: &str = "kiln-cells/1";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
@@ -50,6 +50,8 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("iterations", |r: &Row| r.record.iterations),
         col!("sweeps", |r: &Row| r.record.sweeps),
         col!("converged", |r: &Row| r.record.converged),
+        col!("energy_reduced", |r: &Row| r.record.energy_reduced),
+        col!("cut_fraction", |r: &Row| r.record.cut_fraction),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),

@@ -5,6 +5,7 @@ mod util;
 
 mod bad_input;
 mod cluster;
+mod families;
 mod fitting;
 mod hostile;
 mod numbers;

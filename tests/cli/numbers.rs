@@ -2,7 +2,7 @@
 
 use kiln::algo::{AlgoSpec, anneal, descent};
 use kiln::cell::Canon;
-use kiln::model::{Couplings, Family, ModelSpec};
+use kiln::model::{Couplings, ModelSpec};
 use kiln::rng::{Purpose, stream};
 
 /// Parisi value for SK, lim max H/n: 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137
@@ -10,10 +10,7 @@ use kiln::rng::{Purpose, stream};
 const PARISI: f64 = 0.7631667;
 
 fn sk(couplings: Couplings) -> ModelSpec {
-    ModelSpec {
-        family: Family::Sk,
-        couplings,
-    }
+    ModelSpec::sk(couplings)
 }
 
 fn id(tag: &str, i: u64) -> [u8; 32] {

@@ -1,0 +1,124 @@
+//! Mixed p-spin models: H = Σ_p H_p with ξ(q) = Σ_p c_p² q^p, on the hypercube {±1}^n or on
+//! the sphere {x : ‖x‖² = n}.
+//!
+//! The p = 2 term is a dense symmetric matrix A = sqrt(2c_2²)·J/√n (the SK sampler, same
+//! streams: with c_2² = 1/2 it is bit-for-bit the `sk` family), H_2 = ½ xᵀAx; each p ≥ 3 term
+//! is a [`Tensor`] over sorted tuples. Every sum runs over distinct indices (the diagonal
+//! convention of [`super::tensor`]), so E[H(σ)H(σ')] = n·ξ(R) up to a relative O(p²/n).
+
+use super::Couplings;
+use super::sk::{self, Dense};
+use super::tensor::{Tensor, Val};
+use crate::rng::Id;
+use crate::theory::Mixture;
+
+/// A sampled mixed instance.
+pub struct Mixed {
+    n: usize,
+    dense: Option<Dense>,
+    tensors: Vec<Tensor>,
+}
+
+impl Mixed {
+    pub fn sample(n: usize, xi: &Mixture, c: Couplings, instance: &Id, epsilon: f64) -> Mixed {
+        let mut dense = None;
+        let mut tensors = Vec::new();
+        for &(p, c2) in &xi.terms {
+            if c2 == 0.0 {
+                continue;
+            }
+            if p == 2 {
+                dense = Some(sk::sample_weighted(n, c, c2, instance, epsilon));
+            } else {
+                tensors.push(Tensor::sample(n, p as usize, c2, c, instance, epsilon));
+            }
+        }
+        Mixed { n, dense, tensors }
+    }
+
+    pub fn n(&self) -> usize {
+        self.n
+    }
+
+    /// The p = 2 part, if any.
+    pub fn dense(&self) -> Option<&Dense> {
+        self.dense.as_ref()
+    }
+
+    /// Whether H is quadratic (only a p = 2 term).
+    pub fn is_quadratic(&self) -> bool {
+        self.tensors.is_empty() && self.dense.is_some()
+    }
+
+    /// H(x) and ∇H(x) (with distinct-index sums the gradient at ±1 points is the local field).
+    pub fn value_grad<T: Val>(&self, x: &[T], g: &mut [f64]) -> f64 {
+        g.iter_mut().for_each(|v| *v = 0.0);
+        let mut e = 0.0;
+        if let Some(d) = &self.dense {
+            let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
+            d.matvec(&xf, g);
+            e += 0.5 * xf.iter().zip(g.iter()).map(|(a, b)| a * b).sum::<f64>();
+        }
+        for t in &self.tensors {
+            e += t.accumulate(x, g);
+        }
+        e
+    }
+
+    /// H(x).
+    pub fn value<T: Val>(&self, x: &[T]) -> f64 {
+        let mut e = 0.0;
+        if let Some(d) = &self.dense {
+            let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
+            let mut g = vec![0.0; self.n];
+            d.matvec(&xf, &mut g);
+            e += 0.5 * xf.iter().zip(&g).map(|(a, b)| a * b).sum::<f64>();
+        }
+        for t in &self.tensors {
+            e += t.energy(x);
+        }
+        e
+    }
+
+    /// Relative cost of one spin flip (entries touched).
+    pub fn flip_cost(&self) -> f64 {
+        let n = self.n as f64;
+        let mut c = if self.dense.is_some() { n } else { 0.0 };
+        for t in &self.tensors {
+            c += super::tensor::tuples(self.n as u64 - 1, t.p() as u32 - 1) as f64;
+        }
+        c.max(1.0)
+    }
+}
+
+impl super::Cube for Mixed {
+    fn n(&self) -> usize {
+        self.n
+    }
+    fn fields(&self, s: &[i8], h: &mut [f64]) {
+        match &self.dense {
+            Some(d) => d.fields(s, h),
+            None => h.iter_mut().for_each(|v| *v = 0.0),
+        }
+        for t in &self.tensors {
+            t.accumulate(s, h);
+        }
+    }
+    fn energy(&self, s: &[i8]) -> f64 {
+        let mut e = self.dense.as_ref().map_or(0.0, |d| d.energy(s));
+        for t in &self.tensors {
+            e += t.energy(s);
+        }
+        e
+    }
+    #[inline]
+    fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
+        for t in &self.tensors {
+            t.flip_update(s, h, k);
+        }
+        match &self.dense {
+            Some(d) => d.flip(s, h, k),
+            None => s[k] = -s[k],
+        }
+    }
+}
