@@ -272,3 +272,131 @@ fn bad_arguments_exit_2() {
     assert_eq!(o.status.code(), Some(2));
     assert!(!w.path().join("results").exists());
 }
+
+/// A spec for one family: the [model] body and the sizes.
+fn family_spec(model: &str, sizes: &str, algorithm: &str) -> String {
+    format!(
+        "[experiment]\nname = \"fam\"\n\n[model]\n{model}\n\n[sweep]\nsizes = {sizes}\nseeds = 2\n\n[[algorithm]]\n{algorithm}\n"
+    )
+}
+
+#[test]
+fn family_keys_are_required_and_refused_where_they_do_not_apply() {
+    refuse(
+        &family_spec("family = \"cube\"", "[16]", "kind = \"descent\""),
+        &[
+            "line 5",
+            "key `model.xi`",
+            "the `cube` family needs `xi`",
+            "xi = {",
+        ],
+    );
+    refuse(
+        &family_spec("family = \"sk\"\ndegree = 3", "[16]", "kind = \"descent\""),
+        &[
+            "line 6",
+            "key `model.degree`",
+            "does not apply to the `sk` family",
+        ],
+    );
+    refuse(
+        &family_spec("family = \"regular\"", "[16]", "kind = \"descent\""),
+        &["key `model.degree`", "needs `degree`"],
+    );
+    refuse(
+        &family_spec(
+            "family = \"lattice\"\ndimension = 7",
+            "[8]",
+            "kind = \"descent\"",
+        ),
+        &[
+            "line 6",
+            "key `model.dimension`",
+            "dimension 7 is not supported",
+        ],
+    );
+    refuse(
+        &family_spec(
+            "family = \"cube\"\nxi = { 1 = 0.5 }",
+            "[16]",
+            "kind = \"descent\"",
+        ),
+        &["line 6", "key `model.xi.1`", "`1` is not a degree p"],
+    );
+    refuse(
+        &family_spec(
+            "family = \"cube\"\nxi = { 3 = -1.0 }",
+            "[16]",
+            "kind = \"descent\"",
+        ),
+        &["key `model.xi.3`", "not a number ≥ 0"],
+    );
+}
+
+#[test]
+fn family_sizes_and_couplings_are_checked() {
+    refuse(
+        &family_spec(
+            "family = \"sk\"\ncouplings = \"cut\"",
+            "[16]",
+            "kind = \"descent\"",
+        ),
+        &[
+            "line 6",
+            "key `model.couplings`",
+            "`cut` does not apply to the `sk` family",
+        ],
+    );
+    refuse(
+        &family_spec(
+            "family = \"regular\"\ndegree = 3",
+            "[15]",
+            "kind = \"descent\"",
+        ),
+        &["key `sweep.sizes`", "n·d = 15·3 is odd", "even n"],
+    );
+    refuse(
+        &family_spec(
+            "family = \"lattice\"\ndimension = 2",
+            "[2]",
+            "kind = \"descent\"",
+        ),
+        &["key `sweep.sizes`", "side length L = 2 is too small"],
+    );
+    refuse(
+        &family_spec(
+            "family = \"cube\"\nxi = { 4 = 1.0 }",
+            "[3]",
+            "kind = \"descent\"",
+        ),
+        &["key `sweep.sizes`", "smaller than the largest degree p = 4"],
+    );
+}
+
+#[test]
+fn algorithms_are_matched_to_families() {
+    refuse(
+        &family_spec(
+            "family = \"sphere\"\nxi = { 3 = 1.0 }",
+            "[16]",
+            "kind = \"descent\"",
+        ),
+        &[
+            "key `algorithm[1].kind`",
+            "`descent` cannot run on the `sphere` family",
+            "kinds for this family: `gradient`",
+        ],
+    );
+    refuse(
+        &family_spec(
+            "family = \"cube\"\nxi = { 3 = 1.0 }",
+            "[16]",
+            "kind = \"spectral\"",
+        ),
+        &["`spectral` cannot run on the `cube` family", "quadratic"],
+    );
+    refuse(
+        &family_spec("family = \"sk\"", "[16]", "kind = \"gradient\""),
+        &["`gradient` cannot run on the `sk` family"],
+    );
+}

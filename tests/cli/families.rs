@@ -2,23 +2,13 @@
 //! of each, checked against their sources, and every example spec run end to end.
 
 use crate::util::{Work, stderr};
+use crate::util::{id, mean_se};
 use kiln::algo::{AlgoSpec, exhaustive, spectral};
-use kiln::cell::Canon;
 use kiln::model::sparse::{self, Graph};
 use kiln::model::{Couplings, Family, Instance, ModelSpec};
 use kiln::rng::{Purpose, stream};
 use kiln::theory::Mixture;
 use std::collections::HashSet;
-
-fn id(tag: &str, i: u64) -> [u8; 32] {
-    Canon::map().with("t", tag).with("i", i).hash("test")
-}
-
-fn mean_se(xs: &[f64]) -> (f64, f64) {
-    let m = xs.iter().sum::<f64>() / xs.len() as f64;
-    let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64;
-    (m, (v / xs.len() as f64).sqrt())
-}
 
 fn model(family: Family, couplings: Couplings) -> ModelSpec {
     let mut m = ModelSpec::sk(couplings);

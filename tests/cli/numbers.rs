@@ -1,7 +1,7 @@
 //! Check values for the numbers on SK, each with its source beside the assertion.
 
+use crate::util::{id, mean_se};
 use kiln::algo::{AlgoSpec, anneal, descent};
-use kiln::cell::Canon;
 use kiln::model::{Couplings, ModelSpec};
 use kiln::rng::{Purpose, stream};
 
@@ -11,16 +11,6 @@ const PARISI: f64 = 0.7631667;
 
 fn sk(couplings: Couplings) -> ModelSpec {
     ModelSpec::sk(couplings)
-}
-
-fn id(tag: &str, i: u64) -> [u8; 32] {
-    Canon::map().with("t", tag).with("i", i).hash("test")
-}
-
-fn mean_se(xs: &[f64]) -> (f64, f64) {
-    let m = xs.iter().sum::<f64>() / xs.len() as f64;
-    let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64;
-    (m, (v / xs.len() as f64).sqrt())
 }
 
 /// E[H(σ)²]/n = ½ (n−1)/n for a fixed σ: H is a sum of n(n−1)/2 independent terms of

@@ -85,3 +85,18 @@ pub fn counts(v: &serde_json::Value) -> (u64, u64) {
 pub fn stderr(o: &Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
+
+/// A test identity (an instance or run id) named by a tag and an index.
+pub fn id(tag: &str, i: u64) -> [u8; 32] {
+    kiln::cell::Canon::map()
+        .with("t", tag)
+        .with("i", i)
+        .hash("test")
+}
+
+/// Mean and its standard error.
+pub fn mean_se(xs: &[f64]) -> (f64, f64) {
+    let m = xs.iter().sum::<f64>() / xs.len() as f64;
+    let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64;
+    (m, (v / xs.len() as f64).sqrt())
+}
