@@ -10,8 +10,8 @@ use super::{StoreError, write_atomic};
 use polars::prelude::*;
 use std::path::Path;
 
-/// Version of the table layout.
-pub const TABLE_FORMAT: &str = "kiln-cells/1";
+/// Version of the table layout (2: `energy_reduced` and `cut_fraction` added).
+pub const TABLE_FORMAT: &str = "kiln-cells/2";
 
 /// The energy convention, written into the file's metadata and the README.
 pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
