@@ -11,6 +11,16 @@ pub struct Experiment {
     pub name: String,
     pub dir: PathBuf,
     pub fit: FitSettings,
+    /// The model, when the spec is known (given, built in, or recorded in the manifest).
+    pub model: Option<crate::model::ModelSpec>,
+}
+
+/// The spec recorded in a results folder's manifest, if it parses.
+fn manifest_spec(dir: &Path) -> Option<crate::spec::Spec> {
+    let text = std::fs::read_to_string(dir.join("manifest.toml")).ok()?;
+    let v: toml::Table = toml::from_str(&text).ok()?;
+    let spec = v.get("spec")?.as_str()?;
+    crate::spec::parse(spec, &dir.join("manifest.toml").display().to_string()).ok()
 }
 
 impl Experiment {
@@ -26,6 +36,7 @@ impl Experiment {
                     .to_string(),
                 dir: p.clone(),
                 fit: FitSettings::default(),
+                model: manifest_spec(p).map(|s| s.model),
             },
             Some(p) => {
                 let s = crate::spec::load(p)?;
@@ -33,6 +44,7 @@ impl Experiment {
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,
+                    model: Some(s.model),
                 }
             }
             None => {
@@ -41,6 +53,7 @@ impl Experiment {
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,
+                    model: Some(s.model),
                 }
             }
         })

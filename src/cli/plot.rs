@@ -27,6 +27,10 @@ pub struct PlotArgs {
     /// Correction exponent of the energy plot's x axis and fit. Default: 2/3.
     #[arg(long, value_name = "X", default_value_t = 2.0 / 3.0)]
     pub omega: f64,
+    /// Cache folder (theory solutions are cached under `<cache>/theory`). Default:
+    /// `<results>/.cache`.
+    #[arg(long, value_name = "DIR")]
+    pub cache: Option<PathBuf>,
     /// Figure width: `one` column (3.4 in) or `two` columns (7 in).
     #[arg(long, value_name = "one|two", default_value = "one")]
     pub width: String,
@@ -35,17 +39,55 @@ pub struct PlotArgs {
     pub json: bool,
 }
 
-/// Reference values kiln knows for a model (value, legend, source for the caption), from its
-/// table of published values (`kiln theory` will compute them for any mixture).
-fn reference_lines(family: &str) -> Vec<(f64, String, String)> {
-    match family {
-        "sk" => vec![(
-            0.7631667,
-            "Parisi value 0.76317".into(),
-            "Parisi value 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)), from kiln's table of published values; for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).".into(),
-        )],
+/// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
+/// cube (and SK) the full-RSB Parisi value; on the sphere the ground state and the algorithmic
+/// value. Graph and lattice families have no line.
+fn reference_lines(
+    model: Option<&crate::model::ModelSpec>,
+    cache: &Path,
+) -> anyhow::Result<Vec<(f64, String, String)>> {
+    use crate::model::Family;
+    let Some(m) = model else {
+        return Ok(vec![]);
+    };
+    Ok(match m.family {
+        Family::Sk | Family::Cube => {
+            let full = super::theory::cached_full_rsb(&cache.join("theory"), &m.xi)?;
+            let mut caption = format!(
+                "Parisi value {:.6} computed by kiln: full-RSB minimisation of the Auffinger–Chen functional (arXiv:1606.05335) on {} q-intervals.",
+                full.value,
+                full.m.len()
+            );
+            if m.xi == crate::theory::Mixture::sk() {
+                caption += " Published: 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)); for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).";
+            }
+            vec![(
+                full.value,
+                format!("Parisi value {:.5}", full.value),
+                caption,
+            )]
+        }
+        Family::Sphere => {
+            let (gs, ..) = crate::theory::sphere::ground_state(&m.xi);
+            let (alg, equal) = crate::theory::sphere::algorithmic(&m.xi);
+            let mut v = vec![(
+                gs,
+                format!("ground state {gs:.4}"),
+                format!(
+                    "Ground state {gs:.6} from kiln's one-step Crisanti–Sommers solution (Crisanti & Sommers 1992; Chen & Sen 2017)."
+                ),
+            )];
+            if !equal || (alg - gs).abs() > 1e-6 {
+                v.push((
+                    alg,
+                    format!("algorithmic {alg:.4}"),
+                    format!("Algorithmic value ∫₀¹ √ξ''(q) dq = {alg:.6} computed by kiln (Subag, arXiv:1812.04588)."),
+                ));
+            }
+            v
+        }
         _ => vec![],
-    }
+    })
 }
 
 /// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
@@ -67,6 +109,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         return Err(InputError(format!("--omega {}: give a positive number", a.omega)).into());
     }
     let table_path = exp.table()?;
+    let cache = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
     let spec_hash = exp.spec_hash();
     let cells = super::cells::Cells::read(&table_path)?;
     let (fam, coup, alg) = (&cells.family, &cells.couplings, &cells.algorithm);
@@ -141,7 +184,11 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
                 fit: f,
             });
         }
-        let refs = reference_lines(family);
+        let refs = if *family == exp.model.as_ref().map_or("", |m| m.family.name()) {
+            reference_lines(exp.model.as_ref(), &cache)?
+        } else {
+            vec![]
+        };
         for (v, l, _) in &refs {
             csv += &csv_line(&[
                 format!("\"{l}\""),
@@ -154,7 +201,11 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         }
         let caption = format!(
             "{} ({} couplings): mean energy per spin over seeds at ε = 0, error bars 1 SE; lines: fits e∞ + a n^-ω with ω = {:.3} and 1σ bands; points at n^-ω = 0: extrapolations. {}",
-            family.to_uppercase(),
+            if family == "sk" {
+                "SK".to_string()
+            } else {
+                family.to_string()
+            },
             couplings,
             a.omega,
             refs.iter()

@@ -46,14 +46,14 @@ pub struct Steps {
 }
 
 /// Ψ on a uniform grid, evaluated anywhere by cubic interpolation.
-struct Grid {
-    x0: f64,
-    dx: f64,
-    v: Vec<f64>,
+pub(crate) struct Grid {
+    pub(crate) x0: f64,
+    pub(crate) dx: f64,
+    pub(crate) v: Vec<f64>,
 }
 
 impl Grid {
-    fn at(&self, x: f64) -> f64 {
+    pub(crate) fn at(&self, x: f64) -> f64 {
         let n = self.v.len();
         let t = (x - self.x0) / self.dx;
         if t <= 0.0 {
@@ -102,24 +102,7 @@ pub fn functional(xi: &Mixture, steps: &Steps, s: &Settings, rule: &[(f64, f64)]
     let mut cur = Grid {
         x0: -half,
         dx,
-        v: xs
-            .iter()
-            .map(|&x| {
-                if aa == 0.0 {
-                    x.abs()
-                } else if m == 0.0 {
-                    x * (1.0 - 2.0 * normal_cdf(-x / aa))
-                        + 2.0 * aa * (-0.5 * (x / aa).powi(2)).exp()
-                            / (2.0 * std::f64::consts::PI).sqrt()
-                } else {
-                    let c = 0.5 * m * m * aa * aa;
-                    let l1 = m * x + c + ln_normal_cdf((x + m * aa * aa) / aa);
-                    let l2 = -m * x + c + ln_normal_cdf((-x + m * aa * aa) / aa);
-                    let mx = l1.max(l2);
-                    (mx + ((l1 - mx).exp() + (l2 - mx).exp()).ln()) / m
-                }
-            })
-            .collect(),
+        v: xs.iter().map(|&x| last_level(x, m, aa)).collect(),
     };
     for j in (0..k - 1).rev() {
         let (m, aa) = (steps.m[j], a[j]);
@@ -151,6 +134,23 @@ pub fn functional(xi: &Mixture, steps: &Steps, s: &Settings, rule: &[(f64, f64)]
         .map(|j| 0.5 * steps.m[j] * (g(qs[j + 1]) - g(qs[j])))
         .sum();
     cur.at(0.0) - penalty
+}
+
+/// The last step from Ψ(1, x) = |x| in closed form: m^{-1} log E exp(m|x + aZ|) (E|x + aZ| for
+/// m = 0).
+pub(crate) fn last_level(x: f64, m: f64, aa: f64) -> f64 {
+    if aa == 0.0 {
+        x.abs()
+    } else if m == 0.0 {
+        x * (1.0 - 2.0 * normal_cdf(-x / aa))
+            + 2.0 * aa * (-0.5 * (x / aa).powi(2)).exp() / (2.0 * std::f64::consts::PI).sqrt()
+    } else {
+        let c = 0.5 * m * m * aa * aa;
+        let l1 = m * x + c + ln_normal_cdf((x + m * aa * aa) / aa);
+        let l2 = -m * x + c + ln_normal_cdf((-x + m * aa * aa) / aa);
+        let mx = l1.max(l2);
+        (mx + ((l1 - mx).exp() + (l2 - mx).exp()).ln()) / m
+    }
 }
 
 /// Replica-symmetric value at zero temperature: γ ≡ 0, E|√ξ'(1) Z| = √(2ξ'(1)/π).

@@ -6,6 +6,7 @@
 //! SK is ξ(q) = q²/2. Values are lim max H/n (maximisation).
 
 pub mod cube;
+pub mod full;
 pub mod quad;
 pub mod sphere;
 pub mod temperature;

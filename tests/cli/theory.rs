@@ -13,22 +13,102 @@ fn theory_for_the_default_model() {
     // One-step RSB ≈ 0.7652 (Parisi 1979/1980; from memory, shared references).
     let one = v["cube"]["rsb"][0]["value"].as_f64().unwrap();
     assert!((one - 0.7652).abs() < 5e-4, "{one}");
+    // Full RSB: the Parisi value 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002),
+    // arXiv:cond-mat/0111037) to 1e-5, and below the one-step value (k-step values decrease
+    // towards it).
+    let full = v["cube"]["full_rsb"]["value"].as_f64().unwrap();
+    assert!((full - 0.7631667).abs() < 1e-5, "full RSB {full}");
+    assert!(full < one - 1e-3, "full {full} vs 1RSB {one}");
+    eprintln!(
+        "full RSB {full:.7} in {:.1} s",
+        v["cube"]["full_rsb"]["seconds"].as_f64().unwrap()
+    );
     // High temperature: log 2 + β²/4 (Aizenman, Lebowitz & Ruelle 1987; from memory).
     let p = v["temperature_rs"][0]["free_energy"].as_f64().unwrap();
     assert!((p - (std::f64::consts::LN_2 + 0.0625)).abs() < 1e-10);
     // The order parameter table and the cached solution.
     let csv = std::fs::read_to_string(w.path().join("results/default/theory.csv")).unwrap();
     assert!(csv.lines().any(|l| l.starts_with("1rsb,1,")), "{csv}");
+    assert_eq!(
+        csv.lines().filter(|l| l.starts_with("full,16,")).count(),
+        16
+    );
     let cached: Vec<_> = std::fs::read_dir(w.path().join("results/.cache/theory"))
         .unwrap()
         .collect();
-    assert_eq!(cached.len(), 1);
+    assert_eq!(cached.len(), 2, "the 1RSB and the full-RSB solutions");
     // A second run reads the cache and reports the same numbers.
     let o = w.kiln(&["theory", "--k", "1", "--json"]);
     let again: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(
         again["cube"]["rsb"][0]["value"],
         v["cube"]["rsb"][0]["value"]
+    );
+    assert_eq!(
+        again["cube"]["full_rsb"]["value"],
+        v["cube"]["full_rsb"]["value"]
+    );
+}
+
+/// A mixture end to end (ξ(q) = q²/2 + q³/4, our demo choice): the figure of measured
+/// energies of two algorithms carries the Parisi line kiln computes for that ξ (the same number
+/// `kiln theory` prints), and the full-RSB value lies below the k-step ones. On the sphere
+/// (pure 3-spin) the lines are the ground state and the algorithmic value 2·sqrt(2/3) (Subag,
+/// arXiv:1812.04588).
+#[test]
+fn figures_carry_computed_theory_lines() {
+    let w = Work::new();
+    let cube = w.spec(
+        "mix.toml",
+        "[experiment]\nname = \"mix\"\n[model]\nfamily = \"cube\"\nxi = { 2 = 0.5, 3 = 0.25 }\n[sweep]\nsizes = [16, 24, 32]\nseeds = 3\n[[algorithm]]\nkind = \"descent\"\n[[algorithm]]\nkind = \"anneal\"\nsweeps = 20\n",
+    );
+    w.run_json(&cube, &[]);
+    let o = w.kiln(&["plot", cube.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let o = w.kiln(&["theory", cube.to_str().unwrap(), "--k", "2", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let full = v["cube"]["full_rsb"]["value"].as_f64().unwrap();
+    let two = v["cube"]["rsb"][1]["value"].as_f64().unwrap();
+    let one = v["cube"]["rsb"][0]["value"].as_f64().unwrap();
+    assert!(full < two && two < one, "{full} {two} {one}");
+    let csv = std::fs::read_to_string(
+        w.path()
+            .join("results/mix/figures/energy-cube-gaussian.csv"),
+    )
+    .unwrap();
+    let line: f64 = csv
+        .lines()
+        .find(|l| l.contains(",reference,"))
+        .and_then(|l| l.split(',').nth(4))
+        .and_then(|x| x.parse().ok())
+        .expect("a reference row");
+    assert_eq!(line, full, "{csv}");
+    assert!(csv.lines().filter(|l| l.contains(",mean,")).count() >= 6);
+
+    let sphere = w.spec(
+        "sph.toml",
+        "[experiment]\nname = \"sph\"\n[model]\nfamily = \"sphere\"\nxi = { 3 = 1.0 }\n[sweep]\nsizes = [12, 16]\nseeds = 2\n[[algorithm]]\nkind = \"gradient\"\nstep = 0.2\n",
+    );
+    w.run_json(&sphere, &[]);
+    let o = w.kiln(&["plot", sphere.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(
+        w.path()
+            .join("results/sph/figures/energy-sphere-gaussian.csv"),
+    )
+    .unwrap();
+    let refs: Vec<f64> = csv
+        .lines()
+        .filter(|l| l.contains(",reference,"))
+        .filter_map(|l| l.split(',').nth(4)?.parse().ok())
+        .collect();
+    assert_eq!(refs.len(), 2, "{csv}");
+    // Crisanti & Sommers (1992): 1.657; Subag (2018): 2·sqrt(2/3).
+    assert!((refs[0] - 1.657).abs() < 1e-3, "{refs:?}");
+    assert!(
+        (refs[1] - 2.0 * (2.0f64 / 3.0).sqrt()).abs() < 1e-6,
+        "{refs:?}"
     );
 }
 
