@@ -17,7 +17,7 @@ pub struct Eigen {
 }
 
 /// Eigenvalues (ascending) and eigenvectors (columns of `z`, row-major k×k) of the symmetric
-/// tridiagonal matrix with diagonal `d` and off-diagonal `e` (e[i] = T[i][i+1]).
+/// tridiagonal matrix with diagonal `d` and off-diagonal `e` (`e[i] = T[i][i+1]`).
 pub fn tridiagonal_eigen(d: &[f64], e: &[f64]) -> Result<(Vec<f64>, Vec<f64>), String> {
     let n = d.len();
     let mut d = d.to_vec();

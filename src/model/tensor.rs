@@ -205,7 +205,7 @@ impl Tensor {
         e
     }
 
-    /// Fields update for flipping ±1 spin k (s[k] still holds the old value): every tuple
+    /// Fields update for flipping ±1 spin k (`s[k]` still holds the old value): every tuple
     /// containing k changes sign, so h_j += −2·a·Π_{T∖{j}} σ for each other member j.
     pub fn flip_update(&self, s: &[i8], h: &mut [f64], k: usize) {
         if self.p == 3 {

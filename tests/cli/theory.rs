@@ -26,6 +26,11 @@ fn theory_for_the_default_model() {
     // High temperature: log 2 + β²/4 (Aizenman, Lebowitz & Ruelle 1987; from memory).
     let p = v["temperature_rs"][0]["free_energy"].as_f64().unwrap();
     assert!((p - (std::f64::consts::LN_2 + 0.0625)).abs() < 1e-10);
+    let p = v["temperature"][0]["free_energy"].as_f64().unwrap();
+    assert!(
+        (p - (std::f64::consts::LN_2 + 0.0625)).abs() < 1e-6,
+        "Parisi at β = 0.5: {p}"
+    );
     // The order parameter table and the cached solution.
     let csv = std::fs::read_to_string(w.path().join("results/default/theory.csv")).unwrap();
     assert!(csv.lines().any(|l| l.starts_with("1rsb,1,")), "{csv}");
