@@ -50,6 +50,7 @@ pub fn run<M: Cube>(_p: &Params, d: &M) -> Output {
             iterations: steps,
             sweeps: 1,
             converged: true,
+            relaxation: None,
         },
     }
 }

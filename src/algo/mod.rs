@@ -7,7 +7,9 @@ pub mod anneal;
 pub mod descent;
 pub mod exhaustive;
 pub mod gradient;
+pub mod lowrank;
 pub mod spectral;
+pub mod tempering;
 
 use crate::cell::Canon;
 use crate::model::Instance;
@@ -22,6 +24,8 @@ pub struct Info {
     pub sweeps: u64,
     /// Whether the algorithm reached its stopping criterion (not a budget cap).
     pub converged: bool,
+    /// Value per spin of a relaxation the algorithm solved before rounding (lowrank).
+    pub relaxation: Option<f64>,
 }
 
 /// The result of one run.
@@ -55,6 +59,8 @@ pub enum AlgoSpec {
     Exhaustive(exhaustive::Params),
     Spectral(spectral::Params),
     Gradient(gradient::Params),
+    Tempering(tempering::Params),
+    Lowrank(lowrank::Params),
 }
 
 impl AlgoSpec {
@@ -68,6 +74,8 @@ impl AlgoSpec {
             AlgoSpec::Exhaustive(_) => "exhaustive",
             AlgoSpec::Spectral(_) => "spectral",
             AlgoSpec::Gradient(_) => "gradient",
+            AlgoSpec::Tempering(_) => "tempering",
+            AlgoSpec::Lowrank(_) => "lowrank",
         }
     }
 
@@ -78,6 +86,8 @@ impl AlgoSpec {
             AlgoSpec::Exhaustive(_) => exhaustive::REVISION,
             AlgoSpec::Spectral(_) => spectral::REVISION,
             AlgoSpec::Gradient(_) => gradient::REVISION,
+            AlgoSpec::Tempering(_) => tempering::REVISION,
+            AlgoSpec::Lowrank(_) => lowrank::REVISION,
         }
     }
 
@@ -92,6 +102,8 @@ impl AlgoSpec {
             AlgoSpec::Exhaustive(p) => p.canon(c),
             AlgoSpec::Spectral(p) => p.canon(c),
             AlgoSpec::Gradient(p) => p.canon(c),
+            AlgoSpec::Tempering(p) => p.canon(c),
+            AlgoSpec::Lowrank(p) => p.canon(c),
         }
     }
 
@@ -108,6 +120,13 @@ impl AlgoSpec {
             AlgoSpec::Spectral(p) => 8 * n * (p.basis.max(2) as u128 + 4),
             // point, gradient, spins.
             AlgoSpec::Gradient(_) => n * (8 + 8 + 8 + 1),
+            // spins and fields per replica, plus the best state.
+            AlgoSpec::Tempering(p) => n * (9 * p.replicas.max(2) as u128 + 10),
+            // the n×k factor (k ≤ sqrt(2n) + 1 by default) and the point.
+            AlgoSpec::Lowrank(p) => {
+                let k = p.rank_for(n as usize) as u128;
+                8 * n * (k + 2) + n
+            }
             // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
             _ => n * (1 + 8 + 4 + 1),
         }
@@ -123,6 +142,8 @@ impl AlgoSpec {
             AlgoSpec::Exhaustive(_) => flip * 2f64.powf(n - 1.0),
             AlgoSpec::Spectral(_) => 200.0 * n * flip,
             AlgoSpec::Gradient(_) => 300.0 * n * flip,
+            AlgoSpec::Tempering(p) => n * flip * 0.3 * (p.sweeps * p.replicas) as f64,
+            AlgoSpec::Lowrank(p) => n * flip * p.rank_for(n as usize) as f64 * 50.0,
         }
     }
 
@@ -130,10 +151,13 @@ impl AlgoSpec {
     pub fn unsupported(&self, m: &crate::model::ModelSpec) -> Option<&'static str> {
         let quadratic = m.xi.terms.iter().all(|&(p, _)| p == 2);
         match self {
-            AlgoSpec::Descent(_) | AlgoSpec::Anneal(_) | AlgoSpec::Exhaustive(_) => {
-                (!m.family.is_cube())
-                    .then_some("it moves ±1 spins; the sphere family has real coordinates")
-            }
+            AlgoSpec::Descent(_)
+            | AlgoSpec::Anneal(_)
+            | AlgoSpec::Exhaustive(_)
+            | AlgoSpec::Tempering(_) => (!m.family.is_cube())
+                .then_some("it moves ±1 spins; the sphere family has real coordinates"),
+            AlgoSpec::Lowrank(_) => (!m.family.is_cube() || (!quadratic && !m.family.is_sparse()))
+                .then_some("it relaxes a quadratic H on the cube (sk, a graph, or cube with xi = { 2 = … })"),
             AlgoSpec::Spectral(_) => (!quadratic && !m.family.is_sparse()).then_some(
                 "it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })",
             ),
@@ -151,6 +175,9 @@ impl AlgoSpec {
             (AlgoSpec::Anneal(p), Instance::Dense(d)) => Ok(anneal::run(p, d, rng)),
             (AlgoSpec::Anneal(p), Instance::Mixed(d)) => Ok(anneal::run(p, d, rng)),
             (AlgoSpec::Anneal(p), Instance::Sparse(d)) => Ok(anneal::run(p, d, rng)),
+            (AlgoSpec::Tempering(p), Instance::Dense(d)) => Ok(tempering::run(p, d, rng)),
+            (AlgoSpec::Tempering(p), Instance::Mixed(d)) => Ok(tempering::run(p, d, rng)),
+            (AlgoSpec::Tempering(p), Instance::Sparse(d)) => Ok(tempering::run(p, d, rng)),
             (AlgoSpec::Exhaustive(p), Instance::Dense(d)) => Ok(exhaustive::run(p, d)),
             (AlgoSpec::Exhaustive(p), Instance::Mixed(d)) => Ok(exhaustive::run(p, d)),
             (AlgoSpec::Exhaustive(p), Instance::Sparse(d)) => Ok(exhaustive::run(p, d)),
@@ -170,8 +197,28 @@ impl AlgoSpec {
                 }
             }
             (AlgoSpec::Gradient(p), Instance::Sphere(m)) => Ok(gradient::run(p, m, rng)),
+            (AlgoSpec::Lowrank(p), Instance::Dense(d)) => {
+                Ok(with_relaxation(lowrank::run(p, d, rng)))
+            }
+            (AlgoSpec::Lowrank(p), Instance::Sparse(g)) => {
+                Ok(with_relaxation(lowrank::run(p, g, rng)))
+            }
+            (AlgoSpec::Lowrank(p), Instance::Mixed(m)) => match (m.dense(), m.is_quadratic()) {
+                (Some(d), true) => Ok(with_relaxation(lowrank::run(p, d, rng))),
+                _ => Err(AlgoError::Unsupported {
+                    kind,
+                    why: "H is not quadratic",
+                }),
+            },
+            (AlgoSpec::Lowrank(_), Instance::Sphere(_)) => Err(AlgoError::Unsupported {
+                kind,
+                why: "the relaxation is of the cube",
+            }),
             (
-                AlgoSpec::Descent(_) | AlgoSpec::Anneal(_) | AlgoSpec::Exhaustive(_),
+                AlgoSpec::Descent(_)
+                | AlgoSpec::Anneal(_)
+                | AlgoSpec::Exhaustive(_)
+                | AlgoSpec::Tempering(_),
                 Instance::Sphere(_),
             ) => Err(AlgoError::Unsupported {
                 kind,
@@ -183,6 +230,11 @@ impl AlgoSpec {
             }),
         }
     }
+}
+
+fn with_relaxation((mut out, value): (Output, f64)) -> Output {
+    out.info.relaxation = Some(value);
+    out
 }
 
 /// A uniformly random start in {±1}^n.

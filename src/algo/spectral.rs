@@ -71,6 +71,7 @@ pub fn run(
                 iterations: e.matvecs,
                 sweeps: 0,
                 converged: e.converged,
+                relaxation: None,
             },
         },
         e.value,

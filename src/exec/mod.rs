@@ -423,6 +423,7 @@ fn compute_cell(
         converged: false,
         energy_reduced: None,
         cut_fraction: None,
+        relaxation: None,
         wall_seconds: 0.0,
         host: prov.host.clone(),
         threads: prov.threads,
@@ -439,21 +440,23 @@ fn compute_cell(
         record.energy_perturbed = energy;
         record.energy_reduced = reduced;
         record.cut_fraction = cut;
+        record.relaxation = out.info.relaxation;
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
     } else {
         let reference = load_reference(spec, cell, cache, damaged)?;
-        let (reference, reduced, cut) = match reference {
+        let (reference, reduced, cut, relaxation) = match reference {
             Some(r) => {
                 let (rd, ct) = (
                     spec.model.reduced_scale().map(|s| r.reference.energy / s),
                     r.cut,
                 );
-                (r.reference, rd, ct)
+                (r.reference, rd, ct, r.relaxation)
             }
             None => {
                 let (out, energy, (rd, ct)) = run_reference(spec, cell)?;
+                let relaxation = out.info.relaxation;
                 (
                     Reference {
                         spins: out.spins,
@@ -462,6 +465,7 @@ fn compute_cell(
                     },
                     rd,
                     ct,
+                    relaxation,
                 )
             }
         };
@@ -474,6 +478,7 @@ fn compute_cell(
         record.energy_perturbed = energy_of(spec, &inst, &out);
         record.energy_reduced = reduced;
         record.cut_fraction = cut;
+        record.relaxation = relaxation;
         match (needs_point(spec), &reference.point, &out.point) {
             (true, Some(a), Some(b)) => {
                 record.overlap = measure::overlap_points(a, b);
@@ -498,10 +503,11 @@ fn compute_cell(
     Ok(record)
 }
 
-/// A cached reference with the reference record's cut fraction.
+/// A cached reference with the reference record's cut fraction and relaxation value.
 struct CachedReference {
     reference: Reference,
     cut: Option<f64>,
+    relaxation: Option<f64>,
 }
 
 fn load_reference(
@@ -539,5 +545,6 @@ fn load_reference(
             energy: record.energy,
         },
         cut: record.cut_fraction,
+        relaxation: record.relaxation,
     }))
 }

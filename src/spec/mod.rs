@@ -8,7 +8,7 @@ pub mod error;
 pub mod plan;
 pub mod shard;
 
-use crate::algo::{AlgoSpec, anneal, descent, exhaustive, gradient, spectral};
+use crate::algo::{AlgoSpec, anneal, descent, exhaustive, gradient, lowrank, spectral, tempering};
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
@@ -125,12 +125,22 @@ struct RawAlgorithm {
     step: Option<Spanned<f64>>,
     #[serde(default)]
     max_iterations: Option<Spanned<i64>>,
+    // tempering
+    #[serde(default)]
+    replicas: Option<Spanned<i64>>,
+    // lowrank
+    #[serde(default)]
+    rank: Option<Spanned<i64>>,
+    #[serde(default)]
+    roundings: Option<Spanned<i64>>,
 }
 
 const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
 const ANNEAL_KEYS: &[&str] = &["sweeps", "beta", "quench"];
 const SPECTRAL_KEYS: &[&str] = &["tol", "basis", "max_matvecs"];
 const GRADIENT_KEYS: &[&str] = &["step", "tol", "max_iterations"];
+const TEMPERING_KEYS: &[&str] = &["replicas", "beta", "sweeps"];
+const LOWRANK_KEYS: &[&str] = &["rank", "tol", "max_sweeps", "roundings"];
 /// Largest degree p of a mixture term.
 pub const MAX_P: u32 = 8;
 
@@ -447,6 +457,8 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             "exhaustive" => &[],
             "spectral" => SPECTRAL_KEYS,
             "gradient" => GRADIENT_KEYS,
+            "tempering" => TEMPERING_KEYS,
+            "lowrank" => LOWRANK_KEYS,
             _ => {
                 return Err(loc.at(
                     Some(a.kind.span()),
@@ -540,41 +552,50 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 }
                 AlgoSpec::Gradient(p)
             }
+            "tempering" => {
+                let mut p = tempering::Params::default();
+                if let Some(r) = &a.replicas {
+                    p.replicas = positive(r, loc, &format!("{at}.replicas"), 4096)?.max(2);
+                }
+                if let Some(b) = &a.beta {
+                    p.beta = beta_range(b, loc, &format!("{at}.beta"))?;
+                    if p.beta[0] <= 0.0 {
+                        return Err(loc.at(
+                            Some(b.span()),
+                            format!("{at}.beta"),
+                            "the ladder is geometric: the smallest β must be > 0",
+                            Some("e.g. beta = [0.2, 3.0]".into()),
+                        ));
+                    }
+                }
+                if let Some(sw) = &a.sweeps {
+                    p.sweeps = positive(sw, loc, &format!("{at}.sweeps"), 1_000_000_000)?;
+                }
+                AlgoSpec::Tempering(p)
+            }
+            "lowrank" => {
+                let mut p = lowrank::Params::default();
+                if let Some(r) = &a.rank {
+                    p.rank = positive(r, loc, &format!("{at}.rank"), 100_000)?;
+                }
+                if let Some(t) = &a.tol {
+                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
+                }
+                if let Some(m) = &a.max_sweeps {
+                    p.max_sweeps = positive(m, loc, &format!("{at}.max_sweeps"), 1_000_000_000)?;
+                }
+                if let Some(r) = &a.roundings {
+                    p.roundings = positive(r, loc, &format!("{at}.roundings"), 1_000_000)?;
+                }
+                AlgoSpec::Lowrank(p)
+            }
             _ => {
                 let mut p = anneal::Params::default();
                 if let Some(s) = &a.sweeps {
                     p.sweeps = positive(s, loc, &format!("{at}.sweeps"), 1_000_000_000)?;
                 }
                 if let Some(b) = &a.beta {
-                    let v = b.get_ref();
-                    let key = format!("{at}.beta");
-                    if v.len() != 2 {
-                        return Err(loc.at(
-                            Some(b.span()),
-                            key,
-                            format!("expected two numbers, got {}", v.len()),
-                            Some("beta = [start, end], e.g. [0.1, 4.0]".into()),
-                        ));
-                    }
-                    if !(v[0].is_finite() && v[1].is_finite() && v[0] >= 0.0) {
-                        return Err(loc.at(
-                            Some(b.span()),
-                            key,
-                            format!("beta = [{}, {}] is not a schedule", v[0], v[1]),
-                            Some("both ends must be finite and the start ≥ 0".into()),
-                        ));
-                    }
-                    if v[1] <= v[0] {
-                        return Err(loc.at(
-                            Some(b.span()),
-                            key,
-                            format!("beta is not increasing: {} then {}", v[0], v[1]),
-                            Some(
-                                "annealing cools: give beta = [start, end] with end > start".into(),
-                            ),
-                        ));
-                    }
-                    p.beta = [v[0], v[1]];
+                    p.beta = beta_range(b, loc, &format!("{at}.beta"))?;
                 }
                 if let Some(q) = &a.quench {
                     p.quench = *q.get_ref();
@@ -709,6 +730,36 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
     Ok(out)
 }
 
+/// `beta = [start, end]`: finite, start ≥ 0, increasing.
+fn beta_range(b: &Spanned<Vec<f64>>, loc: &Locator, key: &str) -> Result<[f64; 2], SpecError> {
+    let v = b.get_ref();
+    if v.len() != 2 {
+        return Err(loc.at(
+            Some(b.span()),
+            key,
+            format!("expected two numbers, got {}", v.len()),
+            Some("beta = [start, end], e.g. [0.1, 4.0]".into()),
+        ));
+    }
+    if !(v[0].is_finite() && v[1].is_finite() && v[0] >= 0.0) {
+        return Err(loc.at(
+            Some(b.span()),
+            key,
+            format!("beta = [{}, {}] is not a schedule", v[0], v[1]),
+            Some("both ends must be finite and the start ≥ 0".into()),
+        ));
+    }
+    if v[1] <= v[0] {
+        return Err(loc.at(
+            Some(b.span()),
+            key,
+            format!("beta is not increasing: {} then {}", v[0], v[1]),
+            Some("annealing cools: give beta = [start, end] with end > start".into()),
+        ));
+    }
+    Ok([v[0], v[1]])
+}
+
 /// The kinds that can run on a model (for hints).
 fn kinds_for(m: &ModelSpec) -> Vec<String> {
     [
@@ -717,6 +768,8 @@ fn kinds_for(m: &ModelSpec) -> Vec<String> {
         AlgoSpec::Exhaustive(Default::default()),
         AlgoSpec::Spectral(Default::default()),
         AlgoSpec::Gradient(Default::default()),
+        AlgoSpec::Tempering(Default::default()),
+        AlgoSpec::Lowrank(Default::default()),
     ]
     .iter()
     .filter(|a| a.unsupported(m).is_none())

@@ -51,6 +51,9 @@ pub struct Record {
     /// Cut edges / all edges of the reference output, for `cut` couplings.
     #[serde(default)]
     pub cut_fraction: Option<f64>,
+    /// Value per spin of the relaxation an algorithm solved before rounding (lowrank).
+    #[serde(default)]
+    pub relaxation: Option<f64>,
     // provenance (not part of the numbers)
     pub wall_seconds: f64,
     pub host: String,
@@ -452,6 +455,7 @@ mod tests {
             converged: true,
             energy_reduced: None,
             cut_fraction: None,
+            relaxation: None,
             wall_seconds: 0.5,
             host: "h".into(),
             threads: 2,

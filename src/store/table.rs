@@ -10,7 +10,7 @@ use super::{StoreError, write_atomic};
 use polars::prelude::*;
 use std::path::Path;
 
-/// Version of the table layout (2: `energy_reduced` and `cut_fraction` added).
+/// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added).
 pub const TABLE_FORMAT: &str = "kiln-cells/2";
 
 /// The energy convention, written into the file's metadata and the README.
@@ -52,6 +52,7 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("converged", |r: &Row| r.record.converged),
         col!("energy_reduced", |r: &Row| r.record.energy_reduced),
         col!("cut_fraction", |r: &Row| r.record.cut_fraction),
+        col!("relaxation", |r: &Row| r.record.relaxation),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),

@@ -3,6 +3,7 @@
 
 mod util;
 
+mod algorithms;
 mod bad_input;
 mod cluster;
 mod families;
