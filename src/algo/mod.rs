@@ -7,6 +7,7 @@ pub mod anneal;
 pub mod descent;
 pub mod exhaustive;
 pub mod gradient;
+pub mod hessian;
 pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
@@ -61,6 +62,7 @@ pub enum AlgoSpec {
     Gradient(gradient::Params),
     Tempering(tempering::Params),
     Lowrank(lowrank::Params),
+    Hessian(hessian::Params),
 }
 
 impl AlgoSpec {
@@ -76,6 +78,7 @@ impl AlgoSpec {
             AlgoSpec::Gradient(_) => "gradient",
             AlgoSpec::Tempering(_) => "tempering",
             AlgoSpec::Lowrank(_) => "lowrank",
+            AlgoSpec::Hessian(_) => "hessian",
         }
     }
 
@@ -88,6 +91,7 @@ impl AlgoSpec {
             AlgoSpec::Gradient(_) => gradient::REVISION,
             AlgoSpec::Tempering(_) => tempering::REVISION,
             AlgoSpec::Lowrank(_) => lowrank::REVISION,
+            AlgoSpec::Hessian(_) => hessian::REVISION,
         }
     }
 
@@ -104,6 +108,7 @@ impl AlgoSpec {
             AlgoSpec::Gradient(p) => p.canon(c),
             AlgoSpec::Tempering(p) => p.canon(c),
             AlgoSpec::Lowrank(p) => p.canon(c),
+            AlgoSpec::Hessian(p) => p.canon(c),
         }
     }
 
@@ -127,6 +132,8 @@ impl AlgoSpec {
                 let k = p.rank_for(n as usize) as u128;
                 8 * n * (k + 2) + n
             }
+            // the dense Hessian, the Lanczos basis (64) and a few vectors.
+            AlgoSpec::Hessian(_) => 8 * n * n + 8 * n * 72,
             // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
             _ => n * (1 + 8 + 4 + 1),
         }
@@ -144,6 +151,7 @@ impl AlgoSpec {
             AlgoSpec::Gradient(_) => 300.0 * n * flip,
             AlgoSpec::Tempering(p) => n * flip * 0.3 * (p.sweeps * p.replicas) as f64,
             AlgoSpec::Lowrank(p) => n * flip * p.rank_for(n as usize) as f64 * 50.0,
+            AlgoSpec::Hessian(p) => p.steps as f64 * (3.0 * n * flip + 60.0 * n * n),
         }
     }
 
@@ -163,6 +171,9 @@ impl AlgoSpec {
             ),
             AlgoSpec::Gradient(_) => (m.family.is_cube())
                 .then_some("projected gradient ascent runs on the sphere family"),
+            AlgoSpec::Hessian(_) => {
+                (m.family.is_cube()).then_some("Hessian ascent runs on the sphere family")
+            }
         }
     }
 
@@ -210,6 +221,11 @@ impl AlgoSpec {
                     why: "H is not quadratic",
                 }),
             },
+            (AlgoSpec::Hessian(p), Instance::Sphere(m)) => hessian::run(p, m, rng),
+            (AlgoSpec::Hessian(_), _) => Err(AlgoError::Unsupported {
+                kind,
+                why: "Hessian ascent runs on the sphere",
+            }),
             (AlgoSpec::Lowrank(_), Instance::Sphere(_)) => Err(AlgoError::Unsupported {
                 kind,
                 why: "the relaxation is of the cube",

@@ -15,6 +15,7 @@ use crate::theory::Mixture;
 /// A sampled mixed instance.
 pub struct Mixed {
     n: usize,
+    xi: Mixture,
     dense: Option<Dense>,
     tensors: Vec<Tensor>,
 }
@@ -33,11 +34,21 @@ impl Mixed {
                 tensors.push(Tensor::sample(n, p as usize, c2, c, instance, epsilon));
             }
         }
-        Mixed { n, dense, tensors }
+        Mixed {
+            n,
+            xi: xi.clone(),
+            dense,
+            tensors,
+        }
     }
 
     pub fn n(&self) -> usize {
         self.n
+    }
+
+    /// The mixture ξ this instance was sampled from.
+    pub fn mixture(&self) -> &Mixture {
+        &self.xi
     }
 
     /// The p = 2 part, if any.
@@ -78,6 +89,21 @@ impl Mixed {
             e += t.energy(x);
         }
         e
+    }
+
+    /// The Hessian ∇²H(x) as a dense row-major n×n matrix (zero diagonal).
+    pub fn hessian(&self, x: &[f64]) -> Vec<f64> {
+        let n = self.n;
+        let mut m = vec![0.0; n * n];
+        if let Some(d) = &self.dense {
+            for i in 0..n {
+                m[i * n..(i + 1) * n].copy_from_slice(d.row(i));
+            }
+        }
+        for t in &self.tensors {
+            t.hessian_add(x, &mut m);
+        }
+        m
     }
 
     /// Relative cost of one spin flip (entries touched).

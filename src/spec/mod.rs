@@ -8,7 +8,9 @@ pub mod error;
 pub mod plan;
 pub mod shard;
 
-use crate::algo::{AlgoSpec, anneal, descent, exhaustive, gradient, lowrank, spectral, tempering};
+use crate::algo::{
+    AlgoSpec, anneal, descent, exhaustive, gradient, hessian, lowrank, spectral, tempering,
+};
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
@@ -133,6 +135,9 @@ struct RawAlgorithm {
     rank: Option<Spanned<i64>>,
     #[serde(default)]
     roundings: Option<Spanned<i64>>,
+    // hessian
+    #[serde(default)]
+    steps: Option<Spanned<i64>>,
 }
 
 const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
@@ -141,6 +146,7 @@ const SPECTRAL_KEYS: &[&str] = &["tol", "basis", "max_matvecs"];
 const GRADIENT_KEYS: &[&str] = &["step", "tol", "max_iterations"];
 const TEMPERING_KEYS: &[&str] = &["replicas", "beta", "sweeps"];
 const LOWRANK_KEYS: &[&str] = &["rank", "tol", "max_sweeps", "roundings"];
+const HESSIAN_KEYS: &[&str] = &["steps", "tol"];
 /// Largest degree p of a mixture term.
 pub const MAX_P: u32 = 8;
 
@@ -459,6 +465,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             "gradient" => GRADIENT_KEYS,
             "tempering" => TEMPERING_KEYS,
             "lowrank" => LOWRANK_KEYS,
+            "hessian" => HESSIAN_KEYS,
             _ => {
                 return Err(loc.at(
                     Some(a.kind.span()),
@@ -588,6 +595,16 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                     p.roundings = positive(r, loc, &format!("{at}.roundings"), 1_000_000)?;
                 }
                 AlgoSpec::Lowrank(p)
+            }
+            "hessian" => {
+                let mut p = hessian::Params::default();
+                if let Some(st) = &a.steps {
+                    p.steps = positive(st, loc, &format!("{at}.steps"), 1_000_000)?;
+                }
+                if let Some(t) = &a.tol {
+                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
+                }
+                AlgoSpec::Hessian(p)
             }
             _ => {
                 let mut p = anneal::Params::default();
@@ -770,6 +787,7 @@ fn kinds_for(m: &ModelSpec) -> Vec<String> {
         AlgoSpec::Gradient(Default::default()),
         AlgoSpec::Tempering(Default::default()),
         AlgoSpec::Lowrank(Default::default()),
+        AlgoSpec::Hessian(Default::default()),
     ]
     .iter()
     .filter(|a| a.unsupported(m).is_none())
