@@ -169,8 +169,7 @@ impl AlgoSpec {
             AlgoSpec::Spectral(_) => (!quadratic && !m.family.is_sparse()).then_some(
                 "it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })",
             ),
-            AlgoSpec::Gradient(_) => (m.family.is_cube())
-                .then_some("projected gradient ascent runs on the sphere family"),
+            AlgoSpec::Gradient(_) => None,
             AlgoSpec::Hessian(_) => {
                 (m.family.is_cube()).then_some("Hessian ascent runs on the sphere family")
             }
@@ -208,6 +207,20 @@ impl AlgoSpec {
                 }
             }
             (AlgoSpec::Gradient(p), Instance::Sphere(m)) => Ok(gradient::run(p, m, rng)),
+            (AlgoSpec::Gradient(p), Instance::Dense(d)) => {
+                Ok(gradient::run_cube(p, d.n(), |x, y| d.matvec(x, y), rng))
+            }
+            (AlgoSpec::Gradient(p), Instance::Sparse(g)) => {
+                Ok(gradient::run_cube(p, g.n(), |x, y| g.matvec(x, y), rng))
+            }
+            (AlgoSpec::Gradient(p), Instance::Mixed(m)) => Ok(gradient::run_cube(
+                p,
+                m.n(),
+                |x, y| {
+                    m.value_grad(x, y);
+                },
+                rng,
+            )),
             (AlgoSpec::Lowrank(p), Instance::Dense(d)) => {
                 Ok(with_relaxation(lowrank::run(p, d, rng)))
             }
@@ -239,10 +252,6 @@ impl AlgoSpec {
             ) => Err(AlgoError::Unsupported {
                 kind,
                 why: "it moves ±1 spins; the sphere has real coordinates",
-            }),
-            (AlgoSpec::Gradient(_), _) => Err(AlgoError::Unsupported {
-                kind,
-                why: "projected gradient ascent runs on the sphere",
             }),
         }
     }

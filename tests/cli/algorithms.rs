@@ -51,6 +51,8 @@ fn no_algorithm_beats_exhaustive_search() {
             ..Default::default()
         }),
         AlgoSpec::Spectral(spectral::Params::default()),
+        AlgoSpec::Gradient(Default::default()),
+        AlgoSpec::Lowrank(Default::default()),
         AlgoSpec::Descent(Default::default()),
         AlgoSpec::Anneal(Default::default()),
     ];

@@ -384,7 +384,7 @@ fn algorithms_are_matched_to_families() {
         &[
             "key `algorithm[1].kind`",
             "`descent` cannot run on the `sphere` family",
-            "kinds for this family: `gradient`",
+            "kinds for this family: `gradient`, `hessian`",
         ],
     );
     refuse(
@@ -396,7 +396,7 @@ fn algorithms_are_matched_to_families() {
         &["`spectral` cannot run on the `cube` family", "quadratic"],
     );
     refuse(
-        &family_spec("family = \"sk\"", "[16]", "kind = \"gradient\""),
-        &["`gradient` cannot run on the `sk` family"],
+        &family_spec("family = \"sk\"", "[16]", "kind = \"hessian\""),
+        &["`hessian` cannot run on the `sk` family"],
     );
 }
