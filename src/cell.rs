@@ -34,6 +34,11 @@ impl Canon {
     }
 
     /// Adds a field to a map (panics on a non-map: a programming error, not user input).
+    /// Adds the entry only when `cond` holds (so an option at its default changes no hash).
+    pub fn with_if(self, cond: bool, key: &str, value: impl Into<Canon>) -> Self {
+        if cond { self.with(key, value) } else { self }
+    }
+
     pub fn with(mut self, key: &str, value: impl Into<Canon>) -> Self {
         match &mut self {
             Canon::Map(m) => {

@@ -43,7 +43,7 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
             let rows: Vec<&Record> = plan
                 .cells
                 .iter()
-                .filter(|c| c.algo == ai && c.n == n)
+                .filter(|c| c.algo == ai && c.n == n && c.replica == 0)
                 .filter_map(|c| records.get(&c.key))
                 .collect();
             let energies: Vec<f64> = rows

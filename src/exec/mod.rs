@@ -362,7 +362,7 @@ fn run_reference(
 ) -> Result<(crate::algo::Output, f64, Extras), CellError> {
     let n = cell.n as usize;
     let inst = spec.model.sample(n, &cell.instance, 0.0);
-    let mut rng = stream(&cell.run, Purpose::Algorithm, 0);
+    let mut rng = stream(&cell.run, Purpose::Algorithm, cell.replica as u64);
     let out = spec.algorithms[cell.algo]
         .algo
         .run(&inst, &mut rng)
@@ -424,6 +424,7 @@ fn compute_cell(
         energy_reduced: None,
         cut_fraction: None,
         relaxation: None,
+        replica: cell.replica,
         wall_seconds: 0.0,
         host: prov.host.clone(),
         threads: prov.threads,

@@ -93,6 +93,8 @@ struct RawSweep {
     seeds: Spanned<toml::Value>,
     #[serde(default)]
     epsilons: Option<Spanned<Vec<Spanned<f64>>>>,
+    #[serde(default)]
+    replicas: Option<Spanned<i64>>,
 }
 
 /// One `[[algorithm]]` table. Flat on purpose: every setting of every kind is optional here,
@@ -186,6 +188,8 @@ pub struct Spec {
     pub seeds: Vec<u64>,
     /// Stability levels; always starts with 0 (the reference run).
     pub epsilons: Vec<f64>,
+    /// Independent algorithm runs per instance at ε = 0 (1 = just the reference run).
+    pub replicas: u32,
     pub algorithms: Vec<AlgoEntry>,
     pub fit: FitSettings,
 }
@@ -393,6 +397,10 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         sizes.push((n as u64, s.span()));
     }
     let seeds = seeds_from(&raw.sweep.seeds, loc)?;
+    let replicas = match &raw.sweep.replicas {
+        None => 1,
+        Some(r) => positive(r, loc, "sweep.replicas", 64)? as u32,
+    };
     let mut epsilons = vec![0.0];
     if let Some(eps) = &raw.sweep.epsilons {
         for e in eps.get_ref() {
@@ -664,7 +672,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
 
     let cells = sizes.len() as u128
         * seeds.len() as u128
-        * epsilons.len() as u128
+        * (epsilons.len() as u128 + replicas as u128 - 1)
         * algorithms.len() as u128;
     if cells > MAX_CELLS {
         return Err(loc.at(
@@ -690,6 +698,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         sizes,
         seeds,
         epsilons,
+        replicas,
         algorithms,
     })
 }

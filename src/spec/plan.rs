@@ -8,6 +8,9 @@
 //! - cell = {model, n, seed, algorithm, ε}: the cache key. The base (reference) cell of a cell is
 //!   the same cell at ε = 0.
 //!
+//! - replica r ≥ 1 = the cell at ε = 0 with `replica: r` added: an independent run of the same
+//!   algorithm on the same instance (algorithm stream index r).
+//!
 //! Labels, notes, the experiment name and the order of entries in the spec are not part of any
 //! key. Plans are ordered by (algorithm as listed, n as listed, seed as listed, ε as listed).
 
@@ -28,6 +31,9 @@ pub struct Cell {
     pub base: Key,
     pub instance: Id,
     pub run: Id,
+    /// Replica index: 0 for the reference run and every ε; r ≥ 1 for the extra independent
+    /// runs at ε = 0 (`sweep.replicas`), whose algorithm stream has index r.
+    pub replica: u32,
 }
 
 impl Plan {
@@ -97,6 +103,28 @@ pub fn expand(spec: &Spec) -> Plan {
                         base,
                         instance,
                         run,
+                        replica: 0,
+                    });
+                }
+                for r in 1..spec.replicas {
+                    let key = Key(Canon::map()
+                        .with("model", spec.model.canon())
+                        .with("n", n)
+                        .with("seed", seed)
+                        .with("algorithm", algo.clone())
+                        .with("epsilon", 0.0)
+                        .with("replica", r as u64)
+                        .hash("cell"));
+                    cells.push(Cell {
+                        algo: ai,
+                        n,
+                        seed,
+                        epsilon: 0.0,
+                        key,
+                        base: key,
+                        instance,
+                        run,
+                        replica: r,
                     });
                 }
             }
@@ -111,6 +139,7 @@ pub fn expand(spec: &Spec) -> Plan {
         )
         .with("seeds", spec.seeds.clone())
         .with("epsilons", spec.epsilons.clone())
+        .with_if(spec.replicas > 1, "replicas", spec.replicas as u64)
         .with(
             "algorithms",
             Canon::List(

@@ -54,6 +54,9 @@ pub struct Record {
     /// Value per spin of the relaxation an algorithm solved before rounding (lowrank).
     #[serde(default)]
     pub relaxation: Option<f64>,
+    /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
+    #[serde(default)]
+    pub replica: u32,
     // provenance (not part of the numbers)
     pub wall_seconds: f64,
     pub host: String,
@@ -456,6 +459,7 @@ mod tests {
             energy_reduced: None,
             cut_fraction: None,
             relaxation: None,
+            replica: 0,
             wall_seconds: 0.5,
             host: "h".into(),
             threads: 2,

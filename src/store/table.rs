@@ -96,3 +96,93 @@ pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
             message: e.to_string(),
         })
 }
+
+/// Pairwise overlaps of replica outputs: one row per (algorithm, n, seed, a < b).
+#[derive(Default)]
+pub struct Overlaps {
+    algorithm: Vec<String>,
+    n: Vec<u64>,
+    seed: Vec<u64>,
+    a: Vec<u32>,
+    b: Vec<u32>,
+    overlap: Vec<f64>,
+}
+
+impl Overlaps {
+    pub fn push(&mut self, algorithm: &str, n: u64, seed: u64, a: u32, b: u32, q: f64) {
+        self.algorithm.push(algorithm.into());
+        self.n.push(n);
+        self.seed.push(seed);
+        self.a.push(a);
+        self.b.push(b);
+        self.overlap.push(q);
+    }
+
+    pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
+        let df = DataFrame::new_infer_height(vec![
+            Column::new(
+                "experiment".into(),
+                vec![experiment.to_string(); self.n.len()],
+            ),
+            Column::new("algorithm".into(), self.algorithm.clone()),
+            Column::new("n".into(), self.n.clone()),
+            Column::new("seed".into(), self.seed.clone()),
+            Column::new("replica_a".into(), self.a.clone()),
+            Column::new("replica_b".into(), self.b.clone()),
+            Column::new("overlap".into(), self.overlap.clone()),
+        ]);
+        write_frame(path, df)
+    }
+}
+
+/// Overlaps of replica triples, sorted q_min ≤ q_mid ≤ q_max (ultrametricity: q_min = q_mid).
+#[derive(Default)]
+pub struct Triples {
+    algorithm: Vec<String>,
+    n: Vec<u64>,
+    seed: Vec<u64>,
+    r: [Vec<u32>; 3],
+    q: [Vec<f64>; 3],
+}
+
+impl Triples {
+    pub fn push(&mut self, algorithm: &str, n: u64, seed: u64, r: [u32; 3], q: [f64; 3]) {
+        self.algorithm.push(algorithm.into());
+        self.n.push(n);
+        self.seed.push(seed);
+        for i in 0..3 {
+            self.r[i].push(r[i]);
+            self.q[i].push(q[i]);
+        }
+    }
+
+    pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
+        let df = DataFrame::new_infer_height(vec![
+            Column::new(
+                "experiment".into(),
+                vec![experiment.to_string(); self.n.len()],
+            ),
+            Column::new("algorithm".into(), self.algorithm.clone()),
+            Column::new("n".into(), self.n.clone()),
+            Column::new("seed".into(), self.seed.clone()),
+            Column::new("replica_a".into(), self.r[0].clone()),
+            Column::new("replica_b".into(), self.r[1].clone()),
+            Column::new("replica_c".into(), self.r[2].clone()),
+            Column::new("q_min".into(), self.q[0].clone()),
+            Column::new("q_mid".into(), self.q[1].clone()),
+            Column::new("q_max".into(), self.q[2].clone()),
+        ]);
+        write_frame(path, df)
+    }
+}
+
+fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreError> {
+    let terr = |e: PolarsError| StoreError::Table {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    };
+    let mut df = df.map_err(terr)?;
+    let mut buf = Vec::new();
+    ParquetWriter::new(&mut buf).finish(&mut df).map_err(terr)?;
+    write_atomic(path, &buf)
+}

@@ -185,3 +185,84 @@ fn hessian_ascent_on_the_sphere() {
     }
     assert!(means[1] > means[0] && means[0] > 1.4, "{means:?}");
 }
+
+/// Replica overlaps (`sweep.replicas = 3`): two extra independent runs per (instance,
+/// algorithm) at ε = 0; the main table keeps its rows and keys (adding replicas recomputes
+/// nothing already cached); `overlaps.parquet` holds every pair (values σ^a·σ^b/n: in [−1, 1]
+/// and multiples of 2/n); `triples.parquet` every triple with q_min ≤ q_mid ≤ q_max; and a
+/// rerun gives identical files.
+#[test]
+fn replica_overlaps_and_sorted_triples() {
+    use crate::util::{SMALL, Work, counts};
+    use kiln::store::table;
+    let w = Work::new();
+    let plain = w.spec("s.toml", SMALL);
+    w.run_json(&plain, &[]);
+    let before = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
+    let rep = w.spec(
+        "r.toml",
+        &SMALL.replace(
+            "epsilons = [0.0, 0.1]",
+            "epsilons = [0.0, 0.1]\nreplicas = 3",
+        ),
+    );
+    let v = w.run_json(&rep, &[]);
+    // 2 algorithms × 2 sizes × 3 seeds × 2 new replicas computed; the rest cached.
+    assert_eq!(counts(&v), (24, 24));
+    let after = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
+    assert_eq!(
+        before.column("cell_key").unwrap(),
+        after.column("cell_key").unwrap()
+    );
+    let pairs = table::read(&w.path().join("results/small/overlaps.parquet")).unwrap();
+    assert_eq!(pairs.height(), 12 * 3);
+    let q: Vec<f64> = pairs
+        .column("overlap")
+        .unwrap()
+        .f64()
+        .unwrap()
+        .iter()
+        .map(|x| x.unwrap())
+        .collect();
+    assert!(q.iter().all(|x| (-1.0..=1.0).contains(x)));
+    // Overlaps are of ±1 vectors of length n: multiples of 2/n.
+    let ns: Vec<u64> = pairs
+        .column("n")
+        .unwrap()
+        .u64()
+        .unwrap()
+        .iter()
+        .map(|x| x.unwrap())
+        .collect();
+    for (&x, &n) in q.iter().zip(&ns) {
+        let n = n as f64;
+        assert!(
+            ((x * n / 2.0) - (x * n / 2.0).round()).abs() < 1e-9,
+            "{x} at n {n}"
+        );
+    }
+    let triples = table::read(&w.path().join("results/small/triples.parquet")).unwrap();
+    assert_eq!(triples.height(), 12);
+    let col = |c: &str| -> Vec<f64> {
+        triples
+            .column(c)
+            .unwrap()
+            .f64()
+            .unwrap()
+            .iter()
+            .map(|x| x.unwrap())
+            .collect()
+    };
+    let (lo, mid, hi) = (col("q_min"), col("q_mid"), col("q_max"));
+    for i in 0..12 {
+        assert!(lo[i] <= mid[i] && mid[i] <= hi[i]);
+    }
+    // Deterministic: a second run (all cached) rewrites identical overlap tables.
+    let first = std::fs::read(w.path().join("results/small/overlaps.parquet")).unwrap();
+    let v = w.run_json(&rep, &[]);
+    assert_eq!(counts(&v), (0, 48));
+    assert_eq!(
+        first,
+        std::fs::read(w.path().join("results/small/overlaps.parquet")).unwrap()
+    );
+}
