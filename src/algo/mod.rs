@@ -66,8 +66,16 @@ pub enum AlgoSpec {
 }
 
 impl AlgoSpec {
-    pub const KINDS: [&'static str; 5] =
-        ["descent", "anneal", "exhaustive", "spectral", "gradient"];
+    pub const KINDS: [&'static str; 8] = [
+        "descent",
+        "anneal",
+        "exhaustive",
+        "spectral",
+        "gradient",
+        "tempering",
+        "lowrank",
+        "hessian",
+    ];
 
     pub fn kind(&self) -> &'static str {
         match self {
