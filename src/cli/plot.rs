@@ -90,6 +90,90 @@ fn reference_lines(
     })
 }
 
+/// `overlaps-<algorithm>`: histograms of the pairwise replica overlaps, one outline per n.
+fn overlap_figures(
+    path: &Path,
+    figdir: &Path,
+    size: Size,
+    name: &str,
+    spec_hash: &str,
+) -> anyhow::Result<Vec<PathBuf>> {
+    let df = crate::store::table::read(path)?;
+    let algs: Vec<String> = df
+        .column("algorithm")?
+        .str()?
+        .iter()
+        .map(|x| x.unwrap_or("").to_string())
+        .collect();
+    let ns: Vec<u64> = df
+        .column("n")?
+        .u64()?
+        .iter()
+        .map(|x| x.unwrap_or(0))
+        .collect();
+    let qs: Vec<f64> = df
+        .column("overlap")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect();
+    let mut by: BTreeMap<String, BTreeMap<u64, Vec<f64>>> = BTreeMap::new();
+    for i in 0..qs.len() {
+        by.entry(algs[i].clone())
+            .or_default()
+            .entry(ns[i])
+            .or_default()
+            .push(qs[i]);
+    }
+    let mut written = Vec::new();
+    for (label, per_n) in &by {
+        let mut csv = format!(
+            "# kiln figure data: replica overlap histograms; experiment={name}; spec_hash={spec_hash}\nalgorithm,n,bin_lo,bin_hi,density\n"
+        );
+        let series: Vec<figures::OverlapSeries> = per_n
+            .iter()
+            .map(|(n, v)| {
+                let bins = figures::histogram(v, 40);
+                for b in &bins {
+                    csv += &csv_line(&[
+                        label.clone(),
+                        n.to_string(),
+                        format!("{:?}", b.0),
+                        format!("{:?}", b.1),
+                        format!("{:?}", b.2),
+                    ]);
+                }
+                figures::OverlapSeries {
+                    label: format!("n = {n} ({} pairs)", v.len()),
+                    bins,
+                }
+            })
+            .collect();
+        let fig = figures::OverlapFigure {
+            title: label.clone(),
+            series,
+            caption: "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".into(),
+        };
+        let safe: String = label
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                    c
+                } else {
+                    '_'
+                }
+            })
+            .collect();
+        written.extend(write_all(
+            &figdir.join(format!("overlaps-{safe}")),
+            size,
+            &csv,
+            &fig,
+        )?);
+    }
+    Ok(written)
+}
+
 /// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
 type EnergySamples = BTreeMap<(String, String), BTreeMap<String, Vec<(u64, f64)>>>;
 
@@ -270,6 +354,16 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
         }
+    }
+    let overlaps_path = dir.join("overlaps.parquet");
+    if overlaps_path.is_file() {
+        written.extend(overlap_figures(
+            &overlaps_path,
+            &figdir,
+            size,
+            &name,
+            &spec_hash,
+        )?);
     }
     if a.json {
         let v = serde_json::json!({ "experiment": name, "files": written.iter().map(|p| p.display().to_string()).collect::<Vec<_>>() });

@@ -39,6 +39,101 @@ pub struct StabilityFigure {
     pub caption: String,
 }
 
+/// One size's overlap histogram: bin edges on [−1, 1] and densities.
+#[derive(Clone, Debug)]
+pub struct OverlapSeries {
+    pub label: String,
+    /// (bin low, bin high, density) with Σ density·width = 1.
+    pub bins: Vec<(f64, f64, f64)>,
+}
+
+/// Histograms of pairwise replica overlaps, one outline per n.
+#[derive(Clone, Debug)]
+pub struct OverlapFigure {
+    pub title: String,
+    pub series: Vec<OverlapSeries>,
+    pub caption: String,
+}
+
+/// Density histogram of values in [−1, 1] with `bins` equal bins.
+pub fn histogram(values: &[f64], bins: usize) -> Vec<(f64, f64, f64)> {
+    let w = 2.0 / bins as f64;
+    let mut counts = vec![0usize; bins];
+    for &v in values {
+        let i = (((v + 1.0) / w).floor() as isize).clamp(0, bins as isize - 1) as usize;
+        counts[i] += 1;
+    }
+    let total = values.len().max(1) as f64;
+    counts
+        .iter()
+        .enumerate()
+        .map(|(i, &c)| {
+            let lo = -1.0 + i as f64 * w;
+            (lo, lo + w, c as f64 / (total * w))
+        })
+        .collect()
+}
+
+impl super::Figure for OverlapFigure {
+    fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        let main = with_caption(&root, &self.caption)?;
+        let ymax = self
+            .series
+            .iter()
+            .flat_map(|s| s.bins.iter().map(|b| b.2))
+            .fold(0.0f64, f64::max)
+            .max(1e-9);
+        let mut chart = ChartBuilder::on(&main)
+            .margin(pt(5.0) as u32)
+            .caption(&self.title, ("sans-serif", pt(8.0)))
+            .x_label_area_size(pt(20.0) as u32)
+            .y_label_area_size(pt(30.0) as u32)
+            .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..ymax * 1.15)
+            .map_err(err)?;
+        chart
+            .configure_mesh()
+            .disable_x_mesh()
+            .disable_y_mesh()
+            .x_labels(5)
+            .y_labels(5)
+            .x_desc("overlap  σᵃ·σᵇ/n")
+            .y_desc("density")
+            .label_style(("sans-serif", pt(7.0)))
+            .axis_desc_style(("sans-serif", pt(8.0)))
+            .axis_style(BLACK.stroke_width(2))
+            .draw()
+            .map_err(err)?;
+        for (i, s) in self.series.iter().enumerate() {
+            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            let mut outline = vec![(-1.0, 0.0)];
+            for &(lo, hi, d) in &s.bins {
+                outline.push((lo, d));
+                outline.push((hi, d));
+            }
+            outline.push((1.0, 0.0));
+            chart
+                .draw_series(LineSeries::new(outline, color.stroke_width(3)))
+                .map_err(err)?
+                .label(s.label.clone())
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
+                });
+        }
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .label_font(("sans-serif", pt(6.5)))
+            .background_style(WHITE.mix(0.85))
+            .border_style(BLACK)
+            .draw()
+            .map_err(err)?;
+        root.present().map_err(err)
+    }
+}
+
 impl super::Figure for EnergyFigure {
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
@@ -389,6 +484,17 @@ mod tests {
             .collect();
         assert!((loglog_slope(&pts).unwrap() - 0.5).abs() < 1e-12);
         assert_eq!(loglog_slope(&pts[..1]), None);
+    }
+
+    #[test]
+    fn histogram_is_a_density() {
+        let h = histogram(&[-1.0, -0.5, 0.0, 0.0, 0.99, 1.0], 4);
+        assert_eq!(h.len(), 4);
+        let mass: f64 = h.iter().map(|b| (b.1 - b.0) * b.2).sum();
+        assert!((mass - 1.0).abs() < 1e-12);
+        // bins [-1,-0.5), [-0.5,0), [0,0.5), [0.5,1]: counts 1, 1, 2, 2.
+        let counts: Vec<f64> = h.iter().map(|b| b.2 * 0.5 * 6.0).collect();
+        assert_eq!(counts, vec![1.0, 1.0, 2.0, 2.0]);
     }
 
     #[test]

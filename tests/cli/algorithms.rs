@@ -257,6 +257,28 @@ fn replica_overlaps_and_sorted_triples() {
     for i in 0..12 {
         assert!(lo[i] <= mid[i] && mid[i] <= hi[i]);
     }
+    // `kiln plot` draws the histograms; each n's density integrates to 1.
+    let o = w.kiln(&["plot", rep.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let csv =
+        std::fs::read_to_string(w.path().join("results/small/figures/overlaps-d.csv")).unwrap();
+    let mut mass = std::collections::BTreeMap::<String, f64>::new();
+    for l in csv.lines().skip(2) {
+        let f: Vec<&str> = l.split(',').collect();
+        let (lo, hi, d): (f64, f64, f64) = (
+            f[2].parse().unwrap(),
+            f[3].parse().unwrap(),
+            f[4].parse().unwrap(),
+        );
+        *mass.entry(f[1].to_string()).or_default() += (hi - lo) * d;
+    }
+    assert_eq!(mass.len(), 2, "{csv}");
+    assert!(mass.values().all(|m| (m - 1.0).abs() < 1e-9), "{mass:?}");
+    assert!(
+        w.path()
+            .join("results/small/figures/overlaps-d.png")
+            .is_file()
+    );
     // Deterministic: a second run (all cached) rewrites identical overlap tables.
     let first = std::fs::read(w.path().join("results/small/overlaps.parquet")).unwrap();
     let v = w.run_json(&rep, &[]);
