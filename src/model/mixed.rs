@@ -15,7 +15,6 @@ use crate::theory::Mixture;
 /// A sampled mixed instance.
 pub struct Mixed {
     n: usize,
-    xi: Mixture,
     dense: Option<Dense>,
     tensors: Vec<Tensor>,
 }
@@ -34,21 +33,11 @@ impl Mixed {
                 tensors.push(Tensor::sample(n, p as usize, c2, c, instance, epsilon));
             }
         }
-        Mixed {
-            n,
-            xi: xi.clone(),
-            dense,
-            tensors,
-        }
+        Mixed { n, dense, tensors }
     }
 
     pub fn n(&self) -> usize {
         self.n
-    }
-
-    /// The mixture ξ this instance was sampled from.
-    pub fn mixture(&self) -> &Mixture {
-        &self.xi
     }
 
     /// The p = 2 part, if any.
