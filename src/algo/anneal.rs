@@ -69,17 +69,7 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     info.sweeps = steps;
     info.converged = true;
     if p.quench {
-        d.fields(&s, &mut h);
-        let q = descent::descend(
-            &descent::Params {
-                order: descent::Order::Sequential,
-                ..descent::Params::default()
-            },
-            d,
-            &mut s,
-            &mut h,
-            rng,
-        );
+        let q = descent::quench(d, &mut s, &mut h, rng);
         info.iterations += q.iterations;
         info.sweeps += q.sweeps;
         info.converged = q.converged;

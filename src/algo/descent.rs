@@ -82,7 +82,23 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     }
 }
 
-/// Descends from the given state (fields must equal Aσ). Also used as annealing's quench.
+/// The zero-temperature finish of annealing and tempering: fields recomputed from scratch (no
+/// rounding drift), then a sequential descent to a 1-flip-stable state.
+pub(crate) fn quench<M: Cube>(d: &M, s: &mut [i8], h: &mut [f64], rng: &mut Stream) -> Info {
+    d.fields(s, h);
+    descend(
+        &Params {
+            order: Order::Sequential,
+            ..Params::default()
+        },
+        d,
+        s,
+        h,
+        rng,
+    )
+}
+
+/// Descends from the given state (fields must equal Aσ).
 pub(crate) fn descend<M: Cube>(
     p: &Params,
     d: &M,

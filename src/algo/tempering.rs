@@ -99,20 +99,10 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
         }
     }
     info.sweeps = p.sweeps;
-    // Quench the best configuration found (fields from scratch: no drift).
+    // Quench the best configuration found.
     let mut s = best_s;
     let mut h = vec![0.0; n];
-    d.fields(&s, &mut h);
-    let q = descent::descend(
-        &descent::Params {
-            order: descent::Order::Sequential,
-            ..descent::Params::default()
-        },
-        d,
-        &mut s,
-        &mut h,
-        rng,
-    );
+    let q = descent::quench(d, &mut s, &mut h, rng);
     info.iterations += q.iterations;
     info.converged = q.converged;
     Output {

@@ -154,24 +154,28 @@ fn overlap_figures(
             series,
             caption: "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".into(),
         };
-        let safe: String = label
-            .chars()
-            .map(|c| {
-                if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                    c
-                } else {
-                    '_'
-                }
-            })
-            .collect();
         written.extend(write_all(
-            &figdir.join(format!("overlaps-{safe}")),
+            &figdir.join(format!("overlaps-{}", file_safe(label))),
             size,
             &csv,
             &fig,
         )?);
     }
     Ok(written)
+}
+
+/// A label as a file-name part: letters, digits, `-` and `_` kept, anything else `_`.
+fn file_safe(label: &str) -> String {
+    label
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect()
 }
 
 /// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
@@ -339,17 +343,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             series,
             caption: "Mean distance ‖σ − σ'‖/√n between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; slopes: least-squares fits of log distance against log ε.".into(),
         };
-        let safe: String = label
-            .chars()
-            .map(|c| {
-                if c.is_ascii_alphanumeric() || c == '-' || c == '_' {
-                    c
-                } else {
-                    '_'
-                }
-            })
-            .collect();
-        let base = figdir.join(format!("stability-{safe}"));
+        let base = figdir.join(format!("stability-{}", file_safe(label)));
         match write_all(&base, size, &csv, &fig) {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
