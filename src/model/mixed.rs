@@ -53,12 +53,7 @@ impl Mixed {
     /// H(x) and ∇H(x) (with distinct-index sums the gradient at ±1 points is the local field).
     pub fn value_grad<T: Val>(&self, x: &[T], g: &mut [f64]) -> f64 {
         g.iter_mut().for_each(|v| *v = 0.0);
-        let mut e = 0.0;
-        if let Some(d) = &self.dense {
-            let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
-            d.matvec(&xf, g);
-            e += 0.5 * xf.iter().zip(g.iter()).map(|(a, b)| a * b).sum::<f64>();
-        }
+        let mut e = self.quadratic(x, g);
         for t in &self.tensors {
             e += t.accumulate(x, g);
         }
@@ -67,17 +62,22 @@ impl Mixed {
 
     /// H(x).
     pub fn value<T: Val>(&self, x: &[T]) -> f64 {
-        let mut e = 0.0;
-        if let Some(d) = &self.dense {
-            let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
-            let mut g = vec![0.0; self.n];
-            d.matvec(&xf, &mut g);
-            e += 0.5 * xf.iter().zip(&g).map(|(a, b)| a * b).sum::<f64>();
-        }
+        let mut g = vec![0.0; if self.dense.is_some() { self.n } else { 0 }];
+        let mut e = self.quadratic(x, &mut g);
         for t in &self.tensors {
             e += t.energy(x);
         }
         e
+    }
+
+    /// The p = 2 part: writes Ax into `g` and returns ½ xᵀAx (0 without a p = 2 term).
+    fn quadratic<T: Val>(&self, x: &[T], g: &mut [f64]) -> f64 {
+        let Some(d) = &self.dense else {
+            return 0.0;
+        };
+        let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
+        d.matvec(&xf, g);
+        0.5 * xf.iter().zip(g.iter()).map(|(a, b)| a * b).sum::<f64>()
     }
 
     /// The Hessian ∇²H(x) as a dense row-major n×n matrix (zero diagonal).

@@ -101,29 +101,21 @@ pub enum Family {
 }
 
 impl Family {
+    pub const ALL: [Family; 6] = [
+        Family::Sk,
+        Family::Cube,
+        Family::Sphere,
+        Family::ErdosRenyi,
+        Family::Regular,
+        Family::Lattice,
+    ];
     pub const NAMES: [&'static str; 6] =
         ["sk", "cube", "sphere", "erdos-renyi", "regular", "lattice"];
     pub fn name(self) -> &'static str {
-        match self {
-            Family::Sk => "sk",
-            Family::Cube => "cube",
-            Family::Sphere => "sphere",
-            Family::ErdosRenyi => "erdos-renyi",
-            Family::Regular => "regular",
-            Family::Lattice => "lattice",
-        }
+        Family::NAMES[self as usize]
     }
     pub fn parse(s: &str) -> Option<Self> {
-        Family::NAMES.iter().position(|&x| x == s).map(|i| {
-            [
-                Family::Sk,
-                Family::Cube,
-                Family::Sphere,
-                Family::ErdosRenyi,
-                Family::Regular,
-                Family::Lattice,
-            ][i]
-        })
+        Family::ALL.into_iter().find(|f| f.name() == s)
     }
     /// Whether the configurations are ±1 spins (every family but the sphere).
     pub fn is_cube(self) -> bool {
@@ -372,5 +364,19 @@ impl Instance {
             Instance::Sparse(g) => Some(g.edges()),
             _ => None,
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// NAMES is indexed by the enum's declaration order: every family parses back to itself.
+    #[test]
+    fn family_names_round_trip() {
+        for f in Family::ALL {
+            assert_eq!(Family::parse(f.name()), Some(f));
+        }
+        assert_eq!(Family::parse("sk-like"), None);
     }
 }

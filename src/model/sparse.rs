@@ -150,28 +150,29 @@ impl Graph {
         out
     }
 
+    /// Σ_j J_ij σ_j for one vertex.
+    #[inline(always)]
+    fn field(&self, i: usize, s: &[i8]) -> f64 {
+        let (nb, w) = self.adj(i);
+        let mut acc = 0.0;
+        for (&j, &x) in nb.iter().zip(w) {
+            acc += x * s[j as usize] as f64;
+        }
+        acc
+    }
+
     /// Local fields h_i = Σ_j J_ij σ_j.
     pub fn fields(&self, s: &[i8], h: &mut [f64]) {
         for (i, hi) in h.iter_mut().enumerate() {
-            let (nb, w) = self.adj(i);
-            let mut acc = 0.0;
-            for (&j, &x) in nb.iter().zip(w) {
-                acc += x * s[j as usize] as f64;
-            }
-            *hi = acc;
+            *hi = self.field(i, s);
         }
     }
 
     /// H(σ) = ½ Σ_i σ_i h_i, summed in a fixed order.
     pub fn energy(&self, s: &[i8]) -> f64 {
         let mut e = 0.0;
-        for i in 0..self.n {
-            let (nb, w) = self.adj(i);
-            let mut acc = 0.0;
-            for (&j, &x) in nb.iter().zip(w) {
-                acc += x * s[j as usize] as f64;
-            }
-            e += s[i] as f64 * acc;
+        for (i, &si) in s.iter().enumerate() {
+            e += si as f64 * self.field(i, s);
         }
         0.5 * e
     }
@@ -426,7 +427,8 @@ pub fn lattice(l: usize, dim: usize, c: Couplings, instance: &Id, epsilon: f64) 
         .into_par_iter()
         .map(|i| {
             let mut rng = stream(instance, Purpose::Couplings, i as u64);
-            let mut g = stream(instance, Purpose::Perturbation, i as u64);
+            // The perturbation stream only for a correlated copy (a hash per site otherwise).
+            let mut g = (epsilon > 0.0).then(|| stream(instance, Purpose::Perturbation, i as u64));
             let keep = 1.0 - epsilon;
             let fresh = (epsilon * (2.0 - epsilon)).sqrt();
             (0..dim)
@@ -438,8 +440,8 @@ pub fn lattice(l: usize, dim: usize, c: Couplings, instance: &Id, epsilon: f64) 
                         i + stride[a]
                     };
                     let mut v = [coupling(&mut rng, c)];
-                    if epsilon > 0.0 {
-                        super::perturb(&mut g, c, keep, fresh, epsilon, &mut v);
+                    if let Some(g) = g.as_mut() {
+                        super::perturb(g, c, keep, fresh, epsilon, &mut v);
                     }
                     (j as u32, v[0])
                 })

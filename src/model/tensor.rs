@@ -154,33 +154,28 @@ impl Tensor {
     pub fn energy<T: Val>(&self, x: &[T]) -> f64 {
         if self.p == 3 {
             let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
-            let mut scratch = Vec::new();
-            return self.cubic(&xf, &mut scratch, false);
+            return self.cubic(&xf, &mut [], false);
         }
-        let p = self.p;
-        let mut t: Vec<usize> = (0..p).collect();
-        let mut e = 0.0;
-        for &a in &self.a {
-            let mut prod = a;
-            for &i in &t {
-                prod *= x[i].f();
-            }
-            e += prod;
-            colex_next(&mut t);
-        }
-        e
+        self.walk(x, None)
     }
 
     /// Adds this term's H_p(x) to the return value and ∂H_p/∂x to `h` (one pass over the
     /// tensor in storage order).
     pub fn accumulate<T: Val>(&self, x: &[T], h: &mut [f64]) -> f64 {
         if self.p == 3 {
+            // The gradient is summed on its own, then added: fields do not depend on what `h`
+            // held before.
             let xf: Vec<f64> = x.iter().map(|v| v.f()).collect();
             let mut g = vec![0.0; self.n];
             let e = self.cubic(&xf, &mut g, true);
             h.iter_mut().zip(&g).for_each(|(a, b)| *a += b);
             return e;
         }
+        self.walk(x, Some(h))
+    }
+
+    /// Any p: one pass over the tuples in colex order, adding the gradient to `h` if given.
+    fn walk<T: Val>(&self, x: &[T], mut h: Option<&mut [f64]>) -> f64 {
         let p = self.p;
         let mut t: Vec<usize> = (0..p).collect();
         let mut e = 0.0;
@@ -190,15 +185,17 @@ impl Tensor {
                 prod *= x[i].f();
             }
             e += prod;
-            // ∂/∂x_i of a·Π x = a·Π_{j≠i} x_j; computed without division (x may be 0).
-            for r in 0..p {
-                let mut q = a;
-                for (s, &j) in t.iter().enumerate() {
-                    if s != r {
-                        q *= x[j].f();
+            if let Some(h) = h.as_deref_mut() {
+                // ∂/∂x_i of a·Π x = a·Π_{j≠i} x_j; computed without division (x may be 0).
+                for r in 0..p {
+                    let mut q = a;
+                    for (s, &j) in t.iter().enumerate() {
+                        if s != r {
+                            q *= x[j].f();
+                        }
                     }
+                    h[t[r]] += q;
                 }
-                h[t[r]] += q;
             }
             colex_next(&mut t);
         }

@@ -119,19 +119,13 @@ impl Overlaps {
     }
 
     pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
-        let df = DataFrame::new_infer_height(vec![
-            Column::new(
-                "experiment".into(),
-                vec![experiment.to_string(); self.n.len()],
-            ),
-            Column::new("algorithm".into(), self.algorithm.clone()),
-            Column::new("n".into(), self.n.clone()),
-            Column::new("seed".into(), self.seed.clone()),
+        let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        cols.extend([
             Column::new("replica_a".into(), self.a.clone()),
             Column::new("replica_b".into(), self.b.clone()),
             Column::new("overlap".into(), self.overlap.clone()),
         ]);
-        write_frame(path, df)
+        write_frame(path, DataFrame::new_infer_height(cols))
     }
 }
 
@@ -157,14 +151,8 @@ impl Triples {
     }
 
     pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
-        let df = DataFrame::new_infer_height(vec![
-            Column::new(
-                "experiment".into(),
-                vec![experiment.to_string(); self.n.len()],
-            ),
-            Column::new("algorithm".into(), self.algorithm.clone()),
-            Column::new("n".into(), self.n.clone()),
-            Column::new("seed".into(), self.seed.clone()),
+        let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        cols.extend([
             Column::new("replica_a".into(), self.r[0].clone()),
             Column::new("replica_b".into(), self.r[1].clone()),
             Column::new("replica_c".into(), self.r[2].clone()),
@@ -172,8 +160,18 @@ impl Triples {
             Column::new("q_mid".into(), self.q[1].clone()),
             Column::new("q_max".into(), self.q[2].clone()),
         ]);
-        write_frame(path, df)
+        write_frame(path, DataFrame::new_infer_height(cols))
     }
+}
+
+/// The columns naming a replica group: experiment, algorithm, n, seed.
+fn group_columns(experiment: &str, algorithm: &[String], n: &[u64], seed: &[u64]) -> Vec<Column> {
+    vec![
+        Column::new("experiment".into(), vec![experiment.to_string(); n.len()]),
+        Column::new("algorithm".into(), algorithm.to_vec()),
+        Column::new("n".into(), n.to_vec()),
+        Column::new("seed".into(), seed.to_vec()),
+    ]
 }
 
 fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreError> {

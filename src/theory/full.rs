@@ -307,21 +307,16 @@ fn dot(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
-/// Minimises on the grid of K intervals from `m0` (interpolated to the grid if its length
-/// differs).
+/// Minimises on the grid of K intervals from `m0` (one value per interval).
 fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f64>) -> FullRsb {
     let power = if beta.is_some() { 1.0 } else { s.power };
     let q: Vec<f64> = (0..=k)
         .map(|j| 1.0 - (1.0 - j as f64 / k as f64).powf(power))
         .collect();
     let p = Problem::new(xi, &q, s, beta);
-    // Starting point: m0 resampled at the interval midpoints, made strictly increasing.
-    let mut m: Vec<f64> = (0..k)
-        .map(|j| {
-            let t = (j as f64 + 0.5) / k as f64 * m0.len() as f64;
-            m0[(t as usize).min(m0.len() - 1)]
-        })
-        .collect();
+    // Starting point: m0 (one value per interval), made strictly increasing.
+    assert_eq!(m0.len(), k);
+    let mut m = m0.to_vec();
     for j in 1..k {
         if m[j] <= m[j - 1] {
             m[j] = m[j - 1] * (1.0 + 1e-3);
@@ -406,15 +401,6 @@ fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f
         iterations: it,
         gradient: g.iter().fold(0.0f64, |a, b| a.max(b.abs())),
     }
-}
-
-/// Value of the discrete functional on the grid with exponent `power` for given m (diagnostics).
-pub fn value_at(xi: &Mixture, s: &FullSettings, m: &[f64]) -> f64 {
-    let k = m.len();
-    let q: Vec<f64> = (0..=k)
-        .map(|j| 1.0 - (1.0 - j as f64 / k as f64).powf(s.power))
-        .collect();
-    Problem::new(xi, &q, s, None).value_grad(m).0
 }
 
 /// Full-RSB solution on the grid of `s.levels` intervals. The start is γ(q) = c·(0.1 + q)/√(1 − q)

@@ -99,15 +99,7 @@ fn lowrank_relaxation_below_the_spectral_bound_and_towards_one() {
                 .run(&inst, &mut stream(&id("bmr", t), Purpose::Algorithm, 0))
                 .unwrap();
             let relax = out.info.relaxation.expect("a relaxation value");
-            let kiln::model::Instance::Dense(d) = &inst else {
-                unreachable!()
-            };
-            let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);
-            let lmax = nalgebra::SymmetricEigen::new(mat)
-                .eigenvalues
-                .iter()
-                .cloned()
-                .fold(f64::MIN, f64::max);
+            let lmax = crate::util::reference_top(&inst);
             assert!(
                 relax <= lmax / 2.0 + 1e-9,
                 "n {n}: {relax} > λ/2 = {}",
@@ -303,15 +295,10 @@ fn spectral_on_sk() {
     let out = algo
         .run(&inst, &mut stream(&id("spr", 0), Purpose::Algorithm, 0))
         .unwrap();
+    let lmax = crate::util::reference_top(&inst);
     let kiln::model::Instance::Dense(d) = &inst else {
         unreachable!()
     };
-    let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);
-    let lmax = nalgebra::SymmetricEigen::new(mat)
-        .eigenvalues
-        .iter()
-        .cloned()
-        .fold(f64::MIN, f64::max);
     let x = out.point.unwrap();
     let quad: f64 = {
         let mut y = vec![0.0; n];

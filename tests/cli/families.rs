@@ -2,10 +2,10 @@
 //! of each, checked against their sources, and every example spec run end to end.
 
 use crate::util::{Work, stderr};
-use crate::util::{id, mean_se};
+use crate::util::{id, mean_se, reference_top};
 use kiln::algo::{AlgoSpec, exhaustive, spectral};
 use kiln::model::sparse::{self, Graph};
-use kiln::model::{Couplings, Family, Instance, ModelSpec};
+use kiln::model::{Couplings, Family, ModelSpec};
 use kiln::rng::{Purpose, stream};
 use kiln::theory::Mixture;
 use std::collections::HashSet;
@@ -111,29 +111,6 @@ fn sk_and_the_sk_mixture_agree() {
     for _ in 0..20 {
         let s: Vec<i8> = (0..50).map(|_| r.sign() as i8).collect();
         assert_eq!(a.energy(&s).to_bits(), b.energy(&s).to_bits());
-    }
-}
-
-/// Top eigenvalue and vector of the p = 2 matrix by a general-purpose eigen-solver (nalgebra's
-/// symmetric eigendecomposition).
-fn reference_top(inst: &Instance) -> f64 {
-    let d = match inst {
-        Instance::Sphere(m) | Instance::Mixed(m) => m.dense().expect("quadratic").clone_rows(),
-        Instance::Dense(d) => d.clone_rows(),
-        _ => unreachable!(),
-    };
-    let n = d.len();
-    let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d[i][j]);
-    let e = nalgebra::SymmetricEigen::new(mat);
-    e.eigenvalues.iter().cloned().fold(f64::MIN, f64::max)
-}
-
-trait Rows {
-    fn clone_rows(&self) -> Vec<Vec<f64>>;
-}
-impl Rows for kiln::model::sk::Dense {
-    fn clone_rows(&self) -> Vec<Vec<f64>> {
-        (0..self.n()).map(|i| self.row(i).to_vec()).collect()
     }
 }
 

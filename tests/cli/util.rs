@@ -100,3 +100,21 @@ pub fn mean_se(xs: &[f64]) -> (f64, f64) {
     let v = xs.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (xs.len() - 1) as f64;
     (m, (v / xs.len() as f64).sqrt())
 }
+
+/// The top eigenvalue of an instance's p = 2 coupling matrix by a general-purpose eigen-solver
+/// (nalgebra's symmetric eigendecomposition), the reference kiln's own Lanczos is checked against.
+pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
+    use kiln::model::Instance;
+    let d = match inst {
+        Instance::Sphere(m) | Instance::Mixed(m) => m.dense().expect("a p = 2 term"),
+        Instance::Dense(d) => d,
+        Instance::Sparse(_) => panic!("reference_top takes dense instances"),
+    };
+    let n = d.n();
+    let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);
+    nalgebra::SymmetricEigen::new(mat)
+        .eigenvalues
+        .iter()
+        .cloned()
+        .fold(f64::MIN, f64::max)
+}
