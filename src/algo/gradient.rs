@@ -93,7 +93,13 @@ fn project(x: &mut [f64]) {
 
 pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
     let n = m.n();
-    let mut x: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
+    let x: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
+    ascend_sphere(p, m, x)
+}
+
+/// Projected ascent on the sphere from the point `x` (any non-zero norm; projected first).
+pub fn ascend_sphere(p: &Params, m: &Mixed, mut x: Vec<f64>) -> Output {
+    let n = m.n();
     project(&mut x);
     let mut g = vec![0.0; n];
     let mut info = Info::default();

@@ -3,11 +3,13 @@
 //! an [`Output`] (spins plus an [`Info`]) or an [`AlgoError`] carrying data; never a panic on
 //! numerical trouble. Each algorithm has a revision number that enters the cache key.
 
+pub mod amp;
 pub mod anneal;
 pub mod descent;
 pub mod exhaustive;
 pub mod gradient;
 pub mod hessian;
+pub mod iamp;
 pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
@@ -25,7 +27,8 @@ pub struct Info {
     pub sweeps: u64,
     /// Whether the algorithm reached its stopping criterion (not a budget cap).
     pub converged: bool,
-    /// Value per spin of a relaxation the algorithm solved before rounding (lowrank).
+    /// Value per spin of a relaxation the algorithm solved before rounding (lowrank), or of
+    /// its pre-rounding point (amp, iamp: H(m)/n).
     pub relaxation: Option<f64>,
 }
 
@@ -63,10 +66,12 @@ pub enum AlgoSpec {
     Tempering(tempering::Params),
     Lowrank(lowrank::Params),
     Hessian(hessian::Params),
+    Amp(amp::Params),
+    Iamp(iamp::Params),
 }
 
 impl AlgoSpec {
-    pub const KINDS: [&'static str; 8] = [
+    pub const KINDS: [&'static str; 10] = [
         "descent",
         "anneal",
         "exhaustive",
@@ -75,6 +80,8 @@ impl AlgoSpec {
         "tempering",
         "lowrank",
         "hessian",
+        "amp",
+        "iamp",
     ];
 
     pub fn kind(&self) -> &'static str {
@@ -87,6 +94,8 @@ impl AlgoSpec {
             AlgoSpec::Tempering(_) => "tempering",
             AlgoSpec::Lowrank(_) => "lowrank",
             AlgoSpec::Hessian(_) => "hessian",
+            AlgoSpec::Amp(_) => "amp",
+            AlgoSpec::Iamp(_) => "iamp",
         }
     }
 
@@ -100,7 +109,20 @@ impl AlgoSpec {
             AlgoSpec::Tempering(_) => tempering::REVISION,
             AlgoSpec::Lowrank(_) => lowrank::REVISION,
             AlgoSpec::Hessian(_) => hessian::REVISION,
+            AlgoSpec::Amp(_) => amp::REVISION,
+            AlgoSpec::Iamp(_) => iamp::REVISION,
         }
+    }
+
+    /// Whether the output carries a pre-rounding continuous point.
+    pub fn has_point(&self) -> bool {
+        !matches!(
+            self,
+            AlgoSpec::Descent(_)
+                | AlgoSpec::Anneal(_)
+                | AlgoSpec::Exhaustive(_)
+                | AlgoSpec::Tempering(_)
+        )
     }
 
     /// Canonical identity (kind, revision and every setting, defaults included).
@@ -117,6 +139,8 @@ impl AlgoSpec {
             AlgoSpec::Tempering(p) => p.canon(c),
             AlgoSpec::Lowrank(p) => p.canon(c),
             AlgoSpec::Hessian(p) => p.canon(c),
+            AlgoSpec::Amp(p) => p.canon(c),
+            AlgoSpec::Iamp(p) => p.canon(c),
         }
     }
 
@@ -140,6 +164,10 @@ impl AlgoSpec {
                 let k = p.rank_for(n as usize) as u128;
                 8 * n * (k + 2) + n
             }
+            // iterates, fields, signs.
+            AlgoSpec::Amp(_) => 8 * n * 5,
+            // x, m, f, f_old, w, A f, signs.
+            AlgoSpec::Iamp(_) => 8 * n * 7,
             // the dense Hessian, the Lanczos basis (64) and a few vectors.
             AlgoSpec::Hessian(_) => 8 * n * n + 8 * n * 72,
             // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
@@ -160,6 +188,8 @@ impl AlgoSpec {
             AlgoSpec::Tempering(p) => n * flip * 0.3 * (p.sweeps * p.replicas) as f64,
             AlgoSpec::Lowrank(p) => n * flip * p.rank_for(n as usize) as f64 * 50.0,
             AlgoSpec::Hessian(p) => p.steps as f64 * (3.0 * n * flip + 60.0 * n * n),
+            AlgoSpec::Amp(p) => 0.3 * p.max_iterations as f64 * n * flip,
+            AlgoSpec::Iamp(p) => p.steps() as f64 * n * flip,
         }
     }
 
@@ -181,6 +211,10 @@ impl AlgoSpec {
             AlgoSpec::Hessian(_) => {
                 (m.family.is_cube()).then_some("Hessian ascent runs on the sphere family")
             }
+            AlgoSpec::Amp(_) => (!m.family.is_cube() || m.family.is_sparse())
+                .then_some("AMP's Onsager term is that of a dense mean-field model on the cube (sk or cube)"),
+            AlgoSpec::Iamp(_) => (!m.family.is_cube() || m.family.is_sparse() || !quadratic)
+                .then_some("incremental AMP is built for SK: family sk, or cube with xi = { 2 = … }"),
         }
     }
 
@@ -243,6 +277,34 @@ impl AlgoSpec {
                 }),
             },
             (AlgoSpec::Hessian(p), Instance::Sphere(m)) => hessian::run(p, m, rng),
+            (AlgoSpec::Amp(p), Instance::Dense(d)) => amp::run(
+                p,
+                d.n(),
+                &crate::theory::Mixture::sk(),
+                |x, y| {
+                    d.matvec(x, y);
+                    0.5 * crate::model::sk::dot(x, y)
+                },
+                rng,
+            ),
+            (AlgoSpec::Amp(p), Instance::Mixed(m)) => {
+                amp::run(p, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng)
+            }
+            (AlgoSpec::Iamp(p), Instance::Dense(d)) => iamp::run(p, d, 1.0, rng),
+            (AlgoSpec::Iamp(p), Instance::Mixed(m)) => match (m.dense(), m.is_quadratic()) {
+                (Some(d), true) => {
+                    // ξ''(0) = 2c for xi = { 2 = c }: H is sqrt(2c) times an SK Hamiltonian.
+                    iamp::run(p, d, m.mixture().d2(0.0).sqrt(), rng)
+                }
+                _ => Err(AlgoError::Unsupported {
+                    kind,
+                    why: "H is not quadratic",
+                }),
+            },
+            (AlgoSpec::Amp(_) | AlgoSpec::Iamp(_), _) => Err(AlgoError::Unsupported {
+                kind,
+                why: "it runs on dense models on the cube (sk, cube)",
+            }),
             (AlgoSpec::Hessian(_), _) => Err(AlgoError::Unsupported {
                 kind,
                 why: "Hessian ascent runs on the sphere",

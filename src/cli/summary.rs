@@ -1,5 +1,6 @@
 //! The short text table `kiln run` prints: per algorithm and size, the mean energy per spin
-//! over seeds with its standard error, and the mean distance at each ε.
+//! over seeds with its standard error, and the mean distance at each ε (after rounding, and
+//! before it for algorithms with a pre-rounding point).
 
 use crate::cell::Key;
 use crate::spec::Spec;
@@ -31,10 +32,14 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
         "{:<width$}  {:>7}  {:>17}",
         "algorithm", "n", "energy/n ± se"
     );
+    let points = records.values().any(|r| r.distance_point.is_some());
     if !eps.is_empty() {
         s += "   distance at ε =";
         for e in &eps {
             s += &format!(" {e:>6}");
+        }
+        if points {
+            s += "   before rounding";
         }
     }
     s += "\n";
@@ -68,6 +73,21 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
                         s += &format!(" {:>6}", "-");
                     } else {
                         s += &format!(" {:>6.3}", mean_se(&d).0);
+                    }
+                }
+                if points {
+                    s += "  ";
+                    for &e in &eps {
+                        let d: Vec<f64> = rows
+                            .iter()
+                            .filter(|r| r.epsilon == e)
+                            .filter_map(|r| r.distance_point)
+                            .collect();
+                        if d.is_empty() {
+                            s += &format!(" {:>6}", "-");
+                        } else {
+                            s += &format!(" {:>6.3}", mean_se(&d).0);
+                        }
                     }
                 }
             }

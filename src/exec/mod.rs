@@ -70,16 +70,26 @@ fn cached_record(
         || verified(cache.read_spins(&cell.key)?, damaged)
             .is_some_and(|s| s.len() as u64 == cell.n);
     let point_ok = !cell.is_base()
-        || !needs_point(spec)
+        || !keeps_point(spec, cell)
         || verified(cache.read_point(&cell.key)?, damaged)
             .is_some_and(|x| x.len() as u64 == cell.n);
     let record = verified(cache.read_record(&cell.key)?, damaged);
-    Ok(record.filter(|_| spins_ok && point_ok))
+    // An ε cell of a point-returning algorithm recorded before `distance_point` existed is
+    // recomputed rather than served without it.
+    let complete =
+        |r: &Record| cell.is_base() || !keeps_point(spec, cell) || r.distance_point.is_some();
+    Ok(record.filter(|r| spins_ok && point_ok && complete(r)))
 }
 
 /// Whether outputs are measured on their continuous points (the sphere) rather than spins.
 fn needs_point(spec: &Spec) -> bool {
     !spec.model.family.is_cube()
+}
+
+/// Whether the cell's reference keeps its continuous point: always on the sphere, and on the
+/// cube for algorithms with a pre-rounding point (so ε cells can report its distance).
+fn keeps_point(spec: &Spec, cell: &Cell) -> bool {
+    needs_point(spec) || spec.algorithms[cell.algo].algo.has_point()
 }
 
 /// A hit, or None after noting a damaged entry (the cache has already moved it aside).
@@ -424,6 +434,7 @@ fn compute_cell(
         energy_reduced: None,
         cut_fraction: None,
         relaxation: None,
+        distance_point: None,
         replica: cell.replica,
         wall_seconds: 0.0,
         host: prov.host.clone(),
@@ -495,6 +506,9 @@ fn compute_cell(
                 record.distance = measure::distance(&reference.spins, &out.spins);
             }
         }
+        if let (Some(a), Some(b)) = (&reference.point, &out.point) {
+            record.distance_point = Some(measure::distance_points(a, b));
+        }
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
@@ -531,7 +545,7 @@ fn load_reference(
         Lookup::Hit(spins) if spins.len() as u64 == cell.n => spins,
         _ => return Ok(None),
     };
-    let point = if needs_point(spec) {
+    let point = if keeps_point(spec, cell) {
         match cache.read_point(&cell.base)? {
             Lookup::Hit(x) if x.len() as u64 == cell.n => Some(x),
             _ => return Ok(None),

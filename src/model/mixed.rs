@@ -15,6 +15,7 @@ use crate::theory::Mixture;
 /// A sampled mixed instance.
 pub struct Mixed {
     n: usize,
+    xi: Mixture,
     dense: Option<Dense>,
     tensors: Vec<Tensor>,
 }
@@ -33,7 +34,17 @@ impl Mixed {
                 tensors.push(Tensor::sample(n, p as usize, c2, c, instance, epsilon));
             }
         }
-        Mixed { n, dense, tensors }
+        Mixed {
+            n,
+            xi: xi.clone(),
+            dense,
+            tensors,
+        }
+    }
+
+    /// The covariance ξ the instance was drawn from.
+    pub fn mixture(&self) -> &Mixture {
+        &self.xi
     }
 
     pub fn n(&self) -> usize {

@@ -9,7 +9,8 @@ pub mod plan;
 pub mod shard;
 
 use crate::algo::{
-    AlgoSpec, anneal, descent, exhaustive, gradient, hessian, lowrank, spectral, tempering,
+    AlgoSpec, amp, anneal, descent, exhaustive, gradient, hessian, iamp, lowrank, spectral,
+    tempering,
 };
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
@@ -115,7 +116,7 @@ struct RawAlgorithm {
     #[serde(default)]
     sweeps: Option<Spanned<i64>>,
     #[serde(default)]
-    beta: Option<Spanned<Vec<f64>>>,
+    beta: Option<Spanned<Beta>>,
     #[serde(default)]
     quench: Option<Spanned<bool>>,
     // spectral, gradient
@@ -140,6 +141,22 @@ struct RawAlgorithm {
     // hessian
     #[serde(default)]
     steps: Option<Spanned<i64>>,
+    #[serde(default)]
+    polish: Option<Spanned<bool>>,
+    // amp
+    #[serde(default)]
+    field: Option<Spanned<f64>>,
+    // iamp
+    #[serde(default)]
+    levels: Option<Spanned<i64>>,
+}
+
+/// `beta`: one inverse temperature (amp) or a schedule [start, end] (anneal, tempering).
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum Beta {
+    One(f64),
+    Range(Vec<f64>),
 }
 
 const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
@@ -148,7 +165,9 @@ const SPECTRAL_KEYS: &[&str] = &["tol", "basis", "max_matvecs"];
 const GRADIENT_KEYS: &[&str] = &["step", "tol", "max_iterations"];
 const TEMPERING_KEYS: &[&str] = &["replicas", "beta", "sweeps"];
 const LOWRANK_KEYS: &[&str] = &["rank", "tol", "max_sweeps", "roundings"];
-const HESSIAN_KEYS: &[&str] = &["steps", "tol"];
+const HESSIAN_KEYS: &[&str] = &["steps", "tol", "polish"];
+const AMP_KEYS: &[&str] = &["beta", "field", "tol", "max_iterations"];
+const IAMP_KEYS: &[&str] = &["step", "levels"];
 /// Largest degree p of a mixture term.
 pub const MAX_P: u32 = 8;
 
@@ -461,6 +480,13 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 "max_iterations",
                 a.max_iterations.as_ref().map(|x| x.span()),
             ),
+            ("replicas", a.replicas.as_ref().map(|x| x.span())),
+            ("rank", a.rank.as_ref().map(|x| x.span())),
+            ("roundings", a.roundings.as_ref().map(|x| x.span())),
+            ("steps", a.steps.as_ref().map(|x| x.span())),
+            ("polish", a.polish.as_ref().map(|x| x.span())),
+            ("field", a.field.as_ref().map(|x| x.span())),
+            ("levels", a.levels.as_ref().map(|x| x.span())),
         ]
         .into_iter()
         .filter_map(|(k, s)| s.map(|s| (k, s)))
@@ -474,6 +500,8 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             "tempering" => TEMPERING_KEYS,
             "lowrank" => LOWRANK_KEYS,
             "hessian" => HESSIAN_KEYS,
+            "amp" => AMP_KEYS,
+            "iamp" => IAMP_KEYS,
             _ => {
                 return Err(loc.at(
                     Some(a.kind.span()),
@@ -612,7 +640,46 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 if let Some(t) = &a.tol {
                     p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
                 }
+                if let Some(b) = &a.polish {
+                    p.polish = *b.get_ref();
+                }
                 AlgoSpec::Hessian(p)
+            }
+            "amp" => {
+                let mut p = amp::Params::default();
+                if let Some(b) = &a.beta {
+                    p.beta = beta_one(b, loc, &format!("{at}.beta"))?;
+                }
+                if let Some(h) = &a.field {
+                    p.field = nonnegative(h, loc, &format!("{at}.field"), 20.0)?;
+                }
+                if let Some(t) = &a.tol {
+                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
+                }
+                if let Some(m) = &a.max_iterations {
+                    p.max_iterations =
+                        positive(m, loc, &format!("{at}.max_iterations"), 1_000_000)?;
+                }
+                AlgoSpec::Amp(p)
+            }
+            "iamp" => {
+                let mut p = iamp::Params::default();
+                if let Some(st) = &a.step {
+                    let v = *st.get_ref();
+                    if !(v > 0.0 && v <= 0.25) {
+                        return Err(loc.at(
+                            Some(st.span()),
+                            format!("{at}.step"),
+                            format!("step = {v} is not a time step in (0, 0.25]"),
+                            Some("the run takes about 1/step matrix–vector products; e.g. step = 0.02".into()),
+                        ));
+                    }
+                    p.step = v;
+                }
+                if let Some(l) = &a.levels {
+                    p.levels = positive(l, loc, &format!("{at}.levels"), 64)?.max(2);
+                }
+                AlgoSpec::Iamp(p)
             }
             _ => {
                 let mut p = anneal::Params::default();
@@ -757,8 +824,52 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
 }
 
 /// `beta = [start, end]`: finite, start ≥ 0, increasing.
-fn beta_range(b: &Spanned<Vec<f64>>, loc: &Locator, key: &str) -> Result<[f64; 2], SpecError> {
-    let v = b.get_ref();
+/// A single inverse temperature (amp).
+fn beta_one(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<f64, SpecError> {
+    match b.get_ref() {
+        Beta::One(v) if v.is_finite() && *v > 0.0 && *v <= 100.0 => Ok(*v),
+        Beta::One(v) => Err(loc.at(
+            Some(b.span()),
+            key,
+            format!("beta = {v} is not an inverse temperature in (0, 100]"),
+            Some("e.g. beta = 1.5".into()),
+        )),
+        Beta::Range(_) => Err(loc.at(
+            Some(b.span()),
+            key,
+            "amp takes one inverse temperature, not a schedule",
+            Some("write beta = 1.5".into()),
+        )),
+    }
+}
+
+/// A number in [0, max].
+fn nonnegative(v: &Spanned<f64>, loc: &Locator, key: &str, max: f64) -> Result<f64, SpecError> {
+    let x = *v.get_ref();
+    if x.is_finite() && (0.0..=max).contains(&x) {
+        Ok(x)
+    } else {
+        Err(loc.at(
+            Some(v.span()),
+            key,
+            format!("{x} is out of range"),
+            Some(format!("give a number between 0 and {max}")),
+        ))
+    }
+}
+
+fn beta_range(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<[f64; 2], SpecError> {
+    let v = match b.get_ref() {
+        Beta::Range(v) => v,
+        Beta::One(x) => {
+            return Err(loc.at(
+                Some(b.span()),
+                key,
+                format!("beta = {x} is one number; this kind needs a schedule"),
+                Some(format!("beta = [start, end], e.g. [0.1, {x}]")),
+            ));
+        }
+    };
     if v.len() != 2 {
         return Err(loc.at(
             Some(b.span()),
@@ -797,6 +908,8 @@ fn kinds_for(m: &ModelSpec) -> Vec<String> {
         AlgoSpec::Tempering(Default::default()),
         AlgoSpec::Lowrank(Default::default()),
         AlgoSpec::Hessian(Default::default()),
+        AlgoSpec::Amp(Default::default()),
+        AlgoSpec::Iamp(Default::default()),
     ]
     .iter()
     .filter(|a| a.unsupported(m).is_none())

@@ -54,6 +54,10 @@ pub struct Record {
     /// Value per spin of the relaxation an algorithm solved before rounding (lowrank).
     #[serde(default)]
     pub relaxation: Option<f64>,
+    /// ‖x − x'‖/√n of the pre-rounding points (norm √n each), for algorithms that return one;
+    /// on the sphere it equals `distance`.
+    #[serde(default)]
+    pub distance_point: Option<f64>,
     /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
     #[serde(default)]
     pub replica: u32,
@@ -459,6 +463,7 @@ mod tests {
             energy_reduced: None,
             cut_fraction: None,
             relaxation: None,
+            distance_point: None,
             replica: 0,
             wall_seconds: 0.5,
             host: "h".into(),

@@ -10,11 +10,12 @@ use super::{StoreError, write_atomic};
 use polars::prelude::*;
 use std::path::Path;
 
-/// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added).
-pub const TABLE_FORMAT: &str = "kiln-cells/2";
+/// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added;
+/// 3: `distance_point`).
+pub const TABLE_FORMAT: &str = "kiln-cells/3";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; relaxation = value per spin of the pre-rounding point or relaxation. SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
@@ -53,6 +54,7 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("energy_reduced", |r: &Row| r.record.energy_reduced),
         col!("cut_fraction", |r: &Row| r.record.cut_fraction),
         col!("relaxation", |r: &Row| r.record.relaxation),
+        col!("distance_point", |r: &Row| r.record.distance_point),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),

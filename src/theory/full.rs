@@ -99,6 +99,41 @@ impl Problem {
         }
     }
 
+    /// One Parisi step on the grid: Ψ(x) = (1/m) log E exp(m·next(x + aZ)) and ∂Ψ/∂m
+    /// (at m → 0: the expectation, and ∂/∂m = Var/2).
+    fn level(&self, next: &[f64], mj: f64, aj: f64) -> (Vec<f64>, Vec<f64>) {
+        let g = self.xs.len();
+        let mut vals = vec![0.0; self.rule.len()];
+        let mut p = Vec::with_capacity(g);
+        let mut d = Vec::with_capacity(g);
+        for &x in &self.xs {
+            for (v, &(z, _)) in vals.iter_mut().zip(&self.rule) {
+                *v = stencil(-self.half, self.dx, g, x + aj * z)
+                    .iter()
+                    .map(|&(i, w)| w * next[i])
+                    .sum();
+            }
+            if mj < 1e-9 {
+                let e1: f64 = vals.iter().zip(&self.rule).map(|(v, r)| r.1 * v).sum();
+                let e2: f64 = vals.iter().zip(&self.rule).map(|(v, r)| r.1 * v * v).sum();
+                p.push(e1);
+                d.push(0.5 * (e2 - e1 * e1));
+                continue;
+            }
+            let mx = vals.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+            let (mut s0, mut s1) = (0.0, 0.0);
+            for (&v, &(_, w)) in vals.iter().zip(&self.rule) {
+                let e = w * (mj * (v - mx)).exp();
+                s0 += e;
+                s1 += e * v;
+            }
+            let ps = mx + s0.ln() / mj;
+            p.push(ps);
+            d.push((s1 / s0 - ps) / mj);
+        }
+        (p, d)
+    }
+
     /// P(m) and ∂P/∂m.
     fn value_grad(&self, m: &[f64]) -> (f64, Vec<f64>) {
         let k = m.len();
@@ -130,38 +165,8 @@ impl Problem {
                 k
             }
         };
-        let mut vals = vec![0.0; self.rule.len()];
         for j in (0..first_quadrature).rev() {
-            let (mj, aj) = (m[j], self.a[j]);
-            let mut p = Vec::with_capacity(g);
-            let mut d = Vec::with_capacity(g);
-            let nv = &psi[j + 1];
-            for &x in &self.xs {
-                for (v, &(z, _)) in vals.iter_mut().zip(&self.rule) {
-                    *v = stencil(-self.half, self.dx, g, x + aj * z)
-                        .iter()
-                        .map(|&(i, w)| w * nv[i])
-                        .sum();
-                }
-                if mj < 1e-9 {
-                    // m → 0: the expectation, and ∂/∂m = Var/2.
-                    let e1: f64 = vals.iter().zip(&self.rule).map(|(v, r)| r.1 * v).sum();
-                    let e2: f64 = vals.iter().zip(&self.rule).map(|(v, r)| r.1 * v * v).sum();
-                    p.push(e1);
-                    d.push(0.5 * (e2 - e1 * e1));
-                    continue;
-                }
-                let mx = vals.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
-                let (mut s0, mut s1) = (0.0, 0.0);
-                for (&v, &(_, w)) in vals.iter().zip(&self.rule) {
-                    let e = w * (mj * (v - mx)).exp();
-                    s0 += e;
-                    s1 += e * v;
-                }
-                let ps = mx + s0.ln() / mj;
-                p.push(ps);
-                d.push((s1 / s0 - ps) / mj);
-            }
+            let (p, d) = self.level(&psi[j + 1], m[j], self.a[j]);
             psi[j] = p;
             dpsi[j] = d;
         }
@@ -417,6 +422,52 @@ pub fn full_rsb(xi: &Mixture, s: &FullSettings) -> FullRsb {
         })
         .collect();
     solve_on(xi, k, s, &start, None)
+}
+
+/// The Parisi field of a zero-temperature solution at given times: Φ(t, ·) on a uniform grid,
+/// Φ(t, x) = (1/m_j) log E exp(m_j Φ(q_{j+1}, x + sqrt(ξ'(q_{j+1}) − ξ'(t)) Z)) for t in
+/// [q_j, q_{j+1}), and in the last interval the closed form from Φ(1, x) = |x|. Its x-derivatives
+/// drive incremental AMP (Montanari, arXiv:1812.10897): the drift γ(t)ξ''(t)∂ₓΦ and the
+/// martingale increments ∂ₓₓΦ dB.
+pub struct Field {
+    /// Grid start and spacing.
+    pub x0: f64,
+    pub dx: f64,
+    /// γ at each requested time.
+    pub gamma: Vec<f64>,
+    /// Φ(t_k, x0 + i·dx) for each requested time t_k.
+    pub phi: Vec<Vec<f64>>,
+}
+
+pub fn field(xi: &Mixture, sol: &FullRsb, s: &FullSettings, times: &[f64]) -> Field {
+    let p = Problem::new(xi, &sol.q, s, None);
+    let k = sol.m.len();
+    let mut psi: Vec<Vec<f64>> = vec![Vec::new(); k];
+    psi[k - 1] =
+        p.xs.iter()
+            .map(|&x| last_level(x, sol.m[k - 1], p.a[k - 1]))
+            .collect();
+    for j in (0..k - 1).rev() {
+        psi[j] = p.level(&psi[j + 1], sol.m[j], p.a[j]).0;
+    }
+    let mut gamma = Vec::with_capacity(times.len());
+    let mut phi = Vec::with_capacity(times.len());
+    for &t in times {
+        let j = (0..k).rfind(|&j| sol.q[j] <= t).unwrap_or(0);
+        let a = (xi.d1(sol.q[j + 1]) - xi.d1(t)).max(0.0).sqrt();
+        gamma.push(sol.m[j]);
+        phi.push(if j + 1 == k {
+            p.xs.iter().map(|&x| last_level(x, sol.m[j], a)).collect()
+        } else {
+            p.level(&psi[j + 1], sol.m[j], a).0
+        });
+    }
+    Field {
+        x0: -p.half,
+        dx: p.dx,
+        gamma,
+        phi,
+    }
 }
 
 /// The Parisi free energy lim (1/n) E log Σ_σ e^{βH(σ)} at inverse temperature β on the cube:

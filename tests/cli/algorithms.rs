@@ -55,6 +55,8 @@ fn no_algorithm_beats_exhaustive_search() {
         AlgoSpec::Lowrank(Default::default()),
         AlgoSpec::Descent(Default::default()),
         AlgoSpec::Anneal(Default::default()),
+        AlgoSpec::Amp(Default::default()),
+        AlgoSpec::Iamp(Default::default()),
     ];
     for t in 0..10 {
         for n in [8usize, 12, 16] {
@@ -142,6 +144,7 @@ fn hessian_ascent_on_the_sphere() {
     let one = AlgoSpec::Hessian(hessian::Params {
         steps: 1,
         tol: 1e-12,
+        polish: false,
     });
     let x = one
         .run(&inst, &mut stream(&id("h2r", 0), Purpose::Algorithm, 0))
@@ -159,23 +162,49 @@ fn hessian_ascent_on_the_sphere() {
     m3.xi = kiln::theory::Mixture {
         terms: vec![(3, 1.0)],
     };
+    // Pure spherical 3-spin: every output below the ground state 1.657 (Crisanti & Sommers,
+    // Z. Phys. B 87, 341 (1992)); the means at n = 100, 200, 400 (4 instances each),
+    // extrapolated by weighted least squares in n^{-2/3} (the finite-size exponent of
+    // mean-field ground states, common practice), reach 2·sqrt(2/3) = 1.633 (Subag,
+    // arXiv:1812.04588) within 3 standard errors of the intercept (propagated from the
+    // per-size standard errors). Measured: 1.489, 1.568, 1.585 (→ ≈ 1.64).
     let algo = AlgoSpec::Hessian(hessian::Params::default());
-    let mut means = Vec::new();
-    for n in [100usize, 300] {
-        let mut e = 0.0;
-        for t in 0..2 {
-            let inst = m3.sample(n, &id("h3", t), 0.0);
-            let out = algo
-                .run(&inst, &mut stream(&id("h3r", t), Purpose::Algorithm, 0))
-                .unwrap();
-            let v = inst.value(out.point.as_ref().unwrap()) / n as f64;
-            assert!(v < 1.657, "n {n}: {v} above the ground state");
-            e += v / 2.0;
+    let (mut xs, mut ys, mut ws) = (Vec::new(), Vec::new(), Vec::new());
+    for n in [100usize, 200, 400] {
+        let e: Vec<f64> = (0..4)
+            .map(|t| {
+                let inst = m3.sample(n, &id("h3", t), 0.0);
+                let out = algo
+                    .run(&inst, &mut stream(&id("h3r", t), Purpose::Algorithm, 0))
+                    .unwrap();
+                inst.value(out.point.as_ref().unwrap()) / n as f64
+            })
+            .collect();
+        for v in &e {
+            assert!(*v < 1.657, "n {n}: {v} above the ground state");
         }
-        eprintln!("Hessian ascent, pure 3-spin, n = {n}: {e:.4}");
-        means.push(e);
+        let (mean, se) = crate::util::mean_se(&e);
+        eprintln!("Hessian ascent, pure 3-spin, n = {n}: {mean:.4} ± {se:.4}");
+        xs.push((n as f64).powf(-2.0 / 3.0));
+        ys.push(mean);
+        ws.push(1.0 / (se * se).max(1e-12));
     }
-    assert!(means[1] > means[0] && means[0] > 1.4, "{means:?}");
+    // Weighted least squares y = a + b x and the standard error of a.
+    let sw: f64 = ws.iter().sum();
+    let sx: f64 = ws.iter().zip(&xs).map(|(w, x)| w * x).sum();
+    let sy: f64 = ws.iter().zip(&ys).map(|(w, y)| w * y).sum();
+    let sxx: f64 = ws.iter().zip(&xs).map(|(w, x)| w * x * x).sum();
+    let sxy: f64 = ws
+        .iter()
+        .zip(xs.iter().zip(&ys))
+        .map(|(w, (x, y))| w * x * y)
+        .sum();
+    let det = sw * sxx - sx * sx;
+    let a = (sxx * sy - sx * sxy) / det;
+    let se_a = (sxx / det).sqrt();
+    let alg = 2.0 * (2.0f64 / 3.0).sqrt();
+    eprintln!("extrapolated: {a:.4} ± {se_a:.4} (threshold {alg:.4})");
+    assert!((a - alg).abs() < 3.0 * se_a, "{a} ± {se_a} vs {alg}");
 }
 
 /// Replica overlaps (`sweep.replicas = 3`): two extra independent runs per (instance,
@@ -330,7 +359,7 @@ fn spectral_on_sk() {
 /// key).
 #[test]
 fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
-    use kiln::algo::{anneal, descent, gradient, hessian, lowrank};
+    use kiln::algo::{amp, anneal, descent, gradient, hessian, iamp, lowrank};
     use kiln::model::Family;
     let cube = ModelSpec::sk(Couplings::Pm1);
     let mut sphere = ModelSpec::sk(Couplings::Gaussian);
@@ -363,6 +392,8 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             sphere.clone(),
             AlgoSpec::Hessian(hessian::Params::default()),
         ),
+        (cube.clone(), AlgoSpec::Amp(amp::Params::default())),
+        (cube.clone(), AlgoSpec::Iamp(iamp::Params::default())),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {
@@ -387,4 +418,133 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         kinds.insert(a.kind());
     }
     assert_eq!(kinds.len(), AlgoSpec::KINDS.len(), "every kind is covered");
+}
+
+/// AMP at (β, h) on the replica-symmetric side of the AT line converges, and the value of its
+/// fixed point is the state-evolution prediction H(m)/n = βq(1 − q), q = E tanh²(h + β√q Z)
+/// (Bolthausen, Commun. Math. Phys. 325 (2014), arXiv:1201.2891: the iterates' empirical law is
+/// m = tanh(h + β√q Z); then ⟨m, Am⟩/n = ⟨m, z⟩/n + β(1 − q)q with z the Onsager-corrected
+/// field, and Stein's lemma gives E[m·√q Z] = βq(1 − q); derived here, common practice).
+/// q is solved independently of kiln (Simpson's rule, 4000 panels on [−10, 10]). Tolerance:
+/// 4 SE of the mean over 4 instances at n = 3000 plus 0.005 for the O(n^{-1/2}) finite-size
+/// bias of state evolution (common practice). Also: AMP's output moves much less than
+/// annealing's under ε = 0.01 (stable vs unstable), before and after rounding.
+#[test]
+fn amp_matches_state_evolution_and_is_stable() {
+    use kiln::algo::amp;
+    let (beta, h) = (1.2, 0.8);
+    let q_star = {
+        let (steps, z0) = (4000, 10.0);
+        let hh = 2.0 * z0 / steps as f64;
+        let e = |q: f64| -> f64 {
+            (0..=steps)
+                .map(|i| {
+                    let z = -z0 + i as f64 * hh;
+                    let w = if i == 0 || i == steps {
+                        1.0
+                    } else if i % 2 == 1 {
+                        4.0
+                    } else {
+                        2.0
+                    };
+                    w * (-0.5 * z * z).exp() * (h + beta * q.sqrt() * z).tanh().powi(2)
+                })
+                .sum::<f64>()
+                * hh
+                / 3.0
+                / (2.0 * std::f64::consts::PI).sqrt()
+        };
+        let mut q: f64 = 1.0;
+        for _ in 0..500 {
+            q = e(q);
+        }
+        q
+    };
+    let want = beta * q_star * (1.0 - q_star);
+    let m = ModelSpec::sk(Couplings::Gaussian);
+    let algo = AlgoSpec::Amp(amp::Params {
+        beta,
+        field: h,
+        ..Default::default()
+    });
+    let n = 3000;
+    let values: Vec<f64> = (0..4)
+        .map(|t| {
+            let inst = m.sample(n, &id("amp", t), 0.0);
+            let out = algo
+                .run(&inst, &mut stream(&id("ampr", t), Purpose::Algorithm, 0))
+                .unwrap();
+            assert!(out.info.converged, "instance {t}: {:?}", out.info);
+            out.info.relaxation.unwrap()
+        })
+        .collect();
+    let (mean, se) = crate::util::mean_se(&values);
+    eprintln!("AMP H(m)/n = {mean:.5} ± {se:.5}, state evolution {want:.5} (q = {q_star:.5})");
+    assert!(
+        (mean - want).abs() < 4.0 * se + 0.005,
+        "{mean} ± {se} vs {want}"
+    );
+
+    // Stability at n = 1000, ε = 0.01, 3 instances: mean distance of AMP's spins below half
+    // of annealing's (measured 0.41 vs 1.3 at n = 2000), its point's below a quarter.
+    let n = 1000;
+    let anneal = AlgoSpec::Anneal(Default::default());
+    let (mut d_amp, mut d_point, mut d_anneal) = (0.0, 0.0, 0.0);
+    for t in 0..3 {
+        let a = m.sample(n, &id("amps", t), 0.0);
+        let b = m.sample(n, &id("amps", t), 0.01);
+        let run = |algo: &AlgoSpec, inst: &kiln::model::Instance| {
+            algo.run(inst, &mut stream(&id("ampsr", t), Purpose::Algorithm, 0))
+                .unwrap()
+        };
+        let (x, y) = (run(&algo, &a), run(&algo, &b));
+        d_amp += kiln::measure::distance(&x.spins, &y.spins) / 3.0;
+        d_point +=
+            kiln::measure::distance_points(x.point.as_ref().unwrap(), y.point.as_ref().unwrap())
+                / 3.0;
+        let (x, y) = (run(&anneal, &a), run(&anneal, &b));
+        d_anneal += kiln::measure::distance(&x.spins, &y.spins) / 3.0;
+    }
+    eprintln!("distance at ε = 0.01: AMP {d_amp:.3} (point {d_point:.3}), annealing {d_anneal:.3}");
+    assert!(d_amp < 0.5 * d_anneal && d_point < 0.25 * d_anneal);
+}
+
+/// Incremental AMP on SK, driven by kiln's own full-RSB solution: the energy of sign(m)
+/// approaches the Parisi value P* = 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137
+/// (2002)); Montanari (arXiv:1812.10897) proves (1 − ε)P* for large n and small δ. At n = 3000
+/// with the default δ = 0.01 it must beat 0.97·P* = 0.7403 (measured 0.744 at n = 4000) and
+/// single-flip descent on the same instances (≈ 0.69, REFERENCES: common practice) by
+/// 4 SE; the pre-rounding value H(m)/n must lie below P* + 4 SE (m is a point of the cube's
+/// hull up to the AMP error). 3 instances.
+#[test]
+fn iamp_approaches_the_parisi_value() {
+    use kiln::algo::{descent, iamp};
+    let m = ModelSpec::sk(Couplings::Gaussian);
+    let algo = AlgoSpec::Iamp(iamp::Params::default());
+    let desc = AlgoSpec::Descent(descent::Params::default());
+    let n = 3000;
+    let (mut e, mut dsc, mut relax) = (Vec::new(), Vec::new(), Vec::new());
+    for t in 0..3 {
+        let inst = m.sample(n, &id("iamp", t), 0.0);
+        let out = algo
+            .run(&inst, &mut stream(&id("iampr", t), Purpose::Algorithm, 0))
+            .unwrap();
+        e.push(inst.energy(&out.spins) / n as f64);
+        relax.push(out.info.relaxation.unwrap());
+        let d = desc
+            .run(&inst, &mut stream(&id("iampd", t), Purpose::Algorithm, 0))
+            .unwrap();
+        dsc.push(inst.energy(&d.spins) / n as f64);
+    }
+    let (me, se) = crate::util::mean_se(&e);
+    let (md, sd) = crate::util::mean_se(&dsc);
+    let (mr, sr) = crate::util::mean_se(&relax);
+    eprintln!("IAMP n = {n}: sign(m) {me:.4} ± {se:.4}, H(m)/n {mr:.4} ± {sr:.4}; descent {md:.4}");
+    let p_star = 0.7631667;
+    assert!(me > 0.97 * p_star - 4.0 * se, "{me} ± {se}");
+    assert!(
+        me - md > 4.0 * (se * se + sd * sd).sqrt(),
+        "IAMP {me} vs descent {md}"
+    );
+    assert!(mr < p_star + 4.0 * sr, "{mr} ± {sr}");
 }

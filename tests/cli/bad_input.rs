@@ -125,6 +125,38 @@ fn beta_not_increasing() {
     );
 }
 
+/// `beta` is one number for amp and a schedule for annealing: each form is refused where it
+/// does not apply, and a setting of another kind (here `steps`, once silently ignored on
+/// non-hessian kinds) is refused too.
+#[test]
+fn beta_form_and_foreign_settings() {
+    refuse(
+        &SMALL.replace("beta = [0.1, 3.0]", "beta = 3.0"),
+        &[
+            "line 24",
+            "key `algorithm[2].beta`",
+            "beta = 3 is one number; this kind needs a schedule",
+        ],
+    );
+    refuse(
+        &SMALL
+            .replace("kind = \"anneal\"", "kind = \"amp\"")
+            .replace("sweeps = 20\n", ""),
+        &[
+            "key `algorithm[2].beta`",
+            "amp takes one inverse temperature, not a schedule",
+        ],
+    );
+    refuse(
+        &SMALL.replace("sweeps = 20", "steps = 20"),
+        &[
+            "line 23",
+            "key `algorithm[2].steps`",
+            "does not apply to kind `anneal`",
+        ],
+    );
+}
+
 #[test]
 fn unknown_family() {
     refuse(
