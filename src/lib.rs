@@ -9,6 +9,7 @@ pub mod cell;
 pub mod cli;
 pub mod exec;
 pub mod fit;
+pub mod kernels;
 pub mod linalg;
 pub mod measure;
 pub mod model;

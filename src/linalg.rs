@@ -96,9 +96,7 @@ pub fn tridiagonal_eigen(d: &[f64], e: &[f64]) -> Result<(Vec<f64>, Vec<f64>), S
     Ok((vals, zs))
 }
 
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
+use crate::kernels::{axpy, dot};
 
 fn normalize(v: &mut [f64]) -> f64 {
     let s = dot(v, v).sqrt();
@@ -138,7 +136,7 @@ pub fn top_eigen(
             for _ in 0..2 {
                 for qi in &q {
                     let c = dot(&w, qi);
-                    w.iter_mut().zip(qi).for_each(|(x, y)| *x -= c * y);
+                    axpy(&mut w, -c, qi);
                 }
             }
             let b = dot(&w, &w).sqrt();
@@ -155,8 +153,7 @@ pub fn top_eigen(
             if done || j + 1 == basis.min(n) {
                 let mut v = vec![0.0; n];
                 for (i, qi) in q.iter().enumerate() {
-                    let c = z[i * k + (k - 1)];
-                    v.iter_mut().zip(qi).for_each(|(x, y)| *x += c * y);
+                    axpy(&mut v, z[i * k + (k - 1)], qi);
                 }
                 normalize(&mut v);
                 ritz = (theta, v);

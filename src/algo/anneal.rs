@@ -51,6 +51,7 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let mut h = vec![0.0; n];
     d.fields(&s, &mut h);
     let mut info = Info::default();
+    let mut accept = super::Metropolis::new(d.integer_gain_bound());
     let steps = p.sweeps.max(1);
     for sweep in 0..steps {
         let beta = if steps > 1 {
@@ -58,9 +59,10 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
         } else {
             p.beta[1]
         };
+        accept.set_beta(beta);
         for i in 0..n {
             let g = -2.0 * (s[i] as f64) * h[i];
-            if g >= 0.0 || rng.uniform() < libm::exp(beta * g) {
+            if g >= 0.0 || rng.uniform() < accept.prob(g) {
                 d.flip(&mut s, &mut h, i);
                 info.iterations += 1;
             }

@@ -332,6 +332,48 @@ fn with_relaxation((mut out, value): (Output, f64)) -> Output {
     out
 }
 
+/// Metropolis acceptance probabilities exp(βg) for a gain g < 0. When every gain is an even
+/// integer of bounded size (integer couplings on graphs and lattices), the values for the
+/// current β are tabulated once: the same `libm::exp` of the same argument (g = −k exactly),
+/// so the decisions are bit-identical to computing them per attempt, at a table lookup's cost.
+pub(crate) struct Metropolis {
+    beta: f64,
+    bound: Option<usize>,
+    table: Vec<f64>,
+}
+
+impl Metropolis {
+    pub(crate) fn new(bound: Option<usize>) -> Self {
+        Metropolis {
+            beta: f64::NAN,
+            bound,
+            table: Vec::new(),
+        }
+    }
+
+    pub(crate) fn set_beta(&mut self, beta: f64) {
+        if beta.to_bits() == self.beta.to_bits() {
+            return;
+        }
+        self.beta = beta;
+        if let Some(b) = self.bound {
+            self.table.clear();
+            self.table
+                .extend((0..=b).map(|k| libm::exp(beta * -(k as f64))));
+        }
+    }
+
+    /// exp(βg) for g < 0.
+    #[inline(always)]
+    pub(crate) fn prob(&self, g: f64) -> f64 {
+        let k = -g;
+        if self.bound.is_some() && k == (k as usize) as f64 && (k as usize) < self.table.len() {
+            return self.table[k as usize];
+        }
+        libm::exp(self.beta * g)
+    }
+}
+
 /// A uniformly random start in {±1}^n.
 pub(crate) fn random_start(n: usize, rng: &mut Stream) -> Vec<i8> {
     (0..n).map(|_| rng.sign() as i8).collect()

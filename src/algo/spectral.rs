@@ -14,7 +14,8 @@ use crate::linalg::top_eigen;
 use crate::rng::Stream;
 
 /// Revision of this algorithm's code.
-pub const REVISION: u32 = 1;
+/// 2: Lanczos sums with the shared 16-lane kernels (last-bit changes).
+pub const REVISION: u32 = 2;
 
 /// Settings.
 #[derive(Clone, Debug, PartialEq)]

@@ -72,13 +72,21 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let mut best = f64::NEG_INFINITY;
     let mut best_s = spins[0].clone();
     let mut info = Info::default();
+    let mut accept: Vec<super::Metropolis> = betas
+        .iter()
+        .map(|&b| {
+            let mut m = super::Metropolis::new(d.integer_gain_bound());
+            m.set_beta(b);
+            m
+        })
+        .collect();
     for sweep in 0..p.sweeps {
-        for (k, &beta) in betas.iter().enumerate() {
+        for (k, acc) in accept.iter_mut().enumerate() {
             let rep = at[k];
             let (s, h) = (&mut spins[rep], &mut fields[rep]);
             for i in 0..n {
                 let g = -2.0 * (s[i] as f64) * h[i];
-                if g >= 0.0 || rng.uniform() < libm::exp(beta * g) {
+                if g >= 0.0 || rng.uniform() < acc.prob(g) {
                     d.flip(s, h, i);
                     energy[rep] += g;
                     info.iterations += 1;

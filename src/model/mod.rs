@@ -122,6 +122,11 @@ impl Family {
         self != Family::Sphere
     }
     /// Whether the family is a sparse graph (couplings may be `cut`).
+    /// Families stored densely (matrix and tensors): sk, cube, sphere.
+    pub fn is_dense(self) -> bool {
+        matches!(self, Family::Sk | Family::Cube | Family::Sphere)
+    }
+
     pub fn is_sparse(self) -> bool {
         matches!(self, Family::ErdosRenyi | Family::Regular | Family::Lattice)
     }
@@ -161,8 +166,16 @@ impl ModelSpec {
         }
     }
 
-    /// Canonical identity (for keys).
+    /// Canonical identity (for cell keys): the disorder's identity plus, for dense families,
+    /// the shared kernels' summation pattern, which moves energies in the last bits (so it is
+    /// part of every dense cell's key, but not of the instance id: couplings do not change).
     pub fn canon(&self) -> Canon {
+        self.sampler_canon()
+            .with_if(self.family.is_dense(), "kernels", crate::kernels::REVISION)
+    }
+
+    /// Family, couplings, sampler revision and family parameters.
+    fn sampler_canon(&self) -> Canon {
         let c = Canon::map()
             .with("family", self.family.name())
             .with("couplings", self.couplings.name())
@@ -181,14 +194,14 @@ impl ModelSpec {
     pub fn disorder_canon(&self) -> Canon {
         match self.family {
             Family::Cube | Family::Sphere if self.xi == Mixture::sk() => {
-                ModelSpec::sk(self.couplings).canon()
+                ModelSpec::sk(self.couplings).sampler_canon()
             }
             Family::Cube | Family::Sphere => Canon::map()
                 .with("family", "mixed")
                 .with("couplings", self.couplings.name())
                 .with("revision", self.revision())
                 .with("xi", self.xi.canon()),
-            _ => self.canon(),
+            _ => self.sampler_canon(),
         }
     }
 
@@ -301,11 +314,19 @@ pub trait Cube: Sync {
     fn energy(&self, s: &[i8]) -> f64;
     /// Flips spin k in `s` and updates every field.
     fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize);
+    /// When every coupling is an integer, the fields stay exact integers and every gain
+    /// −2σ_i h_i is an even integer of magnitude at most this bound; None otherwise.
+    fn integer_gain_bound(&self) -> Option<usize> {
+        None
+    }
 }
 
 impl Cube for sparse::Graph {
     fn n(&self) -> usize {
         sparse::Graph::n(self)
+    }
+    fn integer_gain_bound(&self) -> Option<usize> {
+        sparse::Graph::integer_gain_bound(self)
     }
     fn fields(&self, s: &[i8], h: &mut [f64]) {
         sparse::Graph::fields(self, s, h)

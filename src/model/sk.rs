@@ -114,10 +114,43 @@ impl Dense {
         }
     }
 
-    /// y = A x.
+    /// y = A x, reading only the upper triangle, four rows at a time: rows i..i+4 add their
+    /// parts right of the 4×4 diagonal block to y_i..y_{i+3} (dot products) and x_i..x_{i+3}
+    /// times those parts to y_j, j ≥ i + 4, in one pass ([`crate::kernels::sym4`]); the
+    /// diagonal block and the last n mod 4 rows are summed in a fixed scalar order. Half the
+    /// memory traffic of a full product; deterministic.
     pub fn matvec(&self, x: &[f64], y: &mut [f64]) {
-        for (i, yi) in y.iter_mut().enumerate() {
-            *yi = dot(self.row(i), x);
+        let n = self.n;
+        y.iter_mut().for_each(|v| *v = 0.0);
+        let mut i = 0;
+        while i + 4 <= n {
+            for a in i..i + 4 {
+                for b in a + 1..i + 4 {
+                    let v = self.a[a * n + b];
+                    y[a] += v * x[b];
+                    y[b] += v * x[a];
+                }
+            }
+            let rows = [
+                &self.row(i)[i + 4..],
+                &self.row(i + 1)[i + 4..],
+                &self.row(i + 2)[i + 4..],
+                &self.row(i + 3)[i + 4..],
+            ];
+            let c = [x[i], x[i + 1], x[i + 2], x[i + 3]];
+            let (head, tail) = y.split_at_mut(i + 4);
+            let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c);
+            for r in 0..4 {
+                head[i + r] += s[r];
+            }
+            i += 4;
+        }
+        for a in i..n {
+            for b in a + 1..n {
+                let v = self.a[a * n + b];
+                y[a] += v * x[b];
+                y[b] += v * x[a];
+            }
         }
     }
 
@@ -135,47 +168,11 @@ impl Dense {
     pub fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
         s[k] = -s[k];
         let c = 2.0 * s[k] as f64;
-        for (hi, &a) in h.iter_mut().zip(self.row(k)) {
-            *hi += c * a;
-        }
+        crate::kernels::axpy(h, c, self.row(k));
     }
 }
 
-#[inline(always)]
-fn dot_signs(row: &[f64], s: &[i8]) -> f64 {
-    // Four partial sums in a fixed pattern: deterministic and vectorisable.
-    let mut acc = [0.0f64; 4];
-    let rc = row.chunks_exact(4);
-    let sc = s.chunks_exact(4);
-    let mut tail = 0.0;
-    for (&x, &y) in rc.remainder().iter().zip(sc.remainder()) {
-        tail += x * y as f64;
-    }
-    for (r, q) in rc.zip(sc) {
-        for ((a, &x), &y) in acc.iter_mut().zip(r).zip(q) {
-            *a += x * y as f64;
-        }
-    }
-    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
-}
-
-/// Dot product with four partial sums in a fixed pattern: deterministic and vectorisable.
-#[inline(always)]
-pub(crate) fn dot(row: &[f64], x: &[f64]) -> f64 {
-    let mut acc = [0.0f64; 4];
-    let rc = row.chunks_exact(4);
-    let xc = x.chunks_exact(4);
-    let mut tail = 0.0;
-    for (&a, &b) in rc.remainder().iter().zip(xc.remainder()) {
-        tail += a * b;
-    }
-    for (r, q) in rc.zip(xc) {
-        for ((a, &u), &v) in acc.iter_mut().zip(r).zip(q) {
-            *a += u * v;
-        }
-    }
-    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
-}
+pub(crate) use crate::kernels::{dot, dot_signs};
 
 impl super::Cube for Dense {
     fn n(&self) -> usize {

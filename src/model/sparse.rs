@@ -150,6 +150,23 @@ impl Graph {
         out
     }
 
+    /// 2·max_i Σ_j |J_ij| when every coupling is an integer of magnitude ≤ 2^20 (±1 and cut
+    /// couplings), else None: then fields are exact integers (sums of integers below 2^53).
+    pub fn integer_gain_bound(&self) -> Option<usize> {
+        if !self
+            .w
+            .iter()
+            .all(|&x| x.fract() == 0.0 && x.abs() <= (1u32 << 20) as f64)
+        {
+            return None;
+        }
+        let mut best = 0.0f64;
+        for i in 0..self.n {
+            best = best.max(self.adj(i).1.iter().map(|x| x.abs()).sum());
+        }
+        Some(2 * best as usize)
+    }
+
     /// Σ_j J_ij σ_j for one vertex.
     #[inline(always)]
     fn field(&self, i: usize, s: &[i8]) -> f64 {

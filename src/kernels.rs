@@ -1,0 +1,431 @@
+//! The dense inner loops every dense model and algorithm shares: dot products (f64·f64 and
+//! f64·±1) and the field update y += c·x.
+//!
+//! Determinism: each reduction uses [`LANES`] partial sums in a fixed pattern (element k goes
+//! to partial sum k mod LANES; the partial sums are combined in a fixed tree, then the tail),
+//! so the result is the same bits whatever instruction set runs it. Rust never reassociates or
+//! contracts floating-point operations, so the AVX2 copies below (same source, compiled with
+//! `target_feature(enable = "avx2")` and chosen at run time) give identical results to the
+//! baseline x86-64 code; they are faster because four doubles fit a register and sixteen
+//! partial sums hide the adder latency (measured: scripts/bench.sh).
+
+// Index loops here state the summation pattern explicitly; iterator chains would hide it.
+#![allow(clippy::needless_range_loop)]
+
+/// Partial sums per reduction.
+pub const LANES: usize = 16;
+
+/// Revision of these kernels' arithmetic (the summation pattern). It enters the cache key of
+/// every dense cell (see `ModelSpec::canon`): changing the pattern moves energies in the last
+/// bits. 1: four partial sums; 2: sixteen.
+pub const REVISION: u32 = 2;
+
+#[inline(always)]
+fn combine(acc: &[f64; LANES]) -> f64 {
+    let mut a = *acc;
+    let mut w = LANES;
+    while w > 1 {
+        w /= 2;
+        for i in 0..w {
+            a[i] += a[i + w];
+        }
+    }
+    a[0]
+}
+
+#[inline(always)]
+fn dot_plain(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a, b) = (&a[..n], &b[..n]);
+    let mut acc = [0.0f64; LANES];
+    let ac = a.chunks_exact(LANES);
+    let bc = b.chunks_exact(LANES);
+    let mut tail = 0.0;
+    for (&x, &y) in ac.remainder().iter().zip(bc.remainder()) {
+        tail += x * y;
+    }
+    for (r, q) in ac.zip(bc) {
+        let r: &[f64; LANES] = r.try_into().expect("chunk");
+        let q: &[f64; LANES] = q.try_into().expect("chunk");
+        for k in 0..LANES {
+            acc[k] += r[k] * q[k];
+        }
+    }
+    combine(&acc) + tail
+}
+
+#[inline(always)]
+fn dot_signs_plain(a: &[f64], s: &[i8]) -> f64 {
+    let n = a.len().min(s.len());
+    let (a, s) = (&a[..n], &s[..n]);
+    let mut acc = [0.0f64; LANES];
+    let ac = a.chunks_exact(LANES);
+    let sc = s.chunks_exact(LANES);
+    let mut tail = 0.0;
+    for (&x, &y) in ac.remainder().iter().zip(sc.remainder()) {
+        tail += x * y as f64;
+    }
+    for (r, q) in ac.zip(sc) {
+        let r: &[f64; LANES] = r.try_into().expect("chunk");
+        let q: &[i8; LANES] = q.try_into().expect("chunk");
+        for k in 0..LANES {
+            acc[k] += r[k] * q[k] as f64;
+        }
+    }
+    combine(&acc) + tail
+}
+
+#[inline(always)]
+fn dot_axpy_plain(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
+    let n = a.len().min(x.len()).min(y.len());
+    let full = n / LANES * LANES;
+    let mut acc = [0.0f64; LANES];
+    for k0 in (0..full).step_by(LANES) {
+        for k in 0..LANES {
+            acc[k] += a[k0 + k] * x[k0 + k];
+            y[k0 + k] += c * a[k0 + k];
+        }
+    }
+    let mut tail = 0.0;
+    for k in full..n {
+        tail += a[k] * x[k];
+        y[k] += c * a[k];
+    }
+    combine(&acc) + tail
+}
+
+/// Four rows of a symmetric product at once: for each row r, Σ_k a_r[k]·x[k] with four
+/// partial sums (k mod 4, combined as (s0 + s2) + (s1 + s3), then the tail), and
+/// y[k] += (c0·a0[k] + c1·a1[k]) + (c2·a2[k] + c3·a3[k]). x and y are read once for four rows.
+#[inline(always)]
+fn sym4_plain(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4] {
+    let n = x.len().min(y.len());
+    let full = n / 4 * 4;
+    let mut acc = [[0.0f64; 4]; 4];
+    for k0 in (0..full).step_by(4) {
+        for l in 0..4 {
+            let k = k0 + l;
+            for r in 0..4 {
+                acc[r][l] += a[r][k] * x[k];
+            }
+            y[k] += (c[0] * a[0][k] + c[1] * a[1][k]) + (c[2] * a[2][k] + c[3] * a[3][k]);
+        }
+    }
+    let mut out = [0.0; 4];
+    for r in 0..4 {
+        let mut tail = 0.0;
+        for k in full..n {
+            tail += a[r][k] * x[k];
+        }
+        out[r] = ((acc[r][0] + acc[r][2]) + (acc[r][1] + acc[r][3])) + tail;
+    }
+    for k in full..n {
+        y[k] += (c[0] * a[0][k] + c[1] * a[1][k]) + (c[2] * a[2][k] + c[3] * a[3][k]);
+    }
+    out
+}
+
+#[inline(always)]
+fn axpy_plain(y: &mut [f64], c: f64, x: &[f64]) {
+    for (yi, &xi) in y.iter_mut().zip(x) {
+        *yi += c * xi;
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+mod avx2 {
+    //! The same arithmetic with explicit 256-bit operations: register j holds partial sums
+    //! 4j..4j+3, each step is a separate multiply then add (no fused multiply–add), so every
+    //! partial sum sees the same operations in the same order as the baseline code.
+    use super::{LANES, combine};
+    use std::arch::x86_64::*;
+
+    #[target_feature(enable = "avx2")]
+    pub(super) fn dot(a: &[f64], b: &[f64]) -> f64 {
+        let n = a.len().min(b.len());
+        let full = n / LANES * LANES;
+        let (pa, pb) = (a.as_ptr(), b.as_ptr());
+        let mut r = [_mm256_setzero_pd(); 4];
+        let mut k = 0;
+        while k < full {
+            for (j, rj) in r.iter_mut().enumerate() {
+                // SAFETY: k + 4j + 3 < full ≤ n, within both slices.
+                unsafe {
+                    let x = _mm256_loadu_pd(pa.add(k + 4 * j));
+                    let y = _mm256_loadu_pd(pb.add(k + 4 * j));
+                    *rj = _mm256_add_pd(*rj, _mm256_mul_pd(x, y));
+                }
+            }
+            k += LANES;
+        }
+        let mut acc = [0.0f64; LANES];
+        for (j, rj) in r.iter().enumerate() {
+            // SAFETY: acc has 16 entries; 4j + 3 < 16.
+            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
+        }
+        let mut tail = 0.0;
+        for i in full..n {
+            tail += a[i] * b[i];
+        }
+        combine(&acc) + tail
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub(super) fn dot_signs(a: &[f64], s: &[i8]) -> f64 {
+        let n = a.len().min(s.len());
+        let full = n / LANES * LANES;
+        let (pa, ps) = (a.as_ptr(), s.as_ptr());
+        let mut r = [_mm256_setzero_pd(); 4];
+        let mut k = 0;
+        while k < full {
+            for (j, rj) in r.iter_mut().enumerate() {
+                // SAFETY: k + 4j + 3 < full ≤ n, within both slices; the 4-byte load is
+                // unaligned-safe.
+                unsafe {
+                    let x = _mm256_loadu_pd(pa.add(k + 4 * j));
+                    let b4 = (ps.add(k + 4 * j) as *const i32).read_unaligned();
+                    let y = _mm256_cvtepi32_pd(_mm_cvtepi8_epi32(_mm_cvtsi32_si128(b4)));
+                    *rj = _mm256_add_pd(*rj, _mm256_mul_pd(x, y));
+                }
+            }
+            k += LANES;
+        }
+        let mut acc = [0.0f64; LANES];
+        for (j, rj) in r.iter().enumerate() {
+            // SAFETY: as in `dot`.
+            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
+        }
+        let mut tail = 0.0;
+        for i in full..n {
+            tail += a[i] * s[i] as f64;
+        }
+        combine(&acc) + tail
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub(super) fn dot_axpy(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
+        let n = a.len().min(x.len()).min(y.len());
+        let full = n / LANES * LANES;
+        let (pa, px, py) = (a.as_ptr(), x.as_ptr(), y.as_mut_ptr());
+        let cv = _mm256_set1_pd(c);
+        let mut r = [_mm256_setzero_pd(); 4];
+        let mut k = 0;
+        while k < full {
+            for (j, rj) in r.iter_mut().enumerate() {
+                // SAFETY: k + 4j + 3 < full ≤ n, within all three slices.
+                unsafe {
+                    let o = k + 4 * j;
+                    let av = _mm256_loadu_pd(pa.add(o));
+                    *rj = _mm256_add_pd(*rj, _mm256_mul_pd(av, _mm256_loadu_pd(px.add(o))));
+                    let yv = _mm256_loadu_pd(py.add(o));
+                    _mm256_storeu_pd(py.add(o), _mm256_add_pd(yv, _mm256_mul_pd(cv, av)));
+                }
+            }
+            k += LANES;
+        }
+        let mut acc = [0.0f64; LANES];
+        for (j, rj) in r.iter().enumerate() {
+            // SAFETY: as in `dot`.
+            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
+        }
+        let mut tail = 0.0;
+        for i in full..n {
+            tail += a[i] * x[i];
+            y[i] += c * a[i];
+        }
+        combine(&acc) + tail
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub(super) fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4] {
+        let n = x.len().min(y.len());
+        assert!(a.iter().all(|r| r.len() >= n));
+        let full = n / 4 * 4;
+        let (px, py) = (x.as_ptr(), y.as_mut_ptr());
+        let p = [a[0].as_ptr(), a[1].as_ptr(), a[2].as_ptr(), a[3].as_ptr()];
+        let cv = [
+            _mm256_set1_pd(c[0]),
+            _mm256_set1_pd(c[1]),
+            _mm256_set1_pd(c[2]),
+            _mm256_set1_pd(c[3]),
+        ];
+        let mut acc = [_mm256_setzero_pd(); 4];
+        let mut k = 0;
+        while k < full {
+            // SAFETY: k + 3 < full ≤ n ≤ every slice's length (asserted above).
+            unsafe {
+                let xv = _mm256_loadu_pd(px.add(k));
+                let a0 = _mm256_loadu_pd(p[0].add(k));
+                let a1 = _mm256_loadu_pd(p[1].add(k));
+                let a2 = _mm256_loadu_pd(p[2].add(k));
+                let a3 = _mm256_loadu_pd(p[3].add(k));
+                acc[0] = _mm256_add_pd(acc[0], _mm256_mul_pd(a0, xv));
+                acc[1] = _mm256_add_pd(acc[1], _mm256_mul_pd(a1, xv));
+                acc[2] = _mm256_add_pd(acc[2], _mm256_mul_pd(a2, xv));
+                acc[3] = _mm256_add_pd(acc[3], _mm256_mul_pd(a3, xv));
+                let s01 = _mm256_add_pd(_mm256_mul_pd(cv[0], a0), _mm256_mul_pd(cv[1], a1));
+                let s23 = _mm256_add_pd(_mm256_mul_pd(cv[2], a2), _mm256_mul_pd(cv[3], a3));
+                let yv = _mm256_loadu_pd(py.add(k));
+                _mm256_storeu_pd(py.add(k), _mm256_add_pd(yv, _mm256_add_pd(s01, s23)));
+            }
+            k += 4;
+        }
+        let mut out = [0.0; 4];
+        for r in 0..4 {
+            let mut l = [0.0f64; 4];
+            // SAFETY: l has four entries.
+            unsafe { _mm256_storeu_pd(l.as_mut_ptr(), acc[r]) };
+            let mut tail = 0.0;
+            for i in full..n {
+                tail += a[r][i] * x[i];
+            }
+            out[r] = ((l[0] + l[2]) + (l[1] + l[3])) + tail;
+        }
+        for i in full..n {
+            y[i] += (c[0] * a[0][i] + c[1] * a[1][i]) + (c[2] * a[2][i] + c[3] * a[3][i]);
+        }
+        out
+    }
+
+    #[target_feature(enable = "avx2")]
+    pub(super) fn axpy(y: &mut [f64], c: f64, x: &[f64]) {
+        let n = y.len().min(x.len());
+        let full = n / 4 * 4;
+        let (py, px) = (y.as_mut_ptr(), x.as_ptr());
+        let cv = _mm256_set1_pd(c);
+        let mut k = 0;
+        while k < full {
+            // SAFETY: k + 3 < full ≤ n, within both slices.
+            unsafe {
+                let v = _mm256_loadu_pd(py.add(k));
+                let w = _mm256_mul_pd(cv, _mm256_loadu_pd(px.add(k)));
+                _mm256_storeu_pd(py.add(k), _mm256_add_pd(v, w));
+            }
+            k += 4;
+        }
+        for i in full..n {
+            y[i] += c * x[i];
+        }
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+fn has_avx2() -> bool {
+    std::arch::is_x86_feature_detected!("avx2")
+}
+
+/// Σ a_k b_k over the common length.
+#[inline]
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: the CPU supports AVX2 (checked at run time).
+        return unsafe { avx2::dot(a, b) };
+    }
+    dot_plain(a, b)
+}
+
+/// Σ a_k s_k for signs s_k ∈ {±1} (any i8), over the common length.
+#[inline]
+pub fn dot_signs(a: &[f64], s: &[i8]) -> f64 {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: as in `dot`.
+        return unsafe { avx2::dot_signs(a, s) };
+    }
+    dot_signs_plain(a, s)
+}
+
+/// Σ a_k x_k (the pattern of [`dot`]) and, in the same pass, y += c·a: one read of `a` for
+/// both halves of a symmetric matrix–vector product.
+#[inline]
+pub fn dot_axpy(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: as in `dot`.
+        return unsafe { avx2::dot_axpy(a, x, y, c) };
+    }
+    dot_axpy_plain(a, x, y, c)
+}
+
+/// Four rows of a symmetric matrix–vector product in one pass (see `sym4_plain` for the
+/// fixed order of every sum).
+#[inline]
+pub fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4] {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: as in `dot`.
+        return unsafe { avx2::sym4(a, x, y, c) };
+    }
+    sym4_plain(a, x, y, c)
+}
+
+/// y += c·x (elementwise, no reduction: identical on every path).
+#[inline]
+pub fn axpy(y: &mut [f64], c: f64, x: &[f64]) {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() {
+        // SAFETY: as in `dot`.
+        return unsafe { avx2::axpy(y, c, x) };
+    }
+    axpy_plain(y, c, x)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The dispatched kernels equal the baseline code bit for bit (so results do not depend on
+    /// the CPU), on lengths around the lane count and with awkward values.
+    #[test]
+    fn dispatch_is_bit_identical() {
+        let mut v = 0.3f64;
+        let mut next = || {
+            v = (v * 3.987 + 0.1234).fract();
+            (v - 0.5) * 10f64.powi(((v * 7.0) as i32) - 3)
+        };
+        for n in [0usize, 1, 15, 16, 17, 31, 33, 100, 1001] {
+            let a: Vec<f64> = (0..n).map(|_| next()).collect();
+            let b: Vec<f64> = (0..n).map(|_| next()).collect();
+            let s: Vec<i8> = b.iter().map(|&x| if x < 0.0 { -1 } else { 1 }).collect();
+            assert_eq!(dot(&a, &b).to_bits(), dot_plain(&a, &b).to_bits());
+            assert_eq!(
+                dot_signs(&a, &s).to_bits(),
+                dot_signs_plain(&a, &s).to_bits()
+            );
+            let mut y1 = b.clone();
+            let mut y2 = b.clone();
+            axpy(&mut y1, -2.0, &a);
+            axpy_plain(&mut y2, -2.0, &a);
+            assert_eq!(y1, y2);
+            let mut y3 = b.clone();
+            let mut y4 = b.clone();
+            let d1 = dot_axpy(&a, &b, &mut y3, 0.7);
+            let d2 = dot_axpy_plain(&a, &b, &mut y4, 0.7);
+            assert_eq!((d1.to_bits(), &y3), (d2.to_bits(), &y4));
+            assert_eq!(d1.to_bits(), dot(&a, &b).to_bits());
+            if n >= 4 {
+                let rows = [&a[..], &b[..], &a[1..], &b[1..]];
+                let m = n - 1;
+                let (mut y5, mut y6) = (b[..m].to_vec(), b[..m].to_vec());
+                let c = [0.5, -1.5, 2.0, 0.25];
+                let r1 = sym4(rows, &a[..m], &mut y5, c);
+                let r2 = sym4_plain(rows, &a[..m], &mut y6, c);
+                assert_eq!(r1.map(f64::to_bits), r2.map(f64::to_bits));
+                assert_eq!(y5, y6);
+            }
+            // And the pattern is the documented one: lanes k mod 16, tree, then the tail.
+            let mut lanes = [0.0f64; LANES];
+            let full = n / LANES * LANES;
+            for k in 0..full {
+                lanes[k % LANES] += a[k] * b[k];
+            }
+            let mut tail = 0.0;
+            for k in full..n {
+                tail += a[k] * b[k];
+            }
+            assert_eq!(dot(&a, &b).to_bits(), (combine(&lanes) + tail).to_bits());
+        }
+    }
+}
