@@ -7,12 +7,23 @@
 //!   attempts per second (the reference times the sweeps only; kiln's time also holds the
 //!   initial fields, under 1% of the work here).
 //!
+//! - sparse: Metropolis annealing on a random 3-regular graph with ±1 couplings, n = 10⁶,
+//!   200 sweeps, β from 0.1 to 3.0, no quench: ns per spin-flip attempt;
+//! - matvec: y = A x on the dense SK matrix (f64, one thread), n = 4096 and 8192: time per
+//!   product and the bytes of A read per second;
+//! - eigen: top eigenpair of the dense SK matrix by kiln's Lanczos (relative residual 1e-12)
+//!   at n = 2048 and 4096: time, products, λ, residual;
+//! - couplings: dense SK couplings generated per second (n = 4096, all threads).
+//!
 //! Instances are generated outside the timed region. `cargo run --release --example
-//! bench_kernels -- [n=2048] [reps=5]`; scripts/bench.sh runs it next to the references.
+//! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings]`;
+//! scripts/bench.sh runs it next to the references.
 
 use kiln::algo::{anneal, descent};
+use kiln::linalg::top_eigen;
 use kiln::model::Couplings;
 use kiln::model::sk::sample;
+use kiln::model::sparse::regular;
 use kiln::rng::{Purpose, stream};
 use std::time::Instant;
 
@@ -21,10 +32,134 @@ fn median(xs: &mut [f64]) -> f64 {
     xs[xs.len() / 2]
 }
 
+/// (median, min, max).
+fn stats(xs: &[f64]) -> (f64, f64, f64) {
+    let mut v = xs.to_vec();
+    let m = median(&mut v);
+    (m, v[0], v[v.len() - 1])
+}
+
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     let n: usize = args.get(1).and_then(|s| s.parse().ok()).unwrap_or(2048);
     let reps: usize = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(5);
+    let parts = args
+        .get(3)
+        .cloned()
+        .unwrap_or_else(|| "dense,sparse,matvec,eigen,couplings".into());
+    let parts: Vec<&str> = parts.split(',').collect();
+    if parts.contains(&"dense") {
+        dense(n, reps);
+    }
+    if parts.contains(&"sparse") {
+        sparse(reps.min(3));
+    }
+    if parts.contains(&"matvec") {
+        matvec(reps);
+    }
+    if parts.contains(&"eigen") {
+        eigen(reps.min(3));
+    }
+    if parts.contains(&"couplings") {
+        couplings(reps.min(3));
+    }
+}
+
+fn sparse(reps: usize) {
+    let n = 1_000_000;
+    let g = regular(n, 3, Couplings::Pm1, &[7; 32], 0.0);
+    let p = anneal::Params {
+        sweeps: 200,
+        beta: [0.1, 3.0],
+        quench: false,
+    };
+    let mut ns = Vec::new();
+    let mut e = 0.0;
+    for r in 0..reps {
+        let t = Instant::now();
+        let out = anneal::run(
+            &p,
+            &g,
+            &mut stream(&[r as u8 + 50; 32], Purpose::Algorithm, 0),
+        );
+        ns.push(t.elapsed().as_secs_f64() * 1e9 / (n as f64 * 200.0));
+        e = kiln::model::Cube::energy(&g, &out.spins) / n as f64;
+    }
+    let (m, lo, hi) = stats(&ns);
+    println!(
+        "prog=kiln_sparse n={n} degree=3 sweeps=200 reps={reps} ns_per_attempt_med={m:.3} ns_per_attempt_min={lo:.3} ns_per_attempt_max={hi:.3} E_per_spin={e:.5}"
+    );
+}
+
+fn matvec(reps: usize) {
+    for n in [4096usize, 8192] {
+        let d = sample(n, Couplings::Gaussian, &[9; 32], 0.0);
+        let x: Vec<f64> = (0..n)
+            .map(|i| ((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
+            .collect();
+        let mut y = vec![0.0; n];
+        d.matvec(&x, &mut y); // warm
+        let mut ts = Vec::new();
+        for _ in 0..reps.max(5) * 4 {
+            let t = Instant::now();
+            d.matvec(&x, &mut y);
+            ts.push(t.elapsed().as_secs_f64());
+        }
+        let (m, lo, hi) = stats(&ts);
+        let bytes = (n * n * 8) as f64;
+        println!(
+            "prog=kiln_matvec n={n} dtype=float64 threads=1 t_med_ms={:.3} t_min_ms={:.3} t_max_ms={:.3} GBs_med={:.2} check={:.6}",
+            m * 1e3,
+            lo * 1e3,
+            hi * 1e3,
+            bytes / m / 1e9,
+            y.iter().sum::<f64>()
+        );
+    }
+}
+
+fn eigen(reps: usize) {
+    for n in [2048usize, 4096] {
+        let d = sample(n, Couplings::Gaussian, &[11; 32], 0.0);
+        let start: Vec<f64> = {
+            let mut s = stream(&[12; 32], Purpose::Algorithm, 0);
+            (0..n).map(|_| s.normal()).collect()
+        };
+        let mut ts = Vec::new();
+        let mut last = None;
+        for _ in 0..reps {
+            let t = Instant::now();
+            let e =
+                top_eigen(n, |x, y| d.matvec(x, y), &start, 1e-12, 64, 100_000).expect("Lanczos");
+            ts.push(t.elapsed().as_secs_f64());
+            last = Some(e);
+        }
+        let e = last.expect("one run");
+        let (m, lo, hi) = stats(&ts);
+        println!(
+            "prog=kiln_eigen n={n} t_med_s={m:.4} t_min_s={lo:.4} t_max_s={hi:.4} matvecs={} lambda_max={:.6} residual={:.2e}",
+            e.matvecs, e.value, e.residual
+        );
+    }
+}
+
+fn couplings(reps: usize) {
+    let n = 4096usize;
+    let mut rates = Vec::new();
+    for r in 0..reps {
+        let t = Instant::now();
+        let d = sample(n, Couplings::Gaussian, &[r as u8 + 30; 32], 0.0);
+        rates.push((n * (n - 1) / 2) as f64 / t.elapsed().as_secs_f64());
+        std::hint::black_box(d.row(0)[1]);
+    }
+    let (m, lo, hi) = stats(&rates);
+    println!(
+        "prog=kiln_couplings n={n} threads={} couplings_per_s_med={m:.3e} couplings_per_s_min={lo:.3e} couplings_per_s_max={hi:.3e}",
+        rayon::current_num_threads()
+    );
+}
+
+fn dense(n: usize, reps: usize) {
     let mut t_desc = Vec::new();
     let mut flips = Vec::new();
     let mut rate = Vec::new();

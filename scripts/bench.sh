@@ -1,38 +1,180 @@
 #!/usr/bin/env bash
-# Side-by-side speed of kiln's dense SK kernels and the minimal C references
-# (../shared/perf-ref or $PERF_REF), built with gcc -O3 -march=native, in one run.
-# Prints a table of ratios (kiln time / reference time; < 1 means kiln is faster) and writes
-# it to results/bench/. Covers SK descent and dense annealing at n = 2048 so far; the sparse,
-# matvec and eigenvector kernels come with the models and algorithms that need them.
+# Side-by-side speed of kiln's kernels and their references, measured in one run on this machine.
+#
+#   scripts/bench.sh [RUNS=5]
+#
+# References: the minimal C programs in ../shared/perf-ref (or $PERF_REF), built here with
+# gcc -O3 -march=native; numpy/OpenBLAS (gemv) and scipy eigsh (ARPACK) from a virtual
+# environment this script creates under $HOME/.cache/kiln-bench-venv (system site packages;
+# numpy, scipy and threadpoolctl are pip-installed into it when missing; skipped with a
+# message if that is impossible). kiln's side is examples/bench_kernels.rs plus the kiln
+# binary itself (no-op rerun, 2 vs 1 core, peak memory).
+#
+# Each reference program and the kiln example run RUNS times (C: one seed per run; kiln:
+# RUNS repetitions inside one process); the table shows medians with min–max and the ratio
+# kiln time / reference time (< 1: kiln faster). Written to results/bench/bench-<UTC>.txt.
+# Machines are shared and noisy: read the ratios, not the absolute figures.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+runs=${1:-5}
 ref=${PERF_REF:-../shared/perf-ref}
 [ -f "$ref/sk_greedy.c" ] || { echo "bench: no reference programs at $ref (set PERF_REF)"; exit 2; }
 export CARGO_TARGET_DIR="${CARGO_TARGET_DIR:-$HOME/.cache/kiln-target}"
 out=$(mktemp -d)
-gcc -O3 -march=native "$ref/sk_greedy.c" -o "$out/sk_greedy" -lm
-gcc -O3 -march=native "$ref/sa_dense.c" -o "$out/sa_dense" -lm
+trap 'rm -rf "$out"' EXIT
+CF="-O3 -march=native"
+gcc $CF -fopenmp "$ref/stream.c" -o "$out/stream"
+gcc $CF "$ref/sk_greedy.c" -o "$out/sk_greedy" -lm
+gcc $CF "$ref/sa_dense.c" -o "$out/sa_dense" -lm
+gcc $CF "$ref/sa_sparse.c" -o "$out/sa_sparse" -lm
 cargo build --release --quiet --example bench_kernels
-get() { tr ' ' '\n' | sed -n "s/^$1=//p"; }
-c_desc=$("$out/sk_greedy" 2048 5 1)
-c_sa=$("$out/sa_dense" 2048 500 0.1 5.0 5 1)
-k=$("$CARGO_TARGET_DIR/release/examples/bench_kernels" 2048 5)
-k_desc=$(echo "$k" | grep kiln_descent)
-k_sa=$(echo "$k" | grep kiln_anneal)
-kd=$(echo "$k_desc" | get t_total_med_ms); cd_=$(echo "$c_desc" | get t_total_med_ms)
-ka=$(echo "$k_sa" | get attempts_per_s_med); ca=$(echo "$c_sa" | get attempts_per_s_med)
+cargo build --release --quiet
+kiln="$CARGO_TARGET_DIR/release/kiln"
+kb="$CARGO_TARGET_DIR/release/examples/bench_kernels"
+
+get() { tr ' ' '\n' | sed -n "s/^$1=//p" | head -1; }
+# median/min/max of numbers on stdin -> "med min max"
+stats() { sort -g | awk '{v[NR]=$1} END {printf "%s %s %s", v[int((NR+1)/2)], v[1], v[NR]}'; }
+calc() { awk "BEGIN {printf \"%.3f\", $1}"; }
+
+echo "bench: C references ($runs runs each)" >&2
+c_stream=$(OMP_NUM_THREADS=1 "$out/stream" 1 10)
+read_bw=$(echo "$c_stream" | get sum_median_GBs)
+c_desc=$(for s in $(seq 1 "$runs"); do "$out/sk_greedy" 2048 1 "$s" | get t_total_med_ms; done | stats)
+c_sa=$(for s in $(seq 1 "$runs"); do "$out/sa_dense" 2048 500 0.1 5.0 1 "$s" | get attempts_per_s_med; done | stats)
+c_sp=$(for s in $(seq 1 "$runs"); do "$out/sa_sparse" 1000000 200 0.1 3.0 "$s" | get ns_per_attempt; done | stats)
+
+echo "bench: kiln kernels" >&2
+k=$(RAYON_NUM_THREADS=1 "$kb" 2048 "$runs" dense,sparse,matvec,eigen)
+kc=$("$kb" 2048 "$runs" couplings)
+
+py=""
+venv="$HOME/.cache/kiln-bench-venv"
+if [ ! -x "$venv/bin/python" ]; then
+    /usr/bin/python3 -m venv --system-site-packages "$venv" 2>/dev/null \
+        || python3 -m venv --system-site-packages "$venv" 2>/dev/null || true
+fi
+if [ -x "$venv/bin/python" ]; then
+    if ! "$venv/bin/python" -c 'import numpy, scipy, threadpoolctl' 2>/dev/null; then
+        "$venv/bin/python" -m pip install --quiet numpy scipy threadpoolctl 2>/dev/null || true
+    fi
+    "$venv/bin/python" -c 'import numpy, scipy, threadpoolctl' 2>/dev/null && py="$venv/bin/python"
+fi
+if [ -n "$py" ]; then
+    echo "bench: numpy/scipy references" >&2
+    p_mv=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/dense_matvec.py" --n 4096 8192 --dtype float64 --threads 1)
+    p_eig=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/top_eig.py" --n 2048 4096 --reps "$runs" --seed 1)
+else
+    echo "bench: numpy/scipy/threadpoolctl unavailable (no venv or pip): BLAS and eigsh rows skipped" >&2
+    p_mv=""; p_eig=""
+fi
+
+echo "bench: kiln runs (no-op rerun, cores, memory)" >&2
+work="$out/work"; mkdir -p "$work"
+cat > "$work/noop.toml" <<'EOF'
+[experiment]
+name = "bench-noop"
+[model]
+family = "sk"
+[sweep]
+sizes = [8, 10, 12, 14, 16]
+seeds = 1000
+epsilons = [0.0, 0.5]
+[[algorithm]]
+kind = "descent"
+EOF
+"$kiln" run "$work/noop.toml" --cache "$work/c0" --results "$work/r0" --quiet
+noop=$(for i in $(seq 1 "$runs"); do
+    s=$(date +%s.%N); "$kiln" run "$work/noop.toml" --cache "$work/c0" --results "$work/r0" --quiet
+    e=$(date +%s.%N); calc "$e - $s"; echo; done | stats)
+cat > "$work/cores.toml" <<'EOF'
+[experiment]
+name = "bench-cores"
+[model]
+family = "sk"
+[sweep]
+sizes = [1024]
+seeds = 32
+epsilons = [0.0, 0.01]
+[[algorithm]]
+kind = "anneal"
+sweeps = 200
+EOF
+t_cores() { local s e; s=$(date +%s.%N)
+    "$kiln" run "$work/cores.toml" --cache "$work/c$1-$2" --results "$work/rc$1-$2" --jobs "$1" --quiet
+    e=$(date +%s.%N); calc "$e - $s"; }
+t1=$(t_cores 1 a); t2=$(t_cores 2 a)
+cat > "$work/mem.toml" <<'EOF'
+[experiment]
+name = "bench-memory"
+[model]
+family = "sk"
+[sweep]
+sizes = [8192]
+seeds = 1
+epsilons = [0.0]
+[[algorithm]]
+kind = "descent"
+EOF
+rss_kib=$( { /usr/bin/time -f "maxrss_kib=%M" "$kiln" run "$work/mem.toml" --cache "$work/cm" \
+    --results "$work/rm" --quiet --jobs 1; } 2>&1 | get maxrss_kib)
+coupling_mib=$(calc "8 * 8192 * 8192 / 1048576")
+
 mkdir -p results/bench
 report=results/bench/bench-$(date -u +%Y%m%dT%H%M%SZ).txt
+kd=$(echo "$k" | grep kiln_descent); ka=$(echo "$k" | grep kiln_anneal); ks=$(echo "$k" | grep kiln_sparse)
+read -r cd_m cd_lo cd_hi <<<"$c_desc"; read -r ca_m ca_lo ca_hi <<<"$c_sa"; read -r cs_m cs_lo cs_hi <<<"$c_sp"
+read -r no_m no_lo no_hi <<<"$noop"
 {
-    echo "kernel                 kiln (median, min-max)                 reference (median)   ratio kiln/ref (time)"
-    printf 'SK descent n=2048       %s ms (%s-%s)        %s ms              %.2f\n' "$kd" \
-        "$(echo "$k_desc" | get t_total_min_ms)" "$(echo "$k_desc" | get t_total_max_ms)" "$cd_" \
-        "$(python3 -c "print($kd/$cd_)")"
-    printf 'dense anneal n=2048     %s attempts/s (%s-%s)   %s attempts/s   %.2f\n' "$ka" \
-        "$(echo "$k_sa" | get attempts_per_s_min)" "$(echo "$k_sa" | get attempts_per_s_max)" "$ca" \
-        "$(python3 -c "print($ca/$ka)")"
+    echo "kiln benchmark $(date -u +%FT%TZ) on $(hostname), $(nproc) cores, git $(git rev-parse --short HEAD 2>/dev/null || echo '?')"
+    echo "runs: $runs; medians (min-max); ratio = kiln time / reference time (target in brackets)"
     echo
-    echo "raw:"; echo "$c_desc"; echo "$c_sa"; echo "$k"
+    printf '%-34s %-34s %-34s %s\n' kernel kiln reference ratio
+    printf '%-34s %-34s %-34s %s\n' "SK descent n=2048 (ms, total)" \
+        "$(echo "$kd" | get t_total_med_ms) ($(echo "$kd" | get t_total_min_ms)-$(echo "$kd" | get t_total_max_ms))" \
+        "C $cd_m ($cd_lo-$cd_hi)" "$(calc "$(echo "$kd" | get t_total_med_ms) / $cd_m") [<= 1.2]"
+    printf '%-34s %-34s %-34s %s\n' "dense anneal n=2048 (attempts/s)" \
+        "$(echo "$ka" | get attempts_per_s_med) ($(echo "$ka" | get attempts_per_s_min)-$(echo "$ka" | get attempts_per_s_max))" \
+        "C $ca_m ($ca_lo-$ca_hi)" "$(calc "$ca_m / $(echo "$ka" | get attempts_per_s_med)") [<= 1.2]"
+    printf '%-34s %-34s %-34s %s\n' "sparse anneal 3-reg n=1e6 (ns/att)" \
+        "$(echo "$ks" | get ns_per_attempt_med) ($(echo "$ks" | get ns_per_attempt_min)-$(echo "$ks" | get ns_per_attempt_max))" \
+        "C $cs_m ($cs_lo-$cs_hi)" "$(calc "$(echo "$ks" | get ns_per_attempt_med) / $cs_m") [<= 1.2]"
+    for n in 4096 8192; do
+        km=$(echo "$k" | grep "kiln_matvec n=$n ")
+        kt=$(echo "$km" | get t_med_ms)
+        if [ -n "$p_mv" ]; then
+            pm=$(echo "$p_mv" | grep "op=gemv n=$n dtype=float64 threads=1 ")
+            pt=$(echo "$pm" | get t_med_ms)
+            printf '%-34s %-34s %-34s %s\n' "matvec f64 n=$n 1 thread (ms)" \
+                "$kt ($(echo "$km" | get t_min_ms)-$(echo "$km" | get t_max_ms))" \
+                "numpy $pt (min $(echo "$pm" | get t_min_ms))" "$(calc "$kt / $pt") [<= 1.0]"
+        fi
+        printf '%-34s %-34s %-34s %s\n' "  read bandwidth n=$n (GB/s)" "$(echo "$km" | get GBs_med)" \
+            "stream sum $read_bw" "$(calc "$(echo "$km" | get GBs_med) / $read_bw") of bandwidth [>= 0.8]"
+    done
+    for n in 2048 4096; do
+        ke=$(echo "$k" | grep "kiln_eigen n=$n ")
+        kt=$(echo "$ke" | get t_med_s)
+        if [ -n "$p_eig" ]; then
+            pe=$(echo "$p_eig" | grep "n=$n ")
+            pt=$(echo "$pe" | get t_med_s)
+            printf '%-34s %-34s %-34s %s\n' "top eigenvector n=$n (s)" \
+                "$kt ($(echo "$ke" | get matvecs) products)" \
+                "eigsh $pt ($(echo "$pe" | get matvecs) products)" "$(calc "$kt / $pt") [<= 1.0]"
+        else
+            printf '%-34s %-34s %-34s %s\n' "top eigenvector n=$n (s)" "$kt" "skipped" "-"
+        fi
+    done
+    printf '%-34s %-34s %-34s %s\n' "coupling generation n=4096 (1/s)" \
+        "$(echo "$kc" | get couplings_per_s_med) ($(echo "$kc" | get threads) threads)" "-" "-"
+    printf '%-34s %-34s %-34s %s\n' "10k-cell no-op rerun (s)" "$no_m ($no_lo-$no_hi)" "-" "[< 1 s]"
+    printf '%-34s %-34s %-34s %s\n' "64 SK cells n=1024, 1 vs 2 jobs (s)" "$t1 / $t2" "-" \
+        "speed-up $(calc "$t1 / $t2") [>= 1.8]"
+    printf '%-34s %-34s %-34s %s\n' "peak RSS, SK n=8192 descent (MiB)" "$(calc "$rss_kib / 1024")" \
+        "couplings $coupling_mib" "$(calc "$rss_kib / 1024 / $coupling_mib") [<= 1.2 + const]"
+    echo
+    echo "raw:"; echo "$c_stream"; echo "C descent t_total_ms (med min max): $c_desc"
+    echo "C dense attempts/s: $c_sa"; echo "C sparse ns/attempt: $c_sp"
+    echo "$k"; echo "$kc"; echo "$p_mv"; echo "$p_eig"
 } | tee "$report"
 echo "wrote $report"
-rm -rf "$out"
