@@ -319,6 +319,10 @@ pub trait Cube: Sync {
     fn integer_gain_bound(&self) -> Option<usize> {
         None
     }
+    /// The instance as a sparse graph, for loops specialised to it.
+    fn as_graph(&self) -> Option<&sparse::Graph> {
+        None
+    }
 }
 
 impl Cube for sparse::Graph {
@@ -327,6 +331,9 @@ impl Cube for sparse::Graph {
     }
     fn integer_gain_bound(&self) -> Option<usize> {
         sparse::Graph::integer_gain_bound(self)
+    }
+    fn as_graph(&self) -> Option<&sparse::Graph> {
+        Some(self)
     }
     fn fields(&self, s: &[i8], h: &mut [f64]) {
         sparse::Graph::fields(self, s, h)

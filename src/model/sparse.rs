@@ -167,6 +167,20 @@ impl Graph {
         Some(2 * best as usize)
     }
 
+    /// The couplings as i8 in CSR order, when every one is an integer in [−127, 127] (±1 and
+    /// cut couplings): the compact form the integer annealing loop runs on.
+    pub fn small_integer_couplings(&self) -> Option<Vec<i8>> {
+        self.w
+            .iter()
+            .map(|&x| (x.fract() == 0.0 && x.abs() <= 127.0).then_some(x as i8))
+            .collect()
+    }
+
+    /// CSR row offsets (n + 1) and neighbour lists.
+    pub fn csr(&self) -> (&[u64], &[u32]) {
+        (&self.offsets, &self.nbr)
+    }
+
     /// Σ_j J_ij σ_j for one vertex.
     #[inline(always)]
     fn field(&self, i: usize, s: &[i8]) -> f64 {
