@@ -140,6 +140,17 @@ mod avx2 {
     use super::{LANES, combine};
     use std::arch::x86_64::*;
 
+    /// The sixteen partial sums held in four registers, in lane order.
+    #[target_feature(enable = "avx2")]
+    fn lanes(r: &[__m256d; 4]) -> [f64; LANES] {
+        let mut acc = [0.0f64; LANES];
+        for (j, rj) in r.iter().enumerate() {
+            // SAFETY: acc has 16 entries; 4j + 3 < 16.
+            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
+        }
+        acc
+    }
+
     #[target_feature(enable = "avx2")]
     pub(super) fn dot(a: &[f64], b: &[f64]) -> f64 {
         let n = a.len().min(b.len());
@@ -158,11 +169,7 @@ mod avx2 {
             }
             k += LANES;
         }
-        let mut acc = [0.0f64; LANES];
-        for (j, rj) in r.iter().enumerate() {
-            // SAFETY: acc has 16 entries; 4j + 3 < 16.
-            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
-        }
+        let acc = lanes(&r);
         let mut tail = 0.0;
         for i in full..n {
             tail += a[i] * b[i];
@@ -190,11 +197,7 @@ mod avx2 {
             }
             k += LANES;
         }
-        let mut acc = [0.0f64; LANES];
-        for (j, rj) in r.iter().enumerate() {
-            // SAFETY: as in `dot`.
-            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
-        }
+        let acc = lanes(&r);
         let mut tail = 0.0;
         for i in full..n {
             tail += a[i] * s[i] as f64;
@@ -223,11 +226,7 @@ mod avx2 {
             }
             k += LANES;
         }
-        let mut acc = [0.0f64; LANES];
-        for (j, rj) in r.iter().enumerate() {
-            // SAFETY: as in `dot`.
-            unsafe { _mm256_storeu_pd(acc.as_mut_ptr().add(4 * j), *rj) };
-        }
+        let acc = lanes(&r);
         let mut tail = 0.0;
         for i in full..n {
             tail += a[i] * x[i];

@@ -62,33 +62,28 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
             let (m, se) = mean_se(&energies);
             s += &format!("{:<width$}  {n:>7}  {m:>8.4} ± {se:<6.4}", a.label);
             if !eps.is_empty() {
+                // Mean of one column per ε level ("-" where no record has it).
+                let means = |f: &dyn Fn(&Record) -> Option<f64>| -> String {
+                    eps.iter()
+                        .map(|&e| {
+                            let d: Vec<f64> = rows
+                                .iter()
+                                .filter(|r| r.epsilon == e)
+                                .filter_map(|r| f(r))
+                                .collect();
+                            if d.is_empty() {
+                                format!(" {:>6}", "-")
+                            } else {
+                                format!(" {:>6.3}", mean_se(&d).0)
+                            }
+                        })
+                        .collect()
+                };
                 s += &" ".repeat(18);
-                for &e in &eps {
-                    let d: Vec<f64> = rows
-                        .iter()
-                        .filter(|r| r.epsilon == e)
-                        .map(|r| r.distance)
-                        .collect();
-                    if d.is_empty() {
-                        s += &format!(" {:>6}", "-");
-                    } else {
-                        s += &format!(" {:>6.3}", mean_se(&d).0);
-                    }
-                }
+                s += &means(&|r| Some(r.distance));
                 if points {
                     s += "  ";
-                    for &e in &eps {
-                        let d: Vec<f64> = rows
-                            .iter()
-                            .filter(|r| r.epsilon == e)
-                            .filter_map(|r| r.distance_point)
-                            .collect();
-                        if d.is_empty() {
-                            s += &format!(" {:>6}", "-");
-                        } else {
-                            s += &format!(" {:>6.3}", mean_se(&d).0);
-                        }
-                    }
+                    s += &means(&|r| r.distance_point);
                 }
             }
             s += "\n";
