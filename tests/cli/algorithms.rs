@@ -393,6 +393,18 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             AlgoSpec::Hessian(hessian::Params::default()),
         ),
         (cube.clone(), AlgoSpec::Amp(amp::Params::default())),
+        (
+            {
+                // AMP's Onsager term with ξ'' on a mixture (p = 2 and 3 terms).
+                let mut m = cube.clone();
+                m.family = Family::Cube;
+                m.xi = kiln::theory::Mixture {
+                    terms: vec![(2, 0.5), (3, 0.25)],
+                };
+                m
+            },
+            AlgoSpec::Amp(amp::Params::default()),
+        ),
         (cube.clone(), AlgoSpec::Iamp(iamp::Params::default())),
     ];
     let mut kinds = std::collections::BTreeSet::new();
