@@ -72,7 +72,7 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
             accept.set_beta(beta_at(p, sweep, steps));
             for i in 0..n {
                 let g = -2.0 * (s[i] as f64) * h[i];
-                if g >= 0.0 || rng.uniform() < accept.prob(g) {
+                if g >= 0.0 || accept.accept(rng.uniform(), g) {
                     d.flip(&mut s, &mut h, i);
                     info.iterations += 1;
                 }

@@ -86,7 +86,7 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
             let (s, h) = (&mut spins[rep], &mut fields[rep]);
             for i in 0..n {
                 let g = -2.0 * (s[i] as f64) * h[i];
-                if g >= 0.0 || rng.uniform() < acc.prob(g) {
+                if g >= 0.0 || acc.accept(rng.uniform(), g) {
                     d.flip(s, h, i);
                     energy[rep] += g;
                     info.iterations += 1;
