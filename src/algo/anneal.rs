@@ -61,13 +61,14 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     d.fields(&s, &mut h);
     let mut info = Info::default();
     let steps = p.sweeps.max(1);
+    let bound = d.integer_gain_bound();
     let small = d
         .as_graph()
         .and_then(|g| g.small_integer_couplings().map(|w| (g, w)));
-    if let (Some((g, w)), Some(bound)) = (small, d.integer_gain_bound()) {
+    if let (Some((g, w)), Some(bound)) = (small, bound) {
         info.iterations = sweeps_integer(p, g, &w, bound, &mut s, &mut h, rng);
     } else {
-        let mut accept = super::Metropolis::new(d.integer_gain_bound());
+        let mut accept = super::Metropolis::new(bound);
         for sweep in 0..steps {
             accept.set_beta(beta_at(p, sweep, steps));
             for i in 0..n {
@@ -112,13 +113,11 @@ fn sweeps_integer(
     let n = s.len();
     let mut hi: Vec<i32> = h.iter().map(|&x| x as i32).collect();
     let steps = p.sweeps.max(1);
-    let mut table = vec![0.0f64; bound + 1];
+    let mut accept = super::Metropolis::new(Some(bound));
     let mut accepted = 0u64;
     for sweep in 0..steps {
-        let beta = beta_at(p, sweep, steps);
-        for (k, t) in table.iter_mut().enumerate() {
-            *t = libm::exp(beta * -(k as f64));
-        }
+        accept.set_beta(beta_at(p, sweep, steps));
+        let table = accept.table();
         for i in 0..n {
             let x = s[i] as i32 * hi[i];
             // gain g = −2x: accept uphill or level moves, else with probability e^{βg}.

@@ -363,6 +363,11 @@ impl Metropolis {
         }
     }
 
+    /// The tabulated e^{−βk}, k = 0..=bound (empty without a bound).
+    pub(crate) fn table(&self) -> &[f64] {
+        &self.table
+    }
+
     /// exp(βg) for g < 0.
     #[inline(always)]
     pub(crate) fn prob(&self, g: f64) -> f64 {

@@ -72,10 +72,11 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let mut best = f64::NEG_INFINITY;
     let mut best_s = spins[0].clone();
     let mut info = Info::default();
+    let bound = d.integer_gain_bound();
     let mut accept: Vec<super::Metropolis> = betas
         .iter()
         .map(|&b| {
-            let mut m = super::Metropolis::new(d.integer_gain_bound());
+            let mut m = super::Metropolis::new(bound);
             m.set_beta(b);
             m
         })
