@@ -1,33 +1,36 @@
-//! Incremental approximate message passing for the SK model (Montanari, "Optimization of the
-//! Sherrington–Kirkpatrick Hamiltonian", arXiv:1812.10897), driven by the full-RSB solution
-//! that `kiln theory` computes ([`crate::theory::full`]).
+//! Incremental approximate message passing on the cube (Montanari, "Optimization of the
+//! Sherrington–Kirkpatrick Hamiltonian", arXiv:1812.10897; for mixtures, El Alaoui, Montanari
+//! & Sellke, "Optimization of mean-field spin glasses", arXiv:2001.00904), driven by the
+//! full-RSB solution that `kiln theory` computes ([`crate::theory::full`]).
 //!
-//! With γ the zero-temperature Parisi order parameter and Φ(t, x) its Parisi field
-//! (∂ₜΦ + ½(∂ₓₓΦ + γ(t)(∂ₓΦ)²) = 0, Φ(1, x) = |x|), the algorithm discretises the process
-//! dX = γ(t)∂ₓΦ(t, X) dt + dB, M = ∂ₓΦ(t, X) (a martingale, dM = ∂ₓₓΦ dB) on the grid
-//! t_k = kδ, with the Brownian increments produced by an AMP iteration on the coupling matrix A:
+//! With γ the zero-temperature Parisi order parameter of ξ and Φ(t, x) its Parisi field
+//! (∂ₜΦ + ½ξ''(t)(∂ₓₓΦ + γ(t)(∂ₓΦ)²) = 0, Φ(1, x) = |x|), the algorithm discretises
+//! dX = ξ''(t)γ(t)∂ₓΦ(t, X) dt + dZ, d⟨Z⟩ = ξ''(t) dt, and the martingale dM = ∂ₓₓΦ dZ on
+//! t_k = kδ. The increments of Z come from the AMP iteration for H (tensor AMP, with the
+//! Onsager sum over the whole history):
 //!
-//! - f₀ = √δ·s (s uniform random signs: the algorithm's randomness), w¹ = A f₀;
-//! - for k ≥ 1: f_k = ∂ₓₓΦ(t_{k−1}, x^{k−1}) ⊙ w^k,
-//!   x^k = x^{k−1} + δ γ(t_{k−1}) ∂ₓΦ(t_{k−1}, x^{k−1}) + w^k,  m^k = m^{k−1} + f_k,
-//!   w^{k+1} = A f_k − b_k f_{k−1} with the Onsager coefficient b_k = ⟨∂ₓₓΦ(t_{k−1}, x^{k−1})⟩.
+//! - m⁰ = √δ·s (s uniform random signs: the algorithm's randomness), z⁰ = 0;
+//! - z^{k+1} = ∇H(m^k) − Σ_{j=1..k} ξ''(⟨m^k, m^{j−1}⟩/n)·b_{k,j}·m^{j−1},
+//!   b_{k,k} = c_k⟨u_{k−1}⟩, b_{k,j} = c_j⟨u_{j−1}⟩ − c_{j+1}⟨u_j⟩ (j < k): the mean
+//!   derivative ⟨∂m^k/∂z^j⟩ (terms with a fresh increment as factor average to zero);
+//! - x^{k+1} = x^k + δ ξ''(t_k)γ(t_k)∂ₓΦ(t_k, x^k) + (z^{k+1} − z^k),
+//!   m^{k+1} = m^k + c_{k+1}·u_k ⊙ (z^{k+1} − z^k), with u_k = ∂ₓₓΦ(t_k, x^k).
 //!
-//! f_k depends on w^k only through the factor w^k, so by state evolution the w^k are
-//! independent N(0, δ) increments (given E[∂ₓₓΦ²] = 1 on the support of γ, the optimality
-//! condition) and m^k has the law of M_{t_k}. kiln rescales each f_k (and b_k with it) to
-//! ‖f_k‖²/n = δ exactly: the factor tends to 1 as n → ∞, and without it the finite-n errors are
-//! amplified near t = 1 where ∂ₓₓΦ is large (measured at n = 2000, δ = 0.02: ‖m‖²/n reached
-//! 1.19 and sign(m) scored 0.710; with it 0.729). The run stops at t = 1 − δ; the output is
-//! σ = sign(m) and the pre-rounding point m (scaled to norm √n); `relaxation` is H(m)/n.
-//! H(m)/n → ∫ E[∂ₓₓΦ] dt, the Parisi value, as n → ∞ and δ → 0 when the model has no
-//! overlap gap (believed for SK).
+//! c_k rescales each increment of m to ‖m^k − m^{k−1}‖²/n = δ exactly: the factor tends to 1
+//! (E[ξ''(t)(∂ₓₓΦ)²] = 1 on the support of γ, the optimality condition), and without it the
+//! finite-n errors are amplified near t = 1 where ∂ₓₓΦ is large (measured on SK at n = 2000,
+//! δ = 0.02: ‖m‖²/n reached 1.19 and sign(m) scored 0.710; with it 0.729). For SK (ξ'' = 1)
+//! the Onsager sum telescopes to Montanari's single term. The run stops at t = 1 − δ; the
+//! output is σ = sign(m) and the pre-rounding point m (scaled to norm √n); `relaxation` is
+//! H(m)/n. H(m)/n → the Parisi value as n → ∞ and δ → 0 when ξ has no overlap gap (believed
+//! for SK).
 //!
-//! Applies to SK and to `cube` with xi = { 2 = c }: the matrix is rescaled to the SK
-//! normalisation (ξ = q²/2) and the output is the same point.
+//! Applies to dense models on the cube with a p = 2 term (ξ''(0) > 0: the iteration starts at
+//! q = 0, where pure p ≥ 3 models have no gradient to follow).
 
 use super::{AlgoError, Info, Output};
 use crate::cell::Canon;
-use crate::model::sk::{Dense, dot};
+use crate::model::sk::dot;
 use crate::rng::Stream;
 use crate::theory::Mixture;
 use crate::theory::full::{self, Field, FullSettings};
@@ -35,7 +38,8 @@ use std::collections::HashMap;
 use std::sync::{Arc, Mutex, OnceLock};
 
 /// Revision of this algorithm's code (the full-RSB solver's revision is part of the canon).
-pub const REVISION: u32 = 1;
+/// 2: the tensor-AMP form for mixtures (m⁰ = √δ·s is part of m).
+pub const REVISION: u32 = 2;
 
 /// Settings.
 #[derive(Clone, Debug, PartialEq)]
@@ -70,34 +74,39 @@ impl Params {
     }
 }
 
-/// The SK Parisi field at t_k = kδ, k < K, with ∂ₓΦ and ∂ₓₓΦ on the grid; computed once per
-/// process for each (δ, levels) (the full-RSB solve takes seconds, a cell much less).
+/// The Parisi field at t_k = kδ, k < K, with ∂ₓΦ and ∂ₓₓΦ on the grid; computed once per
+/// process for each (ξ, δ, levels) (the full-RSB solve takes seconds, a cell much less).
 struct Drive {
     x0: f64,
     dx: f64,
-    gamma: Vec<f64>,
+    /// ξ''(t_k)·γ(t_k), the drift's factor.
+    drift: Vec<f64>,
     /// Per time: (∂ₓΦ, ∂ₓₓΦ) on the grid.
     d1: Vec<Vec<f64>>,
     d2: Vec<Vec<f64>>,
 }
 
-type DriveCache = Mutex<HashMap<(u64, u64), Arc<Drive>>>;
+type DriveCache = Mutex<HashMap<(String, u64, u64), Arc<Drive>>>;
 
-fn drive(p: &Params) -> Arc<Drive> {
+fn drive(p: &Params, xi: &Mixture) -> Arc<Drive> {
     static CACHE: OnceLock<DriveCache> = OnceLock::new();
-    let key = (p.step.to_bits(), p.levels);
+    let key = (xi.canon().encode(), p.step.to_bits(), p.levels);
     let cache = CACHE.get_or_init(Default::default);
     if let Some(d) = cache.lock().expect("drive cache").get(&key) {
         return d.clone();
     }
-    let xi = Mixture::sk();
     let s = FullSettings {
         levels: p.levels as usize,
         ..FullSettings::default()
     };
-    let sol = full::full_rsb(&xi, &s);
+    let sol = full::full_rsb(xi, &s);
     let times: Vec<f64> = (0..p.steps()).map(|k| k as f64 * p.step).collect();
-    let Field { x0, dx, gamma, phi } = full::field(&xi, &sol, &s, &times);
+    let Field { x0, dx, gamma, phi } = full::field(xi, &sol, &s, &times);
+    let drift = gamma
+        .iter()
+        .zip(&times)
+        .map(|(g, &t)| g * xi.d2(t))
+        .collect();
     let mut d1 = Vec::with_capacity(phi.len());
     let mut d2 = Vec::with_capacity(phi.len());
     for f in &phi {
@@ -116,7 +125,7 @@ fn drive(p: &Params) -> Arc<Drive> {
     let d = Arc::new(Drive {
         x0,
         dx,
-        gamma,
+        drift,
         d1,
         d2,
     });
@@ -137,69 +146,81 @@ impl Drive {
     }
 }
 
-/// Runs IAMP on the dense matrix `d`, whose H is `scale` times an SK Hamiltonian
-/// (scale = sqrt(2c) for xi = { 2 = c }; 1 for SK).
-pub fn run(p: &Params, d: &Dense, scale: f64, rng: &mut Stream) -> Result<Output, AlgoError> {
-    let n = d.n();
-    let drive = drive(p);
+/// Runs IAMP for covariance ξ with gradient `grad` (writes ∇H(x), returns H(x)).
+pub fn run(
+    p: &Params,
+    n: usize,
+    xi: &Mixture,
+    mut grad: impl FnMut(&[f64], &mut [f64]) -> f64,
+    rng: &mut Stream,
+) -> Result<Output, AlgoError> {
+    if xi.d2(0.0) <= 0.0 {
+        return Err(AlgoError::Unsupported {
+            kind: "iamp",
+            why: "incremental AMP starts at q = 0 and needs a p = 2 term (xi'(0) > 0)",
+        });
+    }
+    let drive = drive(p, xi);
     let k_max = p.steps();
     let delta = p.step;
-    let inv = 1.0 / scale;
-    let mut f_old: Vec<f64> = (0..n).map(|_| rng.sign() * delta.sqrt()).collect();
-    let mut w = vec![0.0; n];
-    d.matvec(&f_old, &mut w);
-    w.iter_mut().for_each(|v| *v *= inv);
+    let nf = n as f64;
+    // History: m^0..m^k, and per step c_k and ⟨u_{k−1}⟩ (index k; entry 0 unused).
+    let mut ms: Vec<Vec<f64>> = vec![(0..n).map(|_| rng.sign() * delta.sqrt()).collect()];
+    let (mut cs, mut us) = (vec![0.0], vec![0.0]);
     let mut x = vec![0.0; n];
-    let mut m = vec![0.0; n];
+    let mut z_old = vec![0.0; n];
+    let mut z = vec![0.0; n];
     let mut f = vec![0.0; n];
-    let mut af = vec![0.0; n];
-    let mut info = Info {
-        iterations: 1,
-        ..Info::default()
-    };
+    let mut info = Info::default();
     for k in 1..k_max {
-        let (gk, mut b, mut ss) = (drive.gamma[k - 1], 0.0, 0.0);
+        // z^k = ∇H(m^{k−1}) − Σ_{j=1..k−1} ξ''(⟨m^{k−1}, m^{j−1}⟩/n) b_{k−1,j} m^{j−1}.
+        let last = ms.len() - 1;
+        grad(&ms[last], &mut z);
+        info.iterations += 1;
+        for j in 1..=last {
+            let b = if j == last {
+                cs[j] * us[j]
+            } else {
+                cs[j] * us[j] - cs[j + 1] * us[j + 1]
+            };
+            let w = xi.d2(dot(&ms[last], &ms[j - 1]) / nf) * b;
+            crate::kernels::axpy(&mut z, -w, &ms[j - 1]);
+        }
+        // Increment of Z, then x and m at t_k (u and the drift at t_{k−1}, x^{k−1}).
+        let (a, mut ub, mut ss) = (drive.drift[k - 1], 0.0, 0.0);
         for i in 0..n {
+            let dz = z[i] - z_old[i];
             let (u1, u2) = drive.at(k - 1, x[i]);
-            f[i] = u2 * w[i];
-            x[i] += delta * gk * u1 + w[i];
-            b += u2;
+            f[i] = u2 * dz;
+            x[i] += delta * a * u1 + dz;
+            ub += u2;
             ss += f[i] * f[i];
         }
-        // Normalise to ‖f_k‖²/n = δ (the factor → 1 by E[∂ₓₓΦ²] = 1, see the module doc).
+        std::mem::swap(&mut z, &mut z_old);
         if ss.is_nan() || ss <= 0.0 {
             return Err(AlgoError::Numerical {
                 message: format!("IAMP increment vanished at step {k} of {k_max} (δ = {delta})"),
             });
         }
-        let c = (delta * n as f64 / ss).sqrt();
-        b *= c / n as f64;
-        for i in 0..n {
-            f[i] *= c;
-            m[i] += f[i];
-        }
-        info.sweeps += 1;
-        if k + 1 < k_max {
-            d.matvec(&f, &mut af);
-            for i in 0..n {
-                w[i] = af[i] * inv - b * f_old[i];
-            }
-            std::mem::swap(&mut f, &mut f_old);
-            info.iterations += 1;
-        }
-        if !m.iter().all(|v| v.is_finite()) {
+        let c = (delta * nf / ss).sqrt();
+        let mut next = ms[last].clone();
+        crate::kernels::axpy(&mut next, c, &f);
+        if !next.iter().all(|v| v.is_finite()) {
             return Err(AlgoError::Numerical {
                 message: format!("IAMP iterate not finite at step {k} of {k_max} (δ = {delta})"),
             });
         }
+        ms.push(next);
+        cs.push(c);
+        us.push(ub / nf);
+        info.sweeps += 1;
     }
-    d.matvec(&m, &mut af);
-    let value = 0.5 * dot(&m, &af) / n as f64;
+    let m = ms.pop().expect("at least one iterate");
     info.converged = true;
-    info.relaxation = Some(value);
+    info.relaxation = Some(grad(&m, &mut z) / nf);
     let spins = m.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
     let norm = dot(&m, &m).sqrt().max(f64::MIN_POSITIVE);
-    let s = (n as f64).sqrt() / norm;
+    let s = nf.sqrt() / norm;
     Ok(Output {
         spins,
         point: Some(m.iter().map(|v| v * s).collect()),

