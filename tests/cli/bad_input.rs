@@ -431,4 +431,17 @@ fn algorithms_are_matched_to_families() {
         &family_spec("family = \"sk\"", "[16]", "kind = \"hessian\""),
         &["`hessian` cannot run on the `sk` family"],
     );
+    // Incremental AMP starts at q = 0: a pure p ≥ 3 model gives it nothing to follow.
+    refuse(
+        &family_spec(
+            "family = \"cube\"\nxi = { 3 = 1.0 }",
+            "[16]",
+            "kind = \"iamp\"",
+        ),
+        &["`iamp` cannot run on the `cube` family", "p = 2 term"],
+    );
+    refuse(
+        &family_spec("family = \"regular\"\ndegree = 3", "[16]", "kind = \"amp\""),
+        &["`amp` cannot run on the `regular` family"],
+    );
 }
