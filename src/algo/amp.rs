@@ -126,17 +126,5 @@ pub fn run(
     }
     info.sweeps = info.iterations;
     info.relaxation = Some(grad(&m, &mut z) / nf);
-    let spins = m.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
-    let norm = m
-        .iter()
-        .map(|v| v * v)
-        .sum::<f64>()
-        .sqrt()
-        .max(f64::MIN_POSITIVE);
-    let s = nf.sqrt() / norm;
-    Ok(Output {
-        spins,
-        point: Some(m.iter().map(|v| v * s).collect()),
-        info,
-    })
+    Ok(super::rounded(&m, info))
 }

@@ -69,22 +69,11 @@ pub fn run_cube(
         }
     }
     info.sweeps = info.iterations;
-    let spins = x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
-    let norm = x
-        .iter()
-        .map(|v| v * v)
-        .sum::<f64>()
-        .sqrt()
-        .max(f64::MIN_POSITIVE);
-    let s = (n as f64).sqrt() / norm;
-    Output {
-        spins,
-        point: Some(x.iter().map(|v| v * s).collect()),
-        info,
-    }
+    super::rounded(&x, info)
 }
 
-fn project(x: &mut [f64]) {
+/// Scales x to norm √n.
+pub(crate) fn project(x: &mut [f64]) {
     let n = x.len() as f64;
     let norm = x.iter().map(|v| v * v).sum::<f64>().sqrt();
     let s = n.sqrt() / norm;
@@ -123,9 +112,8 @@ pub fn ascend_sphere(p: &Params, m: &Mixed, mut x: Vec<f64>) -> Output {
         info.iterations += 1;
     }
     info.sweeps = info.iterations;
-    let spins = x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
     Output {
-        spins,
+        spins: super::signs(&x),
         point: Some(x),
         info,
     }

@@ -106,13 +106,10 @@ pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Result<Output, AlgoError>
         x = out.point.expect("the sphere ascent returns its point");
     } else {
         // Rounding errors aside ‖x‖² = n already; normalise exactly.
-        let norm = x.iter().map(|v| v * v).sum::<f64>().sqrt();
-        let s = (n as f64).sqrt() / norm;
-        x.iter_mut().for_each(|v| *v *= s);
+        super::gradient::project(&mut x);
     }
-    let spins = x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
     Ok(Output {
-        spins,
+        spins: super::signs(&x),
         point: Some(x),
         info,
     })

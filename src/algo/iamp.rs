@@ -218,11 +218,11 @@ pub fn run(
     let m = ms.pop().expect("at least one iterate");
     info.converged = true;
     info.relaxation = Some(grad(&m, &mut z) / nf);
-    let spins = m.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
-    let norm = dot(&m, &m).sqrt().max(f64::MIN_POSITIVE);
-    let s = nf.sqrt() / norm;
+    // The norm with the kernels' sum (not `super::rounded`'s): the point's bits are part of
+    // revision 2's results.
+    let s = nf.sqrt() / dot(&m, &m).sqrt().max(f64::MIN_POSITIVE);
     Ok(Output {
-        spins,
+        spins: super::signs(&m),
         point: Some(m.iter().map(|v| v * s).collect()),
         info,
     })

@@ -283,10 +283,7 @@ impl AlgoSpec {
                 p,
                 d.n(),
                 &crate::theory::Mixture::sk(),
-                |x, y| {
-                    d.matvec(x, y);
-                    0.5 * crate::model::sk::dot(x, y)
-                },
+                |x, y| d.value_grad(x, y),
                 rng,
             ),
             (AlgoSpec::Amp(p), Instance::Mixed(m)) => {
@@ -296,10 +293,7 @@ impl AlgoSpec {
                 p,
                 d.n(),
                 &crate::theory::Mixture::sk(),
-                |x, y| {
-                    d.matvec(x, y);
-                    0.5 * crate::model::sk::dot(x, y)
-                },
+                |x, y| d.value_grad(x, y),
                 rng,
             ),
             (AlgoSpec::Iamp(p), Instance::Mixed(m)) => {
@@ -399,6 +393,28 @@ impl Metropolis {
             }
         }
         u < self.prob(g)
+    }
+}
+
+/// σ = sign(x), with sign(0) = +1: how every continuous algorithm rounds.
+pub(crate) fn signs(x: &[f64]) -> Vec<i8> {
+    x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect()
+}
+
+/// The output of an algorithm whose result is a point of any norm: σ = sign(x), and x
+/// scaled to norm √n as the pre-rounding point.
+pub(crate) fn rounded(x: &[f64], info: Info) -> Output {
+    let norm = x
+        .iter()
+        .map(|v| v * v)
+        .sum::<f64>()
+        .sqrt()
+        .max(f64::MIN_POSITIVE);
+    let s = (x.len() as f64).sqrt() / norm;
+    Output {
+        spins: signs(x),
+        point: Some(x.iter().map(|v| v * s).collect()),
+        info,
     }
 }
 

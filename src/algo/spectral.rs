@@ -60,13 +60,9 @@ pub fn run(
     let sgn = if along < 0.0 { -1.0 } else { 1.0 };
     let scale = sgn * (n as f64).sqrt();
     let point: Vec<f64> = e.vector.iter().map(|v| v * scale).collect();
-    let spins = point
-        .iter()
-        .map(|&x| if x < 0.0 { -1 } else { 1 })
-        .collect();
     Ok((
         Output {
-            spins,
+            spins: super::signs(&point),
             point: Some(point),
             info: Info {
                 iterations: e.matvecs,

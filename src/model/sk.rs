@@ -154,6 +154,12 @@ impl Dense {
         }
     }
 
+    /// H(x) = ½ xᵀAx for a real point, writing ∇H(x) = Ax into `g`.
+    pub fn value_grad(&self, x: &[f64], g: &mut [f64]) -> f64 {
+        self.matvec(x, g);
+        0.5 * dot(x, g)
+    }
+
     /// H(σ) = ½ σᵀAσ, from scratch, summed in a fixed order.
     pub fn energy(&self, s: &[i8]) -> f64 {
         let mut e = 0.0;
