@@ -166,8 +166,8 @@ impl AlgoSpec {
             }
             // iterates, fields, signs.
             AlgoSpec::Amp(_) => 8 * n * 5,
-            // x, m, f, f_old, w, A f, signs.
-            AlgoSpec::Iamp(_) => 8 * n * 7,
+            // the iterates m⁰…m^K it keeps for the Onsager sum, plus x, z, z_old, f.
+            AlgoSpec::Iamp(p) => 8 * n * (p.steps() as u128 + 5),
             // the dense Hessian, the Lanczos basis (64) and a few vectors.
             AlgoSpec::Hessian(_) => 8 * n * n + 8 * n * 72,
             // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
