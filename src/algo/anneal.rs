@@ -103,35 +103,26 @@ trait IntField: Copy {
     fn set(v: i32) -> Self;
 }
 
-impl IntField for i8 {
-    #[inline(always)]
-    fn from_f64(x: f64) -> Self {
-        x as i8
-    }
-    #[inline(always)]
-    fn get(self) -> i32 {
-        self as i32
-    }
-    #[inline(always)]
-    fn set(v: i32) -> Self {
-        v as i8
-    }
+macro_rules! int_field {
+    ($t:ty) => {
+        impl IntField for $t {
+            #[inline(always)]
+            fn from_f64(x: f64) -> Self {
+                x as $t
+            }
+            #[inline(always)]
+            fn get(self) -> i32 {
+                self as i32
+            }
+            #[inline(always)]
+            fn set(v: i32) -> Self {
+                v as $t
+            }
+        }
+    };
 }
-
-impl IntField for i32 {
-    #[inline(always)]
-    fn from_f64(x: f64) -> Self {
-        x as i32
-    }
-    #[inline(always)]
-    fn get(self) -> i32 {
-        self
-    }
-    #[inline(always)]
-    fn set(v: i32) -> Self {
-        v
-    }
-}
+int_field!(i8);
+int_field!(i32);
 
 /// The sweeps on a graph whose couplings are small integers: fields kept as exact integers
 /// (i8 when the gain bound allows, else i32), the couplings as i8, acceptance from the per-β
