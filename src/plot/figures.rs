@@ -3,6 +3,7 @@
 
 use super::{PALETTE, err, pt};
 use crate::fit::{Fit, format::with_error};
+use plotters::chart::MeshStyle;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -93,19 +94,14 @@ impl super::Figure for OverlapFigure {
             .y_label_area_size(pt(30.0) as u32)
             .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..ymax * 1.15)
             .map_err(err)?;
-        chart
-            .configure_mesh()
-            .disable_x_mesh()
-            .disable_y_mesh()
-            .x_labels(5)
-            .y_labels(5)
-            .x_desc("overlap  σᵃ·σᵇ/n")
-            .y_desc("density")
-            .label_style(("sans-serif", pt(7.0)))
-            .axis_desc_style(("sans-serif", pt(8.0)))
-            .axis_style(BLACK.stroke_width(2))
-            .draw()
-            .map_err(err)?;
+        house_mesh(
+            &mut chart.configure_mesh(),
+            "overlap  σᵃ·σᵇ/n",
+            "density",
+            (5, 5),
+        )
+        .draw()
+        .map_err(err)?;
         for (i, s) in self.series.iter().enumerate() {
             let color = PALETTE[1 + i % (PALETTE.len() - 1)];
             let mut outline = vec![(-1.0, 0.0)];
@@ -278,19 +274,14 @@ where
         .y_label_area_size(pt(30.0) as u32)
         .build_cartesian_2d(0.0..xmax, lo..hi)
         .map_err(err)?;
-    chart
-        .configure_mesh()
-        .disable_x_mesh()
-        .disable_y_mesh()
-        .x_desc(format!("n^-ω  (ω = {:.3})", fig.omega))
-        .y_desc("energy per spin  H/n")
-        .label_style(("sans-serif", pt(7.0)))
-        .axis_desc_style(("sans-serif", pt(8.0)))
-        .x_labels(5)
-        .y_labels(6)
-        .axis_style(BLACK.stroke_width(2))
-        .draw()
-        .map_err(err)?;
+    house_mesh(
+        &mut chart.configure_mesh(),
+        &format!("n^-ω  (ω = {:.3})", fig.omega),
+        "energy per spin  H/n",
+        (5, 6),
+    )
+    .draw()
+    .map_err(err)?;
     for (v, label) in &fig.theory {
         chart
             .draw_series(DashedLineSeries::new(
@@ -410,21 +401,16 @@ where
             (ylo / 1.3..yhi * 4.0).log_scale(),
         )
         .map_err(err)?;
-    chart
-        .configure_mesh()
-        .disable_x_mesh()
-        .disable_y_mesh()
-        .x_labels(4)
-        .y_labels(5)
-        .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))
-        .y_label_formatter(&|y| format!("{}", (y * 1e4).round() / 1e4))
-        .x_desc("ε  (disorder correlation 1 − ε)")
-        .y_desc("distance  ‖σ − σ'‖/√n")
-        .label_style(("sans-serif", pt(7.0)))
-        .axis_desc_style(("sans-serif", pt(8.0)))
-        .axis_style(BLACK.stroke_width(2))
-        .draw()
-        .map_err(err)?;
+    house_mesh(
+        &mut chart.configure_mesh(),
+        "ε  (disorder correlation 1 − ε)",
+        "distance  ‖σ − σ'‖/√n",
+        (4, 5),
+    )
+    .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))
+    .y_label_formatter(&|y| format!("{}", (y * 1e4).round() / 1e4))
+    .draw()
+    .map_err(err)?;
     for (i, s) in fig.series.iter().enumerate() {
         let color = PALETTE[1 + i % (PALETTE.len() - 1)];
         let pts: Vec<(f64, f64, f64)> = s
@@ -470,6 +456,30 @@ where
         .draw()
         .map_err(err)?;
     root.present().map_err(err)
+}
+
+/// The axes every kiln figure shares: no grid, 7 pt tick labels, 8 pt axis titles, 2 px black
+/// axes, and the given titles and tick counts.
+fn house_mesh<'m, 'a, 'b, X, Y, DB>(
+    mesh: &'m mut MeshStyle<'a, 'b, X, Y, DB>,
+    x_desc: &str,
+    y_desc: &str,
+    (x_labels, y_labels): (usize, usize),
+) -> &'m mut MeshStyle<'a, 'b, X, Y, DB>
+where
+    X: Ranged,
+    Y: Ranged,
+    DB: DrawingBackend,
+{
+    mesh.disable_x_mesh()
+        .disable_y_mesh()
+        .x_labels(x_labels)
+        .y_labels(y_labels)
+        .x_desc(x_desc)
+        .y_desc(y_desc)
+        .label_style(("sans-serif", pt(7.0)))
+        .axis_desc_style(("sans-serif", pt(8.0)))
+        .axis_style(BLACK.stroke_width(2))
 }
 
 #[cfg(test)]
