@@ -13,13 +13,14 @@ use crate::rng::{Purpose, stream};
 use crate::spec::Spec;
 use crate::spec::plan::{Cell, Plan};
 use crate::store::StoreError;
-use crate::store::cache::{Cache, Claim, Lookup, RECORD_FORMAT, Record};
+use crate::store::cache::{Cache, Claim, ClaimGuard, Lookup, RECORD_FORMAT, Record};
 use crate::store::manifest::CellCounts;
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 use std::collections::{BTreeMap, HashMap};
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::mpsc::{Receiver, SendError, SyncSender};
 use std::time::Instant;
 
 /// Set by the SIGINT handler: stop handing out new cells.
@@ -224,59 +225,72 @@ pub fn execute(
         .num_threads(opts.jobs.max(1))
         .build()
         .expect("thread pool");
-    pool.install(|| {
-        for phase in [phase_base, phase_eps] {
-            let mut pending = phase;
-            loop {
-                let deferred: Mutex<Vec<&Cell>> = Mutex::new(Vec::new());
-                pending.par_iter().with_max_len(1).for_each(|cell| {
+    // Finished cells go to one write-behind thread, so compute threads never wait on fsync
+    // (measured: 128 tempering cells of 15 ms spent 0.2 s of their 2.3 s in fsync). The
+    // queue is short: a kill -9 loses at most the cells in flight and 2 queued per job.
+    let (writes, queue) = std::sync::mpsc::sync_channel::<WriteJob>(2 * opts.jobs.max(1));
+    let (abort, fatal) = (&abort, &fatal);
+    std::thread::scope(|scope| {
+        scope.spawn(move || write_behind(queue, cache, abort, fatal));
+        pool.install(|| {
+            for phase in [phase_base, phase_eps] {
+                let mut pending = phase;
+                loop {
+                    let deferred: Mutex<Vec<&Cell>> = Mutex::new(Vec::new());
+                    pending.par_iter().with_max_len(1).for_each(|cell| {
+                        if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
+                            skipped.fetch_add(1, Ordering::Relaxed);
+                            return;
+                        }
+                        match attempt(spec, cell, cache, prov, &damaged, &writes) {
+                            Ok(Outcome::Computed(r)) => {
+                                new_records.lock().expect("lock").push(r);
+                                computed.fetch_add(1, Ordering::Relaxed);
+                                bar.inc(1);
+                            }
+                            Ok(Outcome::Cached(r)) => {
+                                new_records.lock().expect("lock").push(r);
+                                cached_later.fetch_add(1, Ordering::Relaxed);
+                                bar.inc(1);
+                            }
+                            Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
+                            Ok(Outcome::Failed(m)) => {
+                                failures.lock().expect("lock").push((cell.key.hex(), m));
+                                failed.fetch_add(1, Ordering::Relaxed);
+                                bar.inc(1);
+                            }
+                            Err(e) => {
+                                abort.store(true, Ordering::Relaxed);
+                                fatal.lock().expect("lock").get_or_insert(e);
+                                failed.fetch_add(1, Ordering::Relaxed);
+                            }
+                        }
+                        set_msg();
+                    });
+                    pending = deferred.into_inner().expect("lock");
+                    if pending.is_empty() {
+                        // The next phase reads this one's outputs from the cache.
+                        flush(&writes);
+                        break;
+                    }
                     if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
-                        skipped.fetch_add(1, Ordering::Relaxed);
-                        return;
+                        skipped.fetch_add(pending.len() as u64, Ordering::Relaxed);
+                        flush(&writes);
+                        break;
                     }
-                    match attempt(spec, cell, cache, prov, &damaged) {
-                        Ok(Outcome::Computed(r)) => {
-                            new_records.lock().expect("lock").push(r);
-                            computed.fetch_add(1, Ordering::Relaxed);
-                            bar.inc(1);
-                        }
-                        Ok(Outcome::Cached(r)) => {
-                            new_records.lock().expect("lock").push(r);
-                            cached_later.fetch_add(1, Ordering::Relaxed);
-                            bar.inc(1);
-                        }
-                        Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
-                        Ok(Outcome::Failed(m)) => {
-                            failures.lock().expect("lock").push((cell.key.hex(), m));
-                            failed.fetch_add(1, Ordering::Relaxed);
-                            bar.inc(1);
-                        }
-                        Err(e) => {
-                            abort.store(true, Ordering::Relaxed);
-                            fatal.lock().expect("lock").get_or_insert(e);
-                            failed.fetch_add(1, Ordering::Relaxed);
-                        }
-                    }
-                    set_msg();
-                });
-                pending = deferred.into_inner().expect("lock");
-                if pending.is_empty() {
-                    break;
+                    bar.set_message(format!(
+                        "waiting for {} cells claimed by other runners",
+                        pending.len()
+                    ));
+                    std::thread::sleep(std::time::Duration::from_millis(150));
                 }
-                if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
-                    skipped.fetch_add(pending.len() as u64, Ordering::Relaxed);
-                    break;
-                }
-                bar.set_message(format!(
-                    "waiting for {} cells claimed by other runners",
-                    pending.len()
-                ));
-                std::thread::sleep(std::time::Duration::from_millis(150));
             }
-        }
+        });
+        // Closing the queue ends the writer; the scope waits until it has written everything.
+        drop(writes);
     });
     bar.finish_and_clear();
-    if let Some(e) = fatal.into_inner().expect("lock") {
+    if let Some(e) = fatal.lock().expect("lock").take() {
         return Err(e);
     }
     for r in new_records.into_inner().expect("lock") {
@@ -300,6 +314,70 @@ pub fn execute(
     })
 }
 
+/// Work for the write-behind thread.
+enum WriteJob {
+    /// A computed cell's files, written under its claim (released once the record is down).
+    Cell(Box<CellFiles>, ClaimGuard),
+    /// Answered once every earlier job is written.
+    Flush(std::sync::mpsc::Sender<()>),
+}
+
+/// Writes finished cells in the order they were queued; the first store error stops the
+/// run (as it would have on a compute thread).
+fn write_behind(
+    queue: Receiver<WriteJob>,
+    cache: &Cache,
+    abort: &AtomicBool,
+    fatal: &Mutex<Option<StoreError>>,
+) {
+    for job in queue {
+        match job {
+            WriteJob::Cell(files, _claim) => {
+                if let Err(e) = files.persist(cache) {
+                    abort.store(true, Ordering::Relaxed);
+                    fatal.lock().expect("lock").get_or_insert(e);
+                }
+            }
+            WriteJob::Flush(done) => {
+                let _ = done.send(());
+            }
+        }
+    }
+}
+
+/// Waits until the writer has written every cell queued so far.
+fn flush(writes: &SyncSender<WriteJob>) {
+    let (done, wait) = std::sync::mpsc::channel();
+    if writes.send(WriteJob::Flush(done)).is_ok() {
+        let _ = wait.recv();
+    }
+}
+
+/// What a computed cell leaves in the cache: its record and, for a reference cell, its
+/// output (spins, and the point where later ε cells need it).
+struct CellFiles {
+    record: Record,
+    spins: Option<Vec<i8>>,
+    point: Option<Vec<f64>>,
+}
+
+impl CellFiles {
+    /// Writes the outputs first and the record last (a record means the cell is done), then
+    /// clears an earlier failure note.
+    fn persist(&self, cache: &Cache) -> Result<(), StoreError> {
+        let key = Key::from_hex(&self.record.key).expect("records carry valid keys");
+        if let Some(x) = &self.point {
+            cache.write_point(&key, x)?;
+        }
+        if let Some(s) = &self.spins {
+            cache.write_spins(&key, s)?;
+        }
+        cache.write_record(&self.record)?;
+        cache.clear_failed(&key);
+        Ok(())
+    }
+}
+
 enum Outcome {
     Computed(Record),
     /// Another runner computed it meanwhile.
@@ -316,8 +394,9 @@ fn attempt(
     cache: &Cache,
     prov: &Provenance,
     damaged: &Mutex<Vec<String>>,
+    writes: &SyncSender<WriteJob>,
 ) -> Result<Outcome, StoreError> {
-    let _guard = match cache.claim(&cell.key, &prov.host, &prov.computed_by)? {
+    let guard = match cache.claim(&cell.key, &prov.host, &prov.computed_by)? {
         Claim::Acquired(g) => g,
         Claim::HeldByOther(_) => return Ok(Outcome::Deferred),
     };
@@ -325,9 +404,14 @@ fn attempt(
         return Ok(Outcome::Cached(r));
     }
     match compute_cell(spec, cell, cache, prov, damaged) {
-        Ok(r) => {
-            cache.clear_failed(&cell.key);
-            Ok(Outcome::Computed(r))
+        Ok(files) => {
+            let record = files.record.clone();
+            let job = WriteJob::Cell(Box::new(files), guard);
+            if let Err(SendError(WriteJob::Cell(files, _claim))) = writes.send(job) {
+                // The writer is gone (it cannot be, short of a panic): write here.
+                files.persist(cache)?;
+            }
+            Ok(Outcome::Computed(record))
         }
         Err(CellError::Failed(m)) => {
             cache.mark_failed(&cell.key, &m)?;
@@ -409,7 +493,7 @@ fn compute_cell(
     cache: &Cache,
     prov: &Provenance,
     damaged: &Mutex<Vec<String>>,
-) -> Result<Record, CellError> {
+) -> Result<CellFiles, CellError> {
     let start = Instant::now();
     let n = cell.n as usize;
     let algo = &spec.algorithms[cell.algo].algo;
@@ -442,12 +526,9 @@ fn compute_cell(
         kiln_version: prov.kiln_version.clone(),
         computed_by: prov.computed_by.clone(),
     };
+    let (mut spins, mut point) = (None, None);
     if cell.is_base() {
         let (out, energy, (reduced, cut)) = run_reference(spec, cell)?;
-        if let Some(x) = &out.point {
-            cache.write_point(&cell.key, x)?;
-        }
-        cache.write_spins(&cell.key, &out.spins)?;
         record.energy = energy;
         record.energy_perturbed = energy;
         record.energy_reduced = reduced;
@@ -456,6 +537,8 @@ fn compute_cell(
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
+        spins = Some(out.spins);
+        point = out.point;
     } else {
         let reference = load_reference(spec, cell, cache, damaged)?;
         let (reference, reduced, cut, relaxation) = match reference {
@@ -514,8 +597,11 @@ fn compute_cell(
         record.converged = out.info.converged;
     }
     record.wall_seconds = start.elapsed().as_secs_f64();
-    cache.write_record(&record)?;
-    Ok(record)
+    Ok(CellFiles {
+        record,
+        spins,
+        point,
+    })
 }
 
 /// A cached reference with the reference record's cut fraction and relaxation value.

@@ -288,6 +288,32 @@ fn unwritable_cache_names_the_path() {
     assert!(!w.path().join("results/rel/cells.parquet").exists());
 }
 
+/// A record that cannot be written after its cell was computed (the write-behind path): the
+/// run stops with the path named, writes no table and leaves no claim behind. Every record
+/// shard folder is a dangling symbolic link: reading finds nothing (so the cells are
+/// computed), creating the folder fails, so only the writer fails.
+#[test]
+fn failed_record_write_stops_the_run() {
+    let w = Work::new();
+    let spec = w.spec("s.toml", &SLOW.replace("sweeps = 2500", "sweeps = 5"));
+    let records = w.path().join("cache/records");
+    std::fs::create_dir_all(&records).unwrap();
+    for b in 0..=255u8 {
+        std::os::unix::fs::symlink(w.path().join("nowhere"), records.join(format!("{b:02x}")))
+            .unwrap();
+    }
+    let o = w.kiln(&["run", spec.to_str().unwrap(), "--cache", "cache", "--quiet"]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(err.contains("cannot write cache/records/"), "{err}");
+    assert!(!w.path().join("results/rel/cells.parquet").exists());
+    let claims: Vec<PathBuf> = files_under(&w.path().join("cache/claims"))
+        .into_iter()
+        .filter(|p| p.extension().is_some_and(|e| e == "claim"))
+        .collect();
+    assert!(claims.is_empty(), "claims left behind: {claims:?}");
+}
+
 /// When two cells at once would not fit, kiln runs one at a time and says so.
 #[test]
 fn jobs_are_lowered_to_fit_memory() {
