@@ -56,6 +56,10 @@ col() { echo "$1" | tr ' ' '\n' | grep . | stats; }
 c_desc=$(col "$c_d"); c_sa=$(col "$c_a"); c_sp=$(col "$c_s")
 k_desc=$(col "$k_d"); k_sa=$(col "$k_a"); k_sp=$(col "$k_s")
 k=$(RAYON_NUM_THREADS=1 "$kb" 2048 "$runs" matvec,eigen)
+# Bandwidth again after the products; the larger median is the reference (the conservative
+# choice on a machine whose load drifts).
+c_stream2=$(OMP_NUM_THREADS=1 "$out/stream" 1 10)
+read_bw=$(printf '%s\n%s\n' "$read_bw" "$(echo "$c_stream2" | get sum_median_GBs)" | sort -g | tail -1)
 kc=$("$kb" 2048 "$runs" couplings)
 
 py=""
@@ -120,6 +124,13 @@ t_cores() { local s e r; for r in 1 2 3; do s=$(date +%s.%N)
         --jobs "$2" --quiet
     e=$(date +%s.%N); calc "$e - $s"; echo; done | sort -g | head -1; }
 t1=$(t_cores cores 1); t2=$(t_cores cores 2)
+# The machine's own 2-vs-1 scaling at this moment, for comparison: the C annealer on 16
+# instances of the same size, in one process or split over two processes (fastest of 3).
+t_c() { local s e r; for r in 1 2 3; do s=$(date +%s.%N)
+    if [ "$1" = 1 ]; then "$out/sa_dense" 1024 300 0.1 5.0 16 1 >/dev/null
+    else "$out/sa_dense" 1024 300 0.1 5.0 8 1 >/dev/null & "$out/sa_dense" 1024 300 0.1 5.0 8 9 >/dev/null; wait; fi
+    e=$(date +%s.%N); calc "$e - $s"; echo; done | sort -g | head -1; }
+m1=$(t_c 1); m2=$(t_c 2)
 u1=$(t_cores cores-small 1); u2=$(t_cores cores-small 2)
 cat > "$work/mem.toml" <<'EOF'
 [experiment]
@@ -143,7 +154,7 @@ read -r cd_m cd_lo cd_hi <<<"$c_desc"; read -r ca_m ca_lo ca_hi <<<"$c_sa"; read
 read -r kd_m kd_lo kd_hi <<<"$k_desc"; read -r ka_m ka_lo ka_hi <<<"$k_sa"; read -r ks_m ks_lo ks_hi <<<"$k_sp"
 read -r no_m no_lo no_hi <<<"$noop"
 {
-    echo "kiln benchmark $(date -u +%FT%TZ) on $(hostname), $(nproc) cores, git $(git rev-parse --short HEAD 2>/dev/null || echo '?')"
+    echo "kiln benchmark $(date -u +%FT%TZ) on $(hostname), $(nproc) cores, git $(git describe --always --dirty 2>/dev/null || echo '?')"
     echo "runs: $runs; medians (min-max); ratio = kiln time / reference time (target in brackets)"
     echo
     printf '%-34s %-34s %-34s %s\n' kernel kiln reference ratio
@@ -157,11 +168,15 @@ read -r no_m no_lo no_hi <<<"$noop"
         km=$(echo "$k" | grep "kiln_matvec n=$n ")
         kt=$(echo "$km" | get t_med_ms)
         if [ -n "$p_mv" ]; then
-            pm=$(echo "$p_mv" | grep "op=gemv n=$n dtype=float64 threads=1 ")
-            pt=$(echo "$pm" | get t_med_ms)
-            printf '%-34s %-34s %-34s %s\n' "matvec f64 n=$n 1 thread (ms)" \
-                "$kt ($(echo "$km" | get t_min_ms)-$(echo "$km" | get t_max_ms))" \
-                "numpy $pt (min $(echo "$pm" | get t_min_ms))" "$(calc "$kt / $pt") [<= 1.0]"
+            # A @ x (gemv, what a user writes) and the symmetric product (symv, which reads
+            # one triangle, as kiln does).
+            for op in gemv symv; do
+                pm=$(echo "$p_mv" | grep "op=$op n=$n dtype=float64 threads=1 ")
+                pt=$(echo "$pm" | get t_med_ms)
+                printf '%-34s %-34s %-34s %s\n' "matvec f64 n=$n 1 thread (ms)" \
+                    "$kt ($(echo "$km" | get t_min_ms)-$(echo "$km" | get t_max_ms))" \
+                    "numpy $op $pt (min $(echo "$pm" | get t_min_ms))" "$(calc "$kt / $pt") [<= 1.0]"
+            done
         fi
         # kiln reads only the upper triangle: physical bytes are half the effective ones.
         gbe=$(echo "$km" | get GBs_med)
@@ -188,10 +203,12 @@ read -r no_m no_lo no_hi <<<"$noop"
         "speed-up $(calc "$t1 / $t2") [>= 1.8]"
     printf '%-34s %-34s %-34s %s\n' "128 tempering cells n=128, 1|2 jobs" "$u1 / $u2 s" "-" \
         "speed-up $(calc "$u1 / $u2") [>= 1.8]"
+    printf '%-34s %-34s %-34s %s\n' "machine: C annealer 1|2 processes" "-" "$m1 / $m2 s" \
+        "speed-up $(calc "$m1 / $m2") (reference)"
     printf '%-34s %-34s %-34s %s\n' "peak RSS, SK n=8192 descent (MiB)" "$(calc "$rss_kib / 1024")" \
         "couplings $coupling_mib" "$(calc "$rss_kib / 1024 / $coupling_mib") [<= 1.2 + const]"
     echo
-    echo "raw:"; echo "$c_stream"; echo "C descent t_total_ms (med min max): $c_desc"
+    echo "raw:"; echo "$c_stream"; echo "$c_stream2"; echo "C descent t_total_ms (med min max): $c_desc"
     echo "C dense attempts/s: $c_sa"; echo "C sparse ns/attempt: $c_sp"
     echo "kiln descent t_total_ms: $k_desc"; echo "kiln dense attempts/s: $k_sa"
     echo "kiln sparse ns/attempt: $k_sp"
