@@ -251,10 +251,11 @@ mod avx2 {
         let mut acc = [_mm256_setzero_pd(); 4];
         let mut k = 0;
         while k < full {
-            if k % 8 == 0 {
+            if k % 8 == 0 && k + PREFETCH_AHEAD < n {
                 // One prefetch per cache line and row, PREFETCH_AHEAD doubles ahead: the
                 // hardware prefetcher alone keeps too few lines in flight on four streams.
-                // A hint only (wrapping address, no access): results are unchanged.
+                // Not past the rows' ends (the next rows' lower parts are never read). A
+                // hint only (wrapping address, no access): results are unchanged.
                 for r in p {
                     _mm_prefetch::<_MM_HINT_T0>(r.wrapping_add(k + PREFETCH_AHEAD) as *const i8);
                 }
