@@ -128,11 +128,117 @@ pub fn svg_to_pdf(svg: &str) -> Result<Vec<u8>, String> {
     let tree = usvg::Tree::from_str(svg, &opt).map_err(|e| e.to_string())?;
     // usvg measures in CSS pixels (96 per inch); the page keeps the figure's inches.
     let page = svg2pdf::PageOptions { dpi: 96.0 };
-    svg2pdf::to_pdf(&tree, svg2pdf::ConversionOptions::default(), page)
-        .map_err(|e| format!("{e:?}"))
+    let mut pdf = svg2pdf::to_pdf(&tree, svg2pdf::ConversionOptions::default(), page)
+        .map_err(|e| format!("{e:?}"))?;
+    sort_resource_entries(&mut pdf);
+    Ok(pdf)
+}
+
+/// The converter lists a page's resources (`/XObject`, `/ExtGState`, …) in hash-map order,
+/// which differs from run to run, so the same figure gave different PDF bytes. This sorts
+/// the entry lines of every such dictionary whose entries are all plain references
+/// (`/name N 0 R`, one per line). Lines only change places, so every byte offset (and the
+/// cross-reference table) stays valid.
+fn sort_resource_entries(pdf: &mut [u8]) {
+    const HEADS: [&[u8]; 5] = [
+        b"/XObject <<\n",
+        b"/ExtGState <<\n",
+        b"/Font <<\n",
+        b"/Pattern <<\n",
+        b"/Shading <<\n",
+    ];
+    let is_entry = |line: &[u8]| {
+        let t: Vec<&[u8]> = line
+            .split(|&b| b == b' ')
+            .filter(|w| !w.is_empty())
+            .collect();
+        t.len() == 4
+            && t[0].len() > 1
+            && t[0][0] == b'/'
+            && t[0][1..].iter().all(u8::is_ascii_alphanumeric)
+            && t[1].iter().all(u8::is_ascii_digit)
+            && t[2] == b"0"
+            && t[3] == b"R"
+    };
+    let mut at = 0;
+    while at < pdf.len() {
+        let Some((start, head)) = HEADS
+            .iter()
+            .filter_map(|h| find(&pdf[at..], h).map(|i| (at + i, h.len())))
+            .min()
+        else {
+            break;
+        };
+        let body = start + head;
+        let mut lines: Vec<Vec<u8>> = Vec::new();
+        let mut i = body;
+        let mut closed = false;
+        while let Some(len) = pdf[i..].iter().position(|&b| b == b'\n') {
+            let line = &pdf[i..i + len];
+            if line.iter().all(|&b| b == b' ' || b == b'>') && line.ends_with(b">>") {
+                closed = true;
+                break;
+            }
+            if !is_entry(line) {
+                break;
+            }
+            lines.push(pdf[i..=i + len].to_vec());
+            i += len + 1;
+        }
+        if closed && lines.len() > 1 {
+            lines.sort();
+            pdf[body..i].copy_from_slice(&lines.concat());
+        }
+        at = i.max(body);
+    }
+}
+
+fn find(hay: &[u8], needle: &[u8]) -> Option<usize> {
+    hay.windows(needle.len()).position(|w| w == needle)
 }
 
 /// Maps a plotters drawing error to a message.
 pub fn err<E: std::fmt::Debug>(e: E) -> String {
     format!("drawing failed: {e:?}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The same SVG gives the same PDF bytes every time (it did not: the converter's resource
+    /// dictionaries came out in hash-map order). Three translucent groups make three
+    /// `/ExtGState` and three `/XObject` entries, so an unsorted order shows up in a few of
+    /// eight conversions with near certainty.
+    #[test]
+    fn pdf_bytes_are_reproducible() {
+        let svg = r#"<svg xmlns="http://www.w3.org/2000/svg" width="2in" height="1in" viewBox="0 0 192 96">
+<g opacity="0.2"><rect x="0" y="0" width="50" height="50" fill="red"/></g>
+<g opacity="0.5"><rect x="60" y="0" width="50" height="50" fill="green"/></g>
+<g opacity="0.8"><rect x="120" y="0" width="50" height="50" fill="blue"/></g>
+<text x="10" y="90" font-size="12">energy per spin</text>
+</svg>"#;
+        let first = svg_to_pdf(svg).unwrap();
+        let text = String::from_utf8_lossy(&first);
+        assert!(text.contains("/ExtGState <<"), "{text}");
+        for _ in 0..7 {
+            assert_eq!(svg_to_pdf(svg).unwrap(), first);
+        }
+    }
+
+    /// Only whole reference lines move; the length (and so every offset) is unchanged, and a
+    /// dictionary with any other kind of entry is left alone.
+    #[test]
+    fn resource_lines_are_sorted_in_place() {
+        let mut pdf = b"4 0 obj\n<<\n  /XObject <<\n    /xo1 10 0 R\n    /xo0 8 0 R\n  >>\n  /Font <<\n    /fo1 2 0 R\n    /fo0 [1 0 R]\n  >>\n>>\nendobj\n".to_vec();
+        let before = pdf.len();
+        sort_resource_entries(&mut pdf);
+        let text = String::from_utf8(pdf.clone()).unwrap();
+        assert_eq!(pdf.len(), before);
+        assert!(
+            text.contains("/XObject <<\n    /xo0 8 0 R\n    /xo1 10 0 R\n  >>"),
+            "{text}"
+        );
+        assert!(text.contains("/fo1 2 0 R\n    /fo0 [1 0 R]"), "{text}");
+    }
 }
