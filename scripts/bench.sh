@@ -190,8 +190,9 @@ read -r no_m no_lo no_hi <<<"$noop"
             pe=$(echo "$p_eig" | grep "n=$n ")
             pt=$(echo "$pe" | get t_med_s)
             printf '%-34s %-34s %-34s %s\n' "top eigenvector n=$n (s)" \
-                "$kt ($(echo "$ke" | get matvecs) products)" \
-                "eigsh $pt ($(echo "$pe" | get matvecs) products)" "$(calc "$kt / $pt") [<= 1.0]"
+                "$kt ($(echo "$ke" | get matvecs) prod., res. $(echo "$ke" | get residual))" \
+                "eigsh $pt ($(echo "$pe" | get matvecs) prod., res. $(echo "$pe" | get residual))" \
+                "$(calc "$kt / $pt") [<= 1.0]"
         else
             printf '%-34s %-34s %-34s %s\n' "top eigenvector n=$n (s)" "$kt" "skipped" "-"
         fi
