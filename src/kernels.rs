@@ -236,7 +236,13 @@ mod avx2 {
     }
 
     #[target_feature(enable = "avx2")]
-    pub(super) fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4] {
+    pub(super) fn sym4(
+        a: [&[f64]; 4],
+        x: &[f64],
+        y: &mut [f64],
+        c: [f64; 4],
+        next: [&[f64]; 4],
+    ) -> [f64; 4] {
         let n = x.len().min(y.len());
         assert!(a.iter().all(|r| r.len() >= n));
         let full = n / 4 * 4;
@@ -251,13 +257,23 @@ mod avx2 {
         let mut acc = [_mm256_setzero_pd(); 4];
         let mut k = 0;
         while k < full {
-            if k % 8 == 0 && k + PREFETCH_AHEAD < n {
+            if k % 8 == 0 {
                 // One prefetch per cache line and row, PREFETCH_AHEAD doubles ahead: the
-                // hardware prefetcher alone keeps too few lines in flight on four streams.
-                // Not past the rows' ends (the next rows' lower parts are never read). A
-                // hint only (wrapping address, no access): results are unchanged.
-                for r in p {
-                    _mm_prefetch::<_MM_HINT_T0>(r.wrapping_add(k + PREFETCH_AHEAD) as *const i8);
+                // hardware prefetcher alone keeps too few lines in flight on four streams,
+                // and it cannot know where the next block's rows start. Near the rows' ends
+                // the prefetches run on into `next` (never into the parts of rows the
+                // product does not read). Hints only: results are unchanged.
+                let t = k + PREFETCH_AHEAD;
+                if t < n {
+                    for r in p {
+                        _mm_prefetch::<_MM_HINT_T0>(r.wrapping_add(t) as *const i8);
+                    }
+                } else {
+                    for r in next {
+                        if t - n < r.len() {
+                            _mm_prefetch::<_MM_HINT_T0>(r.as_ptr().wrapping_add(t - n) as *const i8);
+                        }
+                    }
                 }
             }
             // SAFETY: k + 3 < full ≤ n ≤ every slice's length (asserted above).
@@ -318,28 +334,9 @@ mod avx2 {
 }
 
 /// How far ahead (in doubles) [`sym4`] prefetches its four row streams: 2 KiB. Chosen by a
-/// sweep over 64–384 at n = 4096 and 8192 (scripts/bench.sh, physical read bandwidth).
+/// sweep over 64–512 at n = 4096 and 8192 (bytes read per second against a sequential sum).
 #[cfg(target_arch = "x86_64")]
 const PREFETCH_AHEAD: usize = 256;
-
-/// Asks for the first `lines` cache lines of `a` ahead of use (a hint: no effect on results,
-/// nothing on targets without a prefetch instruction). A symmetric product calls it for the
-/// rows of its next block, whose streams start where no hardware prefetcher has looked.
-#[inline]
-pub fn prefetch(a: &[f64], lines: usize) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        use std::arch::x86_64::{_MM_HINT_T0, _mm_prefetch};
-        let p = a.as_ptr();
-        for l in 0..lines.min(a.len().div_ceil(8)) {
-            // SAFETY: prefetch is a hint that never faults; the address stays inside `a`
-            // (l < ⌈len/8⌉, so 8·l < len).
-            unsafe { _mm_prefetch::<_MM_HINT_T0>(p.add(8 * l) as *const i8) };
-        }
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    let _ = (a, lines);
-}
 
 #[cfg(target_arch = "x86_64")]
 #[inline(always)]
@@ -382,14 +379,16 @@ pub fn dot_axpy(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
 }
 
 /// Four rows of a symmetric matrix–vector product in one pass (see `sym4_plain` for the
-/// fixed order of every sum).
+/// fixed order of every sum). `next` are the rows the caller will pass next (empty at the
+/// end); they are only prefetched, so they never change the result.
 #[inline]
-pub fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4] {
+pub fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4], next: [&[f64]; 4]) -> [f64; 4] {
     #[cfg(target_arch = "x86_64")]
     if has_avx2() {
         // SAFETY: as in `dot`.
-        return unsafe { avx2::sym4(a, x, y, c) };
+        return unsafe { avx2::sym4(a, x, y, c, next) };
     }
+    let _ = next;
     sym4_plain(a, x, y, c)
 }
 
@@ -442,7 +441,7 @@ mod tests {
                 let m = n - 1;
                 let (mut y5, mut y6) = (b[..m].to_vec(), b[..m].to_vec());
                 let c = [0.5, -1.5, 2.0, 0.25];
-                let r1 = sym4(rows, &a[..m], &mut y5, c);
+                let r1 = sym4(rows, &a[..m], &mut y5, c, [&b[..m / 2]; 4]);
                 let r2 = sym4_plain(rows, &a[..m], &mut y6, c);
                 assert_eq!(r1.map(f64::to_bits), r2.map(f64::to_bits));
                 assert_eq!(y5, y6);

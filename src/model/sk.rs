@@ -137,14 +137,19 @@ impl Dense {
                 &self.row(i + 2)[i + 4..],
                 &self.row(i + 3)[i + 4..],
             ];
-            if i + 8 <= n {
-                for r in i + 4..i + 8 {
-                    crate::kernels::prefetch(&self.row(r)[i + 8..], 16);
-                }
-            }
             let c = [x[i], x[i + 1], x[i + 2], x[i + 3]];
             let (head, tail) = y.split_at_mut(i + 4);
-            let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c);
+            let next = if i + 8 <= n {
+                [
+                    &self.row(i + 4)[i + 8..],
+                    &self.row(i + 5)[i + 8..],
+                    &self.row(i + 6)[i + 8..],
+                    &self.row(i + 7)[i + 8..],
+                ]
+            } else {
+                [&[][..]; 4]
+            };
+            let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c, next);
             for r in 0..4 {
                 head[i + r] += s[r];
             }
