@@ -17,8 +17,9 @@
 //! - couplings: dense SK couplings generated per second (n = 4096, all threads).
 //!
 //! Instances are generated outside the timed region. `cargo run --release --example
-//! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings]`;
-//! scripts/bench.sh runs it next to the references.
+//! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings] [first=0]`;
+//! the dense part uses instances first .. first + reps − 1 (scripts/bench.sh, which runs it
+//! next to the references, gives each round its own instances, as it does the C programs).
 
 use kiln::algo::{anneal, descent};
 use kiln::linalg::top_eigen;
@@ -48,9 +49,10 @@ fn main() {
         .get(3)
         .cloned()
         .unwrap_or_else(|| "dense,sparse,matvec,eigen,couplings".into());
+    let first: usize = args.get(4).and_then(|s| s.parse().ok()).unwrap_or(0);
     let parts: Vec<&str> = parts.split(',').collect();
     if parts.contains(&"dense") {
-        dense(n, reps);
+        dense(n, reps, first);
     }
     if parts.contains(&"sparse") {
         sparse(reps.min(3));
@@ -166,11 +168,11 @@ fn couplings(reps: usize) {
     );
 }
 
-fn dense(n: usize, reps: usize) {
+fn dense(n: usize, reps: usize, first: usize) {
     let mut t_desc = Vec::new();
     let mut flips = Vec::new();
     let mut rate = Vec::new();
-    for r in 0..reps {
+    for r in first..first + reps {
         let d = sample(n, Couplings::Gaussian, &[r as u8 + 1; 32], 0.0);
         let p = descent::Params {
             order: descent::Order::Sequential,

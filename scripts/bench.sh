@@ -10,9 +10,11 @@
 # message if that is impossible). kiln's side is examples/bench_kernels.rs plus the kiln
 # binary itself (no-op rerun, 2 vs 1 core, peak memory).
 #
-# Each reference program and the kiln example run RUNS times (C: one seed per run; kiln:
-# RUNS repetitions inside one process); the table shows medians with min–max and the ratio
-# kiln time / reference time (< 1: kiln faster). Written to results/bench/bench-<UTC>.txt.
+# The C programs and kiln's loops run in RUNS alternating rounds (descent and dense
+# annealing: three new instances a side per round; sparse annealing: one run; bandwidth: the
+# stream sum and kiln's product back to back); BLAS and eigsh run RUNS repetitions in one
+# process. The table shows medians over rounds with min–max, and the ratio kiln time /
+# reference time (< 1: kiln faster). Written to results/bench/bench-<UTC>.txt.
 # Machines are shared and noisy: read the ratios, not the absolute figures.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -44,10 +46,11 @@ read_bw=$(echo "$c_stream" | get sum_median_GBs)
 # the (shared) machine hits both sides alike.
 c_d=""; c_a=""; c_s=""; k_d=""; k_a=""; k_s=""; bw_4096=""; bw_8192=""; bw_s=""
 for r in $(seq 1 "$runs"); do
-    c_d+=" $("$out/sk_greedy" 2048 1 "$r" | get t_total_med_ms)"
-    c_a+=" $("$out/sa_dense" 2048 500 0.1 5.0 1 "$r" | get attempts_per_s_med)"
+    # Three instances a side per round (descent takes only milliseconds); new ones each round.
+    c_d+=" $("$out/sk_greedy" 2048 3 $((3 * r)) | get t_total_med_ms)"
+    c_a+=" $("$out/sa_dense" 2048 500 0.1 5.0 3 $((3 * r)) | get attempts_per_s_med)"
     c_s+=" $("$out/sa_sparse" 1000000 200 0.1 3.0 "$r" | get ns_per_attempt)"
-    kd1=$(RAYON_NUM_THREADS=1 "$kb" 2048 1 dense)
+    kd1=$(RAYON_NUM_THREADS=1 "$kb" 2048 3 dense $((3 * r)))
     k_d+=" $(echo "$kd1" | grep kiln_descent | get t_total_med_ms)"
     k_a+=" $(echo "$kd1" | grep kiln_anneal | get attempts_per_s_med)"
     k_s+=" $(RAYON_NUM_THREADS=1 "$kb" 2048 1 sparse | get ns_per_attempt_med)"
