@@ -129,16 +129,16 @@ EOF
 # The same sweep shape with small instances (cache-resident: compute-bound).
 sed -e 's/1024/128/; s/"anneal"/"tempering"/; s/bench-cores/bench-cores-small/' \
     "$work/cores.toml" > "$work/cores-small.toml"
-# Fastest of 3 runs, each from an empty cache (the machine is shared: the minimum is the
+# Fastest of 5 runs, each from an empty cache (the machine is shared: the minimum is the
 # least disturbed measurement).
-t_cores() { local s e r; for r in 1 2 3; do s=$(date +%s.%N)
+t_cores() { local s e r; for r in 1 2 3 4 5; do s=$(date +%s.%N)
     "$kiln" run "$work/$1.toml" --cache "$work/c$1-$2-$r" --results "$work/rc$1-$2-$r" \
         --jobs "$2" --quiet
     e=$(date +%s.%N); calc "$e - $s"; echo; done | sort -g | head -1; }
 t1=$(t_cores cores 1); t2=$(t_cores cores 2)
 # The machine's own 2-vs-1 scaling at this moment, for comparison: the C annealer on 16
-# instances of the same size, in one process or split over two processes (fastest of 3).
-t_c() { local s e r; for r in 1 2 3; do s=$(date +%s.%N)
+# instances of the same size, in one process or split over two processes (fastest of 5).
+t_c() { local s e r; for r in 1 2 3 4 5; do s=$(date +%s.%N)
     if [ "$1" = 1 ]; then "$out/sa_dense" 1024 300 0.1 5.0 16 1 >/dev/null
     else "$out/sa_dense" 1024 300 0.1 5.0 8 1 >/dev/null & "$out/sa_dense" 1024 300 0.1 5.0 8 9 >/dev/null; wait; fi
     e=$(date +%s.%N); calc "$e - $s"; echo; done | sort -g | head -1; }
