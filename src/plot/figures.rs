@@ -397,8 +397,12 @@ where
         .x_label_area_size(pt(20.0) as u32)
         .y_label_area_size(pt(30.0) as u32)
         .build_cartesian_2d(
-            (xlo / 1.6..xhi * 1.6).log_scale(),
-            (ylo / 1.3..yhi * 4.0).log_scale(),
+            (xlo / 1.6..xhi * 1.6)
+                .log_scale()
+                .with_key_points(log_ticks(xlo / 1.6, xhi * 1.6)),
+            (ylo / 1.3..yhi * 4.0)
+                .log_scale()
+                .with_key_points(log_ticks(ylo / 1.3, yhi * 4.0)),
         )
         .map_err(err)?;
     house_mesh(
@@ -482,9 +486,42 @@ where
         .axis_style(BLACK.stroke_width(2))
 }
 
+/// Tick values for a log axis from `lo` to `hi`: the powers of ten inside, and also 2 and 5
+/// times them when the axis spans less than two decades, so that a short axis still shows
+/// several labelled values.
+fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    let mantissas: &[f64] = if hi / lo < 100.0 {
+        &[1.0, 2.0, 5.0]
+    } else {
+        &[1.0]
+    };
+    let mut out = Vec::new();
+    let mut e = lo.log10().floor() as i32;
+    while 10f64.powi(e) <= hi {
+        for &m in mantissas {
+            let v = m * 10f64.powi(e);
+            if v >= lo && v <= hi {
+                out.push(v);
+            }
+        }
+        e += 1;
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// An axis from 0.25 to 4 (the stability figures' distances span less than two decades)
+    /// gets 0.5, 1 and 2 as labelled ticks, not only 1; a longer one keeps the decades.
+    #[test]
+    fn log_ticks_label_short_axes() {
+        assert_eq!(log_ticks(0.25, 4.0), vec![0.5, 1.0, 2.0]);
+        assert_eq!(log_ticks(0.006, 0.33), vec![0.01, 0.02, 0.05, 0.1, 0.2]);
+        assert_eq!(log_ticks(0.0006, 0.17), vec![0.001, 0.01, 0.1]);
+        assert!(log_ticks(3.0, 4.0).is_empty());
+    }
 
     #[test]
     fn slopes() {
