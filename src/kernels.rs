@@ -1,5 +1,5 @@
 //! The dense inner loops every dense model and algorithm shares: dot products (f64·f64 and
-//! f64·±1) and the field update y += c·x.
+//! f64·±1), the field update y += c·x, and four rows of a symmetric product.
 //!
 //! Determinism: each reduction uses [`LANES`] partial sums in a fixed pattern (element k goes
 //! to partial sum k mod LANES; the partial sums are combined in a fixed tree, then the tail),
@@ -71,25 +71,6 @@ fn dot_signs_plain(a: &[f64], s: &[i8]) -> f64 {
         for k in 0..LANES {
             acc[k] += r[k] * q[k] as f64;
         }
-    }
-    combine(&acc) + tail
-}
-
-#[inline(always)]
-fn dot_axpy_plain(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
-    let n = a.len().min(x.len()).min(y.len());
-    let full = n / LANES * LANES;
-    let mut acc = [0.0f64; LANES];
-    for k0 in (0..full).step_by(LANES) {
-        for k in 0..LANES {
-            acc[k] += a[k0 + k] * x[k0 + k];
-            y[k0 + k] += c * a[k0 + k];
-        }
-    }
-    let mut tail = 0.0;
-    for k in full..n {
-        tail += a[k] * x[k];
-        y[k] += c * a[k];
     }
     combine(&acc) + tail
 }
@@ -201,36 +182,6 @@ mod avx2 {
         let mut tail = 0.0;
         for i in full..n {
             tail += a[i] * s[i] as f64;
-        }
-        combine(&acc) + tail
-    }
-
-    #[target_feature(enable = "avx2")]
-    pub(super) fn dot_axpy(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
-        let n = a.len().min(x.len()).min(y.len());
-        let full = n / LANES * LANES;
-        let (pa, px, py) = (a.as_ptr(), x.as_ptr(), y.as_mut_ptr());
-        let cv = _mm256_set1_pd(c);
-        let mut r = [_mm256_setzero_pd(); 4];
-        let mut k = 0;
-        while k < full {
-            for (j, rj) in r.iter_mut().enumerate() {
-                // SAFETY: k + 4j + 3 < full ≤ n, within all three slices.
-                unsafe {
-                    let o = k + 4 * j;
-                    let av = _mm256_loadu_pd(pa.add(o));
-                    *rj = _mm256_add_pd(*rj, _mm256_mul_pd(av, _mm256_loadu_pd(px.add(o))));
-                    let yv = _mm256_loadu_pd(py.add(o));
-                    _mm256_storeu_pd(py.add(o), _mm256_add_pd(yv, _mm256_mul_pd(cv, av)));
-                }
-            }
-            k += LANES;
-        }
-        let acc = lanes(&r);
-        let mut tail = 0.0;
-        for i in full..n {
-            tail += a[i] * x[i];
-            y[i] += c * a[i];
         }
         combine(&acc) + tail
     }
@@ -366,18 +317,6 @@ pub fn dot_signs(a: &[f64], s: &[i8]) -> f64 {
     dot_signs_plain(a, s)
 }
 
-/// Σ a_k x_k (the pattern of [`dot`]) and, in the same pass, y += c·a: one read of `a` for
-/// both halves of a symmetric matrix–vector product.
-#[inline]
-pub fn dot_axpy(a: &[f64], x: &[f64], y: &mut [f64], c: f64) -> f64 {
-    #[cfg(target_arch = "x86_64")]
-    if has_avx2() {
-        // SAFETY: as in `dot`.
-        return unsafe { avx2::dot_axpy(a, x, y, c) };
-    }
-    dot_axpy_plain(a, x, y, c)
-}
-
 /// Four rows of a symmetric matrix–vector product in one pass (see `sym4_plain` for the
 /// fixed order of every sum). `next` are the rows the caller will pass next (empty at the
 /// end); they are only prefetched, so they never change the result.
@@ -430,12 +369,6 @@ mod tests {
             axpy(&mut y1, -2.0, &a);
             axpy_plain(&mut y2, -2.0, &a);
             assert_eq!(y1, y2);
-            let mut y3 = b.clone();
-            let mut y4 = b.clone();
-            let d1 = dot_axpy(&a, &b, &mut y3, 0.7);
-            let d2 = dot_axpy_plain(&a, &b, &mut y4, 0.7);
-            assert_eq!((d1.to_bits(), &y3), (d2.to_bits(), &y4));
-            assert_eq!(d1.to_bits(), dot(&a, &b).to_bits());
             if n >= 4 {
                 let rows = [&a[..], &b[..], &a[1..], &b[1..]];
                 let m = n - 1;

@@ -124,13 +124,7 @@ impl Dense {
         y.iter_mut().for_each(|v| *v = 0.0);
         let mut i = 0;
         while i + 4 <= n {
-            for a in i..i + 4 {
-                for b in a + 1..i + 4 {
-                    let v = self.a[a * n + b];
-                    y[a] += v * x[b];
-                    y[b] += v * x[a];
-                }
-            }
+            self.add_block(i, i + 4, x, y);
             let rows = [
                 &self.row(i)[i + 4..],
                 &self.row(i + 1)[i + 4..],
@@ -155,9 +149,14 @@ impl Dense {
             }
             i += 4;
         }
-        for a in i..n {
-            for b in a + 1..n {
-                let v = self.a[a * n + b];
+        self.add_block(i, n, x, y);
+    }
+
+    /// The pairs lo ≤ a < b < hi of a symmetric product, in a fixed scalar order.
+    fn add_block(&self, lo: usize, hi: usize, x: &[f64], y: &mut [f64]) {
+        for a in lo..hi {
+            for b in a + 1..hi {
+                let v = self.a[a * self.n + b];
                 y[a] += v * x[b];
                 y[b] += v * x[a];
             }
