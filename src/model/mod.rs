@@ -121,12 +121,12 @@ impl Family {
     pub fn is_cube(self) -> bool {
         self != Family::Sphere
     }
-    /// Whether the family is a sparse graph (couplings may be `cut`).
     /// Families stored densely (matrix and tensors): sk, cube, sphere.
     pub fn is_dense(self) -> bool {
         matches!(self, Family::Sk | Family::Cube | Family::Sphere)
     }
 
+    /// Whether the family is a sparse graph (couplings may be `cut`).
     pub fn is_sparse(self) -> bool {
         matches!(self, Family::ErdosRenyi | Family::Regular | Family::Lattice)
     }

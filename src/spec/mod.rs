@@ -823,7 +823,6 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
     Ok(out)
 }
 
-/// `beta = [start, end]`: finite, start ≥ 0, increasing.
 /// A single inverse temperature (amp).
 fn beta_one(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<f64, SpecError> {
     match b.get_ref() {
@@ -858,6 +857,7 @@ fn nonnegative(v: &Spanned<f64>, loc: &Locator, key: &str, max: f64) -> Result<f
     }
 }
 
+/// `beta = [start, end]`: finite, start ≥ 0, increasing.
 fn beta_range(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<[f64; 2], SpecError> {
     let v = match b.get_ref() {
         Beta::Range(v) => v,
