@@ -20,8 +20,11 @@
 //! without the field; the pre-rounding point is m (scaled to norm √n), `relaxation` is H(m)/n.
 
 use super::{AlgoError, Info, Output};
+use super::{Algorithm, Key, Kind};
 use crate::cell::Canon;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 use crate::theory::Mixture;
 use crate::theory::quad::gauss_hermite;
 
@@ -55,15 +58,6 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
-        c.with("beta", self.beta)
-            .with("field", self.field)
-            .with("tol", self.tol)
-            .with("max_iterations", self.max_iterations)
-    }
-}
-
 /// The replica-symmetric fixed point q = E tanh²(h + β sqrt(ξ'(q)) Z), from q = 1 down
 /// (Gauss–Hermite, 64 nodes).
 pub fn rs_overlap_field(xi: &Mixture, beta: f64, h: f64) -> f64 {
@@ -81,6 +75,99 @@ pub fn rs_overlap_field(xi: &Mixture, beta: f64, h: f64) -> f64 {
         q = next;
     }
     q
+}
+
+/// The registry entry of `amp`.
+pub const KIND: Kind = Kind {
+    name: "amp",
+    summary: "Approximate message passing at inverse temperature β (Bolthausen 2014; Onsager term with ξ''). kiln's models have no field, so AMP applies h = `field` in a random direction (gauge symmetry: Bolthausen's field-h setting); the output is sign(m). sk and cube.",
+    keys: &[
+        Key {
+            name: "beta",
+            ty: "number in (0, 100]",
+            default: "1.5",
+            doc: "inverse temperature β",
+        },
+        Key {
+            name: "field",
+            ty: "number in [0, 20]",
+            default: "0.8",
+            doc: "strength h of the algorithmic field",
+        },
+        Key {
+            name: "tol",
+            ty: "number in (0, 1)",
+            default: "1e-10",
+            doc: "stop when ‖m^{k+1} − m^k‖²/n falls below this",
+        },
+        Key {
+            name: "max_iterations",
+            ty: "integer ≥ 1",
+            default: "200",
+            doc: "budget of iterations",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(b) = s.beta_one("beta")? {
+        p.beta = b;
+    }
+    if let Some(h) = s.nonnegative("field", 20.0)? {
+        p.field = h;
+    }
+    if let Some(t) = s.tolerance("tol")? {
+        p.tol = t;
+    }
+    if let Some(m) = s.count("max_iterations", 1_000_000)? {
+        p.max_iterations = m;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c.with("beta", self.beta)
+            .with("field", self.field)
+            .with("tol", self.tol)
+            .with("max_iterations", self.max_iterations)
+    }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // iterates, fields, signs.
+        8 * n as u128 * 5
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        0.3 * self.max_iterations as f64 * n as f64 * flip
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        (!m.family.is_cube() || m.family.is_sparse()).then_some(
+            "AMP's Onsager term is that of a dense mean-field model on the cube (sk or cube)",
+        )
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
+        match inst {
+            Instance::Dense(d) => run(self, d.n(), &Mixture::sk(), |x, y| d.value_grad(x, y), rng),
+            Instance::Mixed(m) => run(self, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng),
+            _ => Err(super::not_for(
+                KIND.name,
+                "it runs on dense models on the cube (sk, cube)",
+            )),
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
 }
 
 /// Runs AMP with gradient `grad` (writes ∇H(x), returns H(x)) for the covariance `xi`.

@@ -6,10 +6,13 @@
 //! accepted flip. Afterwards the fields are recomputed from scratch (removing rounding drift)
 //! and, if `quench` is set, a sequential descent brings the state to a 1-flip-stable one.
 
+use super::{Algorithm, Key, Kind};
 use super::{Info, Output, descent, random_start};
 use crate::cell::Canon;
 use crate::model::Cube;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code. Bump when its numbers change.
 pub const REVISION: u32 = 1;
@@ -36,11 +39,74 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `anneal`.
+pub const KIND: Kind = Kind {
+    name: "anneal",
+    summary: "Metropolis simulated annealing with sequential sweeps and a schedule linear in β. Every ±1 family.",
+    keys: &[
+        Key {
+            name: "sweeps",
+            ty: "integer ≥ 1",
+            default: "200",
+            doc: "number of sweeps of n attempted flips",
+        },
+        Key {
+            name: "beta",
+            ty: "`[start, end]`, 0 ≤ start < end",
+            default: "`[0.1, 4.0]`",
+            doc: "inverse temperature at the first and the last sweep, linear in between",
+        },
+        Key {
+            name: "quench",
+            ty: "boolean",
+            default: "`true`",
+            doc: "finish with a zero-temperature sequential descent",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(x) = s.count("sweeps", 1_000_000_000)? {
+        p.sweeps = x;
+    }
+    if let Some(b) = s.beta_range("beta")? {
+        p.beta = b;
+    }
+    if let Some(q) = s.flag("quench")? {
+        p.quench = q;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c.with("sweeps", self.sweeps)
             .with("beta", vec![self.beta[0], self.beta[1]])
             .with("quench", self.quench)
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
+        n as u128 * (1 + 8 + 4 + 1)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        n as f64 * flip * (1.0 + 0.3 * self.sweeps as f64)
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        super::spins_only(m)
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

@@ -7,10 +7,13 @@
 //! spin, well below the ground state (Erba, Behrens, Krzakala & Zdeborová, J. Stat. Mech.
 //! (2024) 083302).
 
+use super::{Algorithm, Key, Kind};
 use super::{Info, Output, random_start};
 use crate::cell::Canon;
 use crate::model::Cube;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code. Bump when its numbers change.
 pub const REVISION: u32 = 1;
@@ -61,10 +64,64 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `descent`.
+pub const KIND: Kind = Kind {
+    name: "descent",
+    summary: "Single-flip descent from a uniformly random start to a 1-flip-stable state. Every ±1 family.",
+    keys: &[
+        Key {
+            name: "order",
+            ty: "`\"random\"`, `\"sequential\"` or `\"greedy\"`",
+            default: "`\"random\"`",
+            doc: "which improving spin flips next: a fresh random permutation per sweep, i = 0..n−1, or the largest gain",
+        },
+        Key {
+            name: "max_sweeps",
+            ty: "integer ≥ 1",
+            default: "100000",
+            doc: "budget in sweeps (greedy: flips / n); reaching it sets `converged = false`",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(i) = s.choice("order", "order", &Order::NAMES)? {
+        p.order = Order::parse(Order::NAMES[i]).unwrap_or(p.order);
+    }
+    if let Some(m) = s.count("max_sweeps", 1_000_000_000)? {
+        p.max_sweeps = m;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c.with("order", self.order.name())
             .with("max_sweeps", self.max_sweeps)
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
+        n as u128 * (1 + 8 + 4 + 1)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        n as f64 * flip
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        super::spins_only(m)
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

@@ -4,9 +4,13 @@
 //! visited. Ties keep the first maximiser in Gray-code order. Common practice; exact ground
 //! states anchor the small-n points of a scaling plot and test every other algorithm.
 
+use super::{Algorithm, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
 use crate::model::Cube;
+use crate::model::{Instance, ModelSpec};
+use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 pub const REVISION: u32 = 1;
@@ -17,9 +21,51 @@ pub const MAX_N: u64 = 30;
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Params {}
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `exhaustive`.
+pub const KIND: Kind = Kind {
+    name: "exhaustive",
+    summary: "Exact maximum by Gray-code enumeration (2^(n−1) states, up to the global flip). Every ±1 family, every n ≤ 30.",
+    keys: &[],
+    parse,
+};
+
+fn parse(_s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    Ok(super::AlgoSpec::new(Params {}))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
+        n as u128 * (1 + 8 + 4 + 1)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        flip * 2f64.powf(n as f64 - 1.0)
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        super::spins_only(m)
+    }
+    fn size_problem(&self, n: u64) -> Option<(String, String)> {
+        (n > MAX_N).then(|| {
+            (
+                format!("exhaustive search cannot enumerate n = {n}: 2^{} states", n - 1),
+                format!("exhaustive search needs every size ≤ {MAX_N}; run it in a spec of its own with small sizes"),
+            )
+        })
+    }
+    fn run(&self, inst: &Instance, _rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        super::on_cube!(inst, KIND.name, |d| run(self, d))
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

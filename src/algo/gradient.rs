@@ -7,10 +7,13 @@
 //!   x = 0.1·g (g Gaussian), until a step moves x by less than tol·√n; then σ = sign(x). The
 //!   pre-rounding point x (scaled to norm √n) is returned too.
 
+use super::{Algorithm, Key, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
 use crate::model::mixed::Mixed;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 pub const REVISION: u32 = 1;
@@ -36,11 +39,96 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `gradient`.
+pub const KIND: Kind = Kind {
+    name: "gradient",
+    summary: "Projected gradient ascent: on the sphere x ← √n (x + η∇H)/‖·‖; on ±1 families x ← clip(x + η∇H, −1, 1), then signs. Every family.",
+    keys: &[
+        Key {
+            name: "step",
+            ty: "number > 0",
+            default: "0.5",
+            doc: "step size η",
+        },
+        Key {
+            name: "tol",
+            ty: "number in (0, 1)",
+            default: "1e-6",
+            doc: "stop when the step is this small: sphere, tangential gradient/√n; cube, step length/√n",
+        },
+        Key {
+            name: "max_iterations",
+            ty: "integer ≥ 1",
+            default: "10000",
+            doc: "budget of iterations",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(t) = s.tolerance("tol")? {
+        p.tol = t;
+    }
+    if let Some(x) = s.number("step")? {
+        if !(x > 0.0 && x.is_finite()) {
+            return Err(s.fail(
+                "step",
+                format!("step {x} is not a positive number"),
+                "a step size η > 0, e.g. step = 0.5",
+            ));
+        }
+        p.step = x;
+    }
+    if let Some(m) = s.count("max_iterations", 1_000_000_000)? {
+        p.max_iterations = m;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c.with("step", self.step)
             .with("tol", self.tol)
             .with("max_iterations", self.max_iterations)
+    }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // point, gradient, spins.
+        n as u128 * (8 + 8 + 8 + 1)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        300.0 * n as f64 * flip
+    }
+    fn unsupported(&self, _m: &ModelSpec) -> Option<&'static str> {
+        None
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        Ok(match inst {
+            Instance::Sphere(m) => run(self, m, rng),
+            Instance::Dense(d) => run_cube(self, d.n(), |x, y| d.matvec(x, y), rng),
+            Instance::Sparse(g) => run_cube(self, g.n(), |x, y| g.matvec(x, y), rng),
+            Instance::Mixed(m) => run_cube(
+                self,
+                m.n(),
+                |x, y| {
+                    m.value_grad(x, y);
+                },
+                rng,
+            ),
+        })
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

@@ -8,10 +8,13 @@
 //! tensor, then O(n²) per product).
 
 use super::{AlgoError, Info, Output};
+use super::{Algorithm, Key, Kind};
 use crate::cell::Canon;
 use crate::linalg::top_eigen;
 use crate::model::mixed::Mixed;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 pub const REVISION: u32 = 2;
@@ -40,11 +43,87 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `hessian`.
+pub const KIND: Kind = Kind {
+    name: "hessian",
+    summary: "Hessian ascent (Subag 2018): the radius grows in `steps` along the top eigenvector of the tangential Hessian. The sphere family.",
+    keys: &[
+        Key {
+            name: "steps",
+            ty: "integer ≥ 1",
+            default: "40",
+            doc: "number of radial steps K (δ = 1/K); keep K well below n",
+        },
+        Key {
+            name: "tol",
+            ty: "number in (0, 1)",
+            default: "1e-6",
+            doc: "Lanczos relative residual",
+        },
+        Key {
+            name: "polish",
+            ty: "boolean",
+            default: "`true`",
+            doc: "finish with projected gradient ascent on the sphere",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(x) = s.count("steps", 1_000_000)? {
+        p.steps = x;
+    }
+    if let Some(t) = s.tolerance("tol")? {
+        p.tol = t;
+    }
+    if let Some(b) = s.flag("polish")? {
+        p.polish = b;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c.with("steps", self.steps)
             .with("tol", self.tol)
             .with("polish", self.polish)
+    }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // the dense Hessian, the Lanczos basis (64) and a few vectors.
+        let n = n as u128;
+        8 * n * n + 8 * n * 72
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        let n = n as f64;
+        self.steps as f64 * (3.0 * n * flip + 60.0 * n * n)
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        m.family
+            .is_cube()
+            .then_some("Hessian ascent runs on the sphere family")
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
+        match inst {
+            Instance::Sphere(m) => run(self, m, rng),
+            _ => Err(super::not_for(
+                KIND.name,
+                "Hessian ascent runs on the sphere",
+            )),
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

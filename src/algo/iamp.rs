@@ -29,9 +29,12 @@
 //! q = 0, where pure p ≥ 3 models have no gradient to follow).
 
 use super::{AlgoError, Info, Output};
+use super::{Algorithm, Key, Kind};
 use crate::cell::Canon;
 use crate::model::sk::dot;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 use crate::theory::Mixture;
 use crate::theory::full::{self, Field, FullSettings};
 use std::collections::HashMap;
@@ -62,12 +65,6 @@ impl Default for Params {
 }
 
 impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
-        c.with("step", self.step)
-            .with("levels", self.levels)
-            .with("theory_revision", full::REVISION)
-    }
-
     /// Number of AMP steps K (t_K = 1 − δ).
     pub fn steps(&self) -> usize {
         ((1.0 / self.step).round() as usize).max(2)
@@ -143,6 +140,87 @@ impl Drive {
         let f = t - i as f64;
         let (a, b) = (&self.d1[k], &self.d2[k]);
         (a[i] + f * (a[i + 1] - a[i]), b[i] + f * (b[i + 1] - b[i]))
+    }
+}
+
+/// The registry entry of `iamp`.
+pub const KIND: Kind = Kind {
+    name: "iamp",
+    summary: "Incremental AMP (Montanari 2019; tensor form of El Alaoui, Montanari & Sellke 2020), driven by kiln's own full-RSB solution for the spec's ξ; about 1/step gradient evaluations; the output is the signs of the last iterate. sk, or cube with a p = 2 term.",
+    keys: &[
+        Key {
+            name: "step",
+            ty: "number in (0, 0.25]",
+            default: "0.01",
+            doc: "time step δ (about 1/δ matrix–vector products)",
+        },
+        Key {
+            name: "levels",
+            ty: "integer ≥ 2",
+            default: "16",
+            doc: "intervals of the full-RSB order parameter the field is computed from",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(v) = s.number("step")? {
+        if !(v > 0.0 && v <= 0.25) {
+            return Err(s.fail(
+                "step",
+                format!("step = {v} is not a time step in (0, 0.25]"),
+                "the run takes about 1/step matrix–vector products; e.g. step = 0.02",
+            ));
+        }
+        p.step = v;
+    }
+    if let Some(l) = s.count("levels", 64)? {
+        p.levels = l.max(2);
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c.with("step", self.step)
+            .with("levels", self.levels)
+            .with("theory_revision", full::REVISION)
+    }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // the iterates m⁰…m^K it keeps for the Onsager sum, plus x, z, z_old, f.
+        8 * n as u128 * (self.steps() as u128 + 5)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        self.steps() as f64 * n as f64 * flip
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        (!m.family.is_cube() || m.family.is_sparse() || m.xi.d2(0.0) <= 0.0).then_some(
+            "incremental AMP needs a dense cube model with a p = 2 term (sk, or cube with xi = { 2 = …, … })",
+        )
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
+        match inst {
+            Instance::Dense(d) => run(self, d.n(), &Mixture::sk(), |x, y| d.value_grad(x, y), rng),
+            Instance::Mixed(m) => run(self, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng),
+            _ => Err(super::not_for(
+                KIND.name,
+                "it runs on dense models on the cube (sk, cube)",
+            )),
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

@@ -9,9 +9,12 @@
 //! ⌈sqrt(2n)⌉. The relaxation value per spin is reported (`relaxation`); on SK it approaches
 //! λ_max/2 → 1 (Montanari & Sen, arXiv:1504.05910) and never exceeds λ_max/2.
 
+use super::{Algorithm, Key, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 /// 2: sweeps track their gain instead of recomputing the objective (the stopping sweep can
@@ -43,13 +46,6 @@ impl Default for Params {
 }
 
 impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
-        c.with("rank", self.rank)
-            .with("tol", self.tol)
-            .with("max_sweeps", self.max_sweeps)
-            .with("roundings", self.roundings)
-    }
-
     /// The rank used at size n.
     pub fn rank_for(&self, n: usize) -> usize {
         if self.rank > 0 {
@@ -97,6 +93,103 @@ impl Rows for crate::model::sparse::Graph {
     }
     fn energy(&self, s: &[i8]) -> f64 {
         crate::model::sparse::Graph::energy(self, s)
+    }
+}
+
+/// The registry entry of `lowrank`.
+pub const KIND: Kind = Kind {
+    name: "lowrank",
+    summary: "Rank-k Burer–Monteiro relaxation of the cube by block coordinate ascent, then the best of several random-hyperplane roundings. p = 2 cube models and graphs; the table's `relaxation` column holds the relaxation's value per spin.",
+    keys: &[
+        Key {
+            name: "rank",
+            ty: "integer ≥ 1",
+            default: "⌈√(2n)⌉",
+            doc: "rank k of the factorisation",
+        },
+        Key {
+            name: "tol",
+            ty: "number in (0, 1)",
+            default: "1e-7",
+            doc: "stop when a sweep raises the objective by less than tol·|objective|",
+        },
+        Key {
+            name: "max_sweeps",
+            ty: "integer ≥ 1",
+            default: "500",
+            doc: "budget of sweeps",
+        },
+        Key {
+            name: "roundings",
+            ty: "integer ≥ 1",
+            default: "16",
+            doc: "random hyperplanes tried; the best rounding is kept",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(r) = s.count("rank", 100_000)? {
+        p.rank = r;
+    }
+    if let Some(t) = s.tolerance("tol")? {
+        p.tol = t;
+    }
+    if let Some(m) = s.count("max_sweeps", 1_000_000_000)? {
+        p.max_sweeps = m;
+    }
+    if let Some(r) = s.count("roundings", 1_000_000)? {
+        p.roundings = r;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c.with("rank", self.rank)
+            .with("tol", self.tol)
+            .with("max_sweeps", self.max_sweeps)
+            .with("roundings", self.roundings)
+    }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // the n×k factor (k ≤ sqrt(2n) + 1 by default) and the point.
+        let k = self.rank_for(n as usize) as u128;
+        let n = n as u128;
+        8 * n * (k + 2) + n
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        n as f64 * flip * self.rank_for(n as usize) as f64 * 50.0
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        let quadratic = m.xi.terms.iter().all(|&(p, _)| p == 2);
+        (!m.family.is_cube() || (!quadratic && !m.family.is_sparse())).then_some(
+            "it relaxes a quadratic H on the cube (sk, a graph, or cube with xi = { 2 = … })",
+        )
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        match inst {
+            Instance::Dense(d) => Ok(super::with_relaxation(run(self, d, rng))),
+            Instance::Sparse(g) => Ok(super::with_relaxation(run(self, g, rng))),
+            Instance::Mixed(m) => match (m.dense(), m.is_quadratic()) {
+                (Some(d), true) => Ok(super::with_relaxation(run(self, d, rng))),
+                _ => Err(super::not_for(KIND.name, "H is not quadratic")),
+            },
+            Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

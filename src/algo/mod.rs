@@ -14,9 +14,12 @@ pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
 
+use std::collections::BTreeMap;
+
 use crate::cell::Canon;
-use crate::model::Instance;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// What an algorithm reports about its own run.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -55,74 +58,150 @@ pub enum AlgoError {
     Numerical { message: String },
 }
 
-/// A fully resolved algorithm with its settings (defaults filled in).
-#[derive(Clone, Debug, PartialEq)]
-pub enum AlgoSpec {
-    Descent(descent::Params),
-    Anneal(anneal::Params),
-    Exhaustive(exhaustive::Params),
-    Spectral(spectral::Params),
-    Gradient(gradient::Params),
-    Tempering(tempering::Params),
-    Lowrank(lowrank::Params),
-    Hessian(hessian::Params),
-    Amp(amp::Params),
-    Iamp(iamp::Params),
+// ---------------------------------------------------------------- the registry
+
+/// What every algorithm kind implements: its identity, its settings' canonical form, its costs,
+/// what it supports and how it runs. An implementation is the kind's resolved settings (its
+/// `Params`), so a value of it is one fully specified algorithm.
+///
+/// Every method but `run` is cheap and pure; `run` dispatches on the instance once and then
+/// calls a monomorphic kernel (never a trait object inside a loop over spins).
+pub trait Algorithm: std::fmt::Debug + Send + Sync + 'static {
+    /// The kind's name, as written in `kind = "…"`.
+    fn kind(&self) -> &'static str;
+    /// Revision of the kind's code. Enters every cache key; bump it when a seed's numbers change.
+    fn revision(&self) -> u32;
+    /// Appends every setting (defaults included) to the canonical map.
+    fn canon(&self, c: Canon) -> Canon;
+    /// Whether the output carries a pre-rounding continuous point.
+    fn has_point(&self) -> bool {
+        false
+    }
+    /// Work-space bytes beyond the instance for size n.
+    fn work_bytes(&self, n: u64) -> u128;
+    /// Relative cost of one run at size n when one spin flip (or one coordinate of a
+    /// matrix–vector product) touches `flip` entries, for ordering work and sharding.
+    fn cost(&self, n: u64, flip: f64) -> f64;
+    /// Why this algorithm cannot run on the model, if it cannot (checked by the spec).
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str>;
+    /// Why size n is out of reach for this algorithm whatever the memory, as (message, hint).
+    fn size_problem(&self, _n: u64) -> Option<(String, String)> {
+        None
+    }
+    /// Runs on one instance with the cell's algorithm stream.
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError>;
+    /// The settings as `Any`, so a caller that knows the kind can read its `Params`.
+    fn as_any(&self) -> &dyn std::any::Any;
+}
+
+/// One accepted key of a kind: its name, its type and default as the reference shows them,
+/// and one line of documentation.
+#[derive(Clone, Copy, Debug)]
+pub struct Key {
+    pub name: &'static str,
+    pub ty: &'static str,
+    pub default: &'static str,
+    pub doc: &'static str,
+}
+
+/// A kind's entry in the registry: its name, a one-line summary, its keys, and the parser that
+/// turns an `[[algorithm]]` table (already checked to hold only these keys) into settings.
+#[derive(Clone, Copy)]
+pub struct Kind {
+    pub name: &'static str,
+    pub summary: &'static str,
+    pub keys: &'static [Key],
+    pub parse: fn(&Settings<'_>) -> Result<AlgoSpec, SpecError>,
+}
+
+/// The one list of the kinds kiln ships. A new kind is one file under `algo/` and one line here.
+const BUILTIN: &[Kind] = &[
+    descent::KIND,
+    anneal::KIND,
+    exhaustive::KIND,
+    spectral::KIND,
+    gradient::KIND,
+    tempering::KIND,
+    lowrank::KIND,
+    hessian::KIND,
+    amp::KIND,
+    iamp::KIND,
+];
+
+/// Kinds registered at run time by a program that links kiln as a library (tests, extensions).
+static REGISTERED: std::sync::RwLock<Vec<Kind>> = std::sync::RwLock::new(Vec::new());
+
+/// Adds a kind to the registry for this process. Refused when its name is taken.
+pub fn register(kind: Kind) -> Result<(), String> {
+    let mut extra = REGISTERED.write().unwrap_or_else(|e| e.into_inner());
+    if BUILTIN
+        .iter()
+        .chain(extra.iter())
+        .any(|k| k.name == kind.name)
+    {
+        return Err(format!(
+            "an algorithm kind `{}` is already registered",
+            kind.name
+        ));
+    }
+    extra.push(kind);
+    Ok(())
+}
+
+/// The kinds kiln ships, in list order.
+pub fn builtin() -> &'static [Kind] {
+    BUILTIN
+}
+
+/// Every kind: the built-in list, then those registered at run time, in registration order.
+pub fn kinds() -> Vec<Kind> {
+    let extra = REGISTERED.read().unwrap_or_else(|e| e.into_inner());
+    BUILTIN.iter().chain(extra.iter()).copied().collect()
+}
+
+/// The kind named `name`, if any.
+pub fn find(name: &str) -> Option<Kind> {
+    kinds().into_iter().find(|k| k.name == name)
+}
+
+/// The kinds' names, in list order.
+pub fn kind_names() -> Vec<&'static str> {
+    kinds().iter().map(|k| k.name).collect()
+}
+
+/// A fully resolved algorithm with its settings (defaults filled in). Cheap to clone; equal
+/// when the canonical settings are equal.
+#[derive(Clone, Debug)]
+pub struct AlgoSpec(std::sync::Arc<dyn Algorithm>);
+
+impl PartialEq for AlgoSpec {
+    fn eq(&self, other: &Self) -> bool {
+        self.settings() == other.settings()
+    }
 }
 
 impl AlgoSpec {
-    pub const KINDS: [&'static str; 10] = [
-        "descent",
-        "anneal",
-        "exhaustive",
-        "spectral",
-        "gradient",
-        "tempering",
-        "lowrank",
-        "hessian",
-        "amp",
-        "iamp",
-    ];
+    /// Wraps a kind's settings.
+    pub fn new(a: impl Algorithm) -> AlgoSpec {
+        AlgoSpec(std::sync::Arc::new(a))
+    }
+
+    /// The kind's settings, when it is of type `A`.
+    pub fn params<A: Algorithm>(&self) -> Option<&A> {
+        self.0.as_any().downcast_ref()
+    }
 
     pub fn kind(&self) -> &'static str {
-        match self {
-            AlgoSpec::Descent(_) => "descent",
-            AlgoSpec::Anneal(_) => "anneal",
-            AlgoSpec::Exhaustive(_) => "exhaustive",
-            AlgoSpec::Spectral(_) => "spectral",
-            AlgoSpec::Gradient(_) => "gradient",
-            AlgoSpec::Tempering(_) => "tempering",
-            AlgoSpec::Lowrank(_) => "lowrank",
-            AlgoSpec::Hessian(_) => "hessian",
-            AlgoSpec::Amp(_) => "amp",
-            AlgoSpec::Iamp(_) => "iamp",
-        }
+        self.0.kind()
     }
 
     pub fn revision(&self) -> u32 {
-        match self {
-            AlgoSpec::Descent(_) => descent::REVISION,
-            AlgoSpec::Anneal(_) => anneal::REVISION,
-            AlgoSpec::Exhaustive(_) => exhaustive::REVISION,
-            AlgoSpec::Spectral(_) => spectral::REVISION,
-            AlgoSpec::Gradient(_) => gradient::REVISION,
-            AlgoSpec::Tempering(_) => tempering::REVISION,
-            AlgoSpec::Lowrank(_) => lowrank::REVISION,
-            AlgoSpec::Hessian(_) => hessian::REVISION,
-            AlgoSpec::Amp(_) => amp::REVISION,
-            AlgoSpec::Iamp(_) => iamp::REVISION,
-        }
+        self.0.revision()
     }
 
     /// Whether the output carries a pre-rounding continuous point.
     pub fn has_point(&self) -> bool {
-        !matches!(
-            self,
-            AlgoSpec::Descent(_)
-                | AlgoSpec::Anneal(_)
-                | AlgoSpec::Exhaustive(_)
-                | AlgoSpec::Tempering(_)
-        )
+        self.0.has_point()
     }
 
     /// Canonical identity (kind, revision and every setting, defaults included).
@@ -130,18 +209,7 @@ impl AlgoSpec {
         let c = Canon::map()
             .with("kind", self.kind())
             .with("revision", self.revision());
-        match self {
-            AlgoSpec::Descent(p) => p.canon(c),
-            AlgoSpec::Anneal(p) => p.canon(c),
-            AlgoSpec::Exhaustive(p) => p.canon(c),
-            AlgoSpec::Spectral(p) => p.canon(c),
-            AlgoSpec::Gradient(p) => p.canon(c),
-            AlgoSpec::Tempering(p) => p.canon(c),
-            AlgoSpec::Lowrank(p) => p.canon(c),
-            AlgoSpec::Hessian(p) => p.canon(c),
-            AlgoSpec::Amp(p) => p.canon(c),
-            AlgoSpec::Iamp(p) => p.canon(c),
-        }
+        self.0.canon(c)
     }
 
     /// The settings as one canonical string (the `settings` column).
@@ -151,181 +219,128 @@ impl AlgoSpec {
 
     /// Work-space bytes beyond the instance for size n.
     pub fn work_bytes(&self, n: u64) -> u128 {
-        let n = n as u128;
-        match self {
-            // Lanczos basis (basis + 2 vectors of f64) and the point.
-            AlgoSpec::Spectral(p) => 8 * n * (p.basis.max(2) as u128 + 4),
-            // point, gradient, spins.
-            AlgoSpec::Gradient(_) => n * (8 + 8 + 8 + 1),
-            // spins and fields per replica, plus the best state.
-            AlgoSpec::Tempering(p) => n * (9 * p.replicas.max(2) as u128 + 10),
-            // the n×k factor (k ≤ sqrt(2n) + 1 by default) and the point.
-            AlgoSpec::Lowrank(p) => {
-                let k = p.rank_for(n as usize) as u128;
-                8 * n * (k + 2) + n
-            }
-            // iterates, fields, signs.
-            AlgoSpec::Amp(_) => 8 * n * 5,
-            // the iterates m⁰…m^K it keeps for the Onsager sum, plus x, z, z_old, f.
-            AlgoSpec::Iamp(p) => 8 * n * (p.steps() as u128 + 5),
-            // the dense Hessian, the Lanczos basis (64) and a few vectors.
-            AlgoSpec::Hessian(_) => 8 * n * n + 8 * n * 72,
-            // spins (i8), fields (f64), an order permutation (u32), a copy of the reference.
-            _ => n * (1 + 8 + 4 + 1),
-        }
+        self.0.work_bytes(n)
     }
 
-    /// Relative cost of one run at size n when one spin flip (or one coordinate of a
-    /// matrix–vector product) touches `flip` entries, for ordering work and sharding.
+    /// Relative cost of one run at size n (see [`Algorithm::cost`]).
     pub fn cost(&self, n: u64, flip: f64) -> f64 {
-        let n = n as f64;
-        match self {
-            AlgoSpec::Descent(_) => n * flip,
-            AlgoSpec::Anneal(p) => n * flip * (1.0 + 0.3 * p.sweeps as f64),
-            AlgoSpec::Exhaustive(_) => flip * 2f64.powf(n - 1.0),
-            AlgoSpec::Spectral(_) => 200.0 * n * flip,
-            AlgoSpec::Gradient(_) => 300.0 * n * flip,
-            AlgoSpec::Tempering(p) => n * flip * 0.3 * (p.sweeps * p.replicas) as f64,
-            AlgoSpec::Lowrank(p) => n * flip * p.rank_for(n as usize) as f64 * 50.0,
-            AlgoSpec::Hessian(p) => p.steps as f64 * (3.0 * n * flip + 60.0 * n * n),
-            AlgoSpec::Amp(p) => 0.3 * p.max_iterations as f64 * n * flip,
-            AlgoSpec::Iamp(p) => p.steps() as f64 * n * flip,
-        }
+        self.0.cost(n, flip)
     }
 
-    /// Why this algorithm cannot run on the model, if it cannot (checked by the spec).
-    pub fn unsupported(&self, m: &crate::model::ModelSpec) -> Option<&'static str> {
-        let quadratic = m.xi.terms.iter().all(|&(p, _)| p == 2);
-        match self {
-            AlgoSpec::Descent(_)
-            | AlgoSpec::Anneal(_)
-            | AlgoSpec::Exhaustive(_)
-            | AlgoSpec::Tempering(_) => (!m.family.is_cube())
-                .then_some("it moves ±1 spins; the sphere family has real coordinates"),
-            AlgoSpec::Lowrank(_) => (!m.family.is_cube() || (!quadratic && !m.family.is_sparse()))
-                .then_some("it relaxes a quadratic H on the cube (sk, a graph, or cube with xi = { 2 = … })"),
-            AlgoSpec::Spectral(_) => (!quadratic && !m.family.is_sparse()).then_some(
-                "it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })",
-            ),
-            AlgoSpec::Gradient(_) => None,
-            AlgoSpec::Hessian(_) => {
-                (m.family.is_cube()).then_some("Hessian ascent runs on the sphere family")
-            }
-            AlgoSpec::Amp(_) => (!m.family.is_cube() || m.family.is_sparse())
-                .then_some("AMP's Onsager term is that of a dense mean-field model on the cube (sk or cube)"),
-            AlgoSpec::Iamp(_) => (!m.family.is_cube()
-                || m.family.is_sparse()
-                || m.xi.d2(0.0) <= 0.0)
-                .then_some("incremental AMP needs a dense cube model with a p = 2 term (sk, or cube with xi = { 2 = …, … })"),
-        }
+    /// Why this algorithm cannot run on the model, if it cannot.
+    pub fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        self.0.unsupported(m)
+    }
+
+    /// Why size n is out of reach for this algorithm, as (message, hint).
+    pub fn size_problem(&self, n: u64) -> Option<(String, String)> {
+        self.0.size_problem(n)
     }
 
     pub fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
-        let kind = self.kind();
-        match (self, inst) {
-            (AlgoSpec::Descent(p), Instance::Dense(d)) => Ok(descent::run(p, d, rng)),
-            (AlgoSpec::Descent(p), Instance::Mixed(d)) => Ok(descent::run(p, d, rng)),
-            (AlgoSpec::Descent(p), Instance::Sparse(d)) => Ok(descent::run(p, d, rng)),
-            (AlgoSpec::Anneal(p), Instance::Dense(d)) => Ok(anneal::run(p, d, rng)),
-            (AlgoSpec::Anneal(p), Instance::Mixed(d)) => Ok(anneal::run(p, d, rng)),
-            (AlgoSpec::Anneal(p), Instance::Sparse(d)) => Ok(anneal::run(p, d, rng)),
-            (AlgoSpec::Tempering(p), Instance::Dense(d)) => Ok(tempering::run(p, d, rng)),
-            (AlgoSpec::Tempering(p), Instance::Mixed(d)) => Ok(tempering::run(p, d, rng)),
-            (AlgoSpec::Tempering(p), Instance::Sparse(d)) => Ok(tempering::run(p, d, rng)),
-            (AlgoSpec::Exhaustive(p), Instance::Dense(d)) => Ok(exhaustive::run(p, d)),
-            (AlgoSpec::Exhaustive(p), Instance::Mixed(d)) => Ok(exhaustive::run(p, d)),
-            (AlgoSpec::Exhaustive(p), Instance::Sparse(d)) => Ok(exhaustive::run(p, d)),
-            (AlgoSpec::Spectral(p), Instance::Dense(d)) => {
-                Ok(spectral::run(p, d.n(), |x, y| d.matvec(x, y), rng)?.0)
-            }
-            (AlgoSpec::Spectral(p), Instance::Sparse(g)) => {
-                Ok(spectral::run(p, g.n(), |x, y| g.matvec(x, y), rng)?.0)
-            }
-            (AlgoSpec::Spectral(p), Instance::Mixed(m) | Instance::Sphere(m)) => {
-                match (m.dense(), m.is_quadratic()) {
-                    (Some(d), true) => Ok(spectral::run(p, d.n(), |x, y| d.matvec(x, y), rng)?.0),
-                    _ => Err(AlgoError::Unsupported {
-                        kind,
-                        why: "H is not quadratic",
-                    }),
-                }
-            }
-            (AlgoSpec::Gradient(p), Instance::Sphere(m)) => Ok(gradient::run(p, m, rng)),
-            (AlgoSpec::Gradient(p), Instance::Dense(d)) => {
-                Ok(gradient::run_cube(p, d.n(), |x, y| d.matvec(x, y), rng))
-            }
-            (AlgoSpec::Gradient(p), Instance::Sparse(g)) => {
-                Ok(gradient::run_cube(p, g.n(), |x, y| g.matvec(x, y), rng))
-            }
-            (AlgoSpec::Gradient(p), Instance::Mixed(m)) => Ok(gradient::run_cube(
-                p,
-                m.n(),
-                |x, y| {
-                    m.value_grad(x, y);
-                },
-                rng,
-            )),
-            (AlgoSpec::Lowrank(p), Instance::Dense(d)) => {
-                Ok(with_relaxation(lowrank::run(p, d, rng)))
-            }
-            (AlgoSpec::Lowrank(p), Instance::Sparse(g)) => {
-                Ok(with_relaxation(lowrank::run(p, g, rng)))
-            }
-            (AlgoSpec::Lowrank(p), Instance::Mixed(m)) => match (m.dense(), m.is_quadratic()) {
-                (Some(d), true) => Ok(with_relaxation(lowrank::run(p, d, rng))),
-                _ => Err(AlgoError::Unsupported {
-                    kind,
-                    why: "H is not quadratic",
-                }),
-            },
-            (AlgoSpec::Hessian(p), Instance::Sphere(m)) => hessian::run(p, m, rng),
-            (AlgoSpec::Amp(p), Instance::Dense(d)) => amp::run(
-                p,
-                d.n(),
-                &crate::theory::Mixture::sk(),
-                |x, y| d.value_grad(x, y),
-                rng,
-            ),
-            (AlgoSpec::Amp(p), Instance::Mixed(m)) => {
-                amp::run(p, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng)
-            }
-            (AlgoSpec::Iamp(p), Instance::Dense(d)) => iamp::run(
-                p,
-                d.n(),
-                &crate::theory::Mixture::sk(),
-                |x, y| d.value_grad(x, y),
-                rng,
-            ),
-            (AlgoSpec::Iamp(p), Instance::Mixed(m)) => {
-                iamp::run(p, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng)
-            }
-            (AlgoSpec::Amp(_) | AlgoSpec::Iamp(_), _) => Err(AlgoError::Unsupported {
-                kind,
-                why: "it runs on dense models on the cube (sk, cube)",
-            }),
-            (AlgoSpec::Hessian(_), _) => Err(AlgoError::Unsupported {
-                kind,
-                why: "Hessian ascent runs on the sphere",
-            }),
-            (AlgoSpec::Lowrank(_), Instance::Sphere(_)) => Err(AlgoError::Unsupported {
-                kind,
-                why: "the relaxation is of the cube",
-            }),
-            (
-                AlgoSpec::Descent(_)
-                | AlgoSpec::Anneal(_)
-                | AlgoSpec::Exhaustive(_)
-                | AlgoSpec::Tempering(_),
-                Instance::Sphere(_),
-            ) => Err(AlgoError::Unsupported {
-                kind,
-                why: "it moves ±1 spins; the sphere has real coordinates",
-            }),
-        }
+        self.0.run(inst, rng)
     }
 }
 
-fn with_relaxation((mut out, value): (Output, f64)) -> Output {
+/// A kind with every setting at its default.
+pub fn default_settings(k: &Kind) -> Result<AlgoSpec, SpecError> {
+    let empty = BTreeMap::new();
+    let loc = crate::spec::error::Locator {
+        origin: "defaults",
+        text: "",
+    };
+    (k.parse)(&Settings {
+        at: format!("algorithm `{}`", k.name),
+        loc: &loc,
+        values: &empty,
+    })
+}
+
+/// The kinds that can run on a model (with their defaults).
+pub fn kinds_for(m: &ModelSpec) -> Vec<&'static str> {
+    kinds()
+        .iter()
+        .filter(|k| default_settings(k).is_ok_and(|a| a.unsupported(m).is_none()))
+        .map(|k| k.name)
+        .collect()
+}
+
+/// The spec reference of the kinds, as Markdown: a heading per kind, its summary, and a table
+/// of its keys. The README's reference section is this text for [`builtin`] (a test keeps
+/// them equal).
+pub fn reference(kinds: &[Kind]) -> String {
+    let mut out = String::new();
+    for k in kinds {
+        out.push_str(&format!(
+            "#### `kind = \"{}\"`\n\n{}\n\n",
+            k.name, k.summary
+        ));
+        if k.keys.is_empty() {
+            out.push_str("No settings.\n\n");
+            continue;
+        }
+        out.push_str("| key | type | default | meaning |\n| --- | --- | --- | --- |\n");
+        for key in k.keys {
+            out.push_str(&format!(
+                "| `{}` | {} | {} | {} |\n",
+                key.name, key.ty, key.default, key.doc
+            ));
+        }
+        out.push('\n');
+    }
+    out
+}
+
+/// The refusal of the kinds that move ±1 spins, on the sphere.
+pub(crate) fn spins_only(m: &ModelSpec) -> Option<&'static str> {
+    (!m.family.is_cube()).then_some("it moves ±1 spins; the sphere family has real coordinates")
+}
+
+/// Runs a kernel generic over [`crate::model::Cube`] on whichever ±1 instance this is: one
+/// monomorphic call per variant, and the refusal on the sphere.
+macro_rules! on_cube {
+    ($inst:expr, $kind:expr, |$d:ident| $body:expr) => {
+        match $inst {
+            Instance::Dense($d) => Ok($body),
+            Instance::Mixed($d) => Ok($body),
+            Instance::Sparse($d) => Ok($body),
+            Instance::Sphere(_) => Err(super::not_for(
+                $kind,
+                "it moves ±1 spins; the sphere has real coordinates",
+            )),
+        }
+    };
+}
+pub(crate) use on_cube;
+
+/// The kinds as a terminal listing: each name with its summary, then one line per key with
+/// its default.
+pub fn listing(kinds: &[Kind]) -> String {
+    let mut out = String::new();
+    for k in kinds {
+        out.push_str(&format!("{}\n    {}\n", k.name, k.summary));
+        let width = k.keys.iter().map(|x| x.name.len()).max().unwrap_or(0);
+        for key in k.keys {
+            out.push_str(&format!(
+                "    · {:width$}  = {}  ({}) {}\n",
+                key.name,
+                key.default.replace('`', ""),
+                key.ty.replace('`', ""),
+                key.doc
+            ));
+        }
+        out.push('\n');
+    }
+    out
+}
+
+/// The error for running a kind on an instance it does not support (the spec refuses these
+/// before anything runs; this is the guard behind it).
+pub(crate) fn not_for(kind: &'static str, why: &'static str) -> AlgoError {
+    AlgoError::Unsupported { kind, why }
+}
+
+pub(crate) fn with_relaxation((mut out, value): (Output, f64)) -> Output {
     out.info.relaxation = Some(value);
     out
 }

@@ -9,9 +9,12 @@
 //! pre-rounding point √n·v is returned alongside the spins.
 
 use super::{AlgoError, Info, Output};
+use super::{Algorithm, Key, Kind};
 use crate::cell::Canon;
 use crate::linalg::top_eigen;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 /// 2: Lanczos sums with the shared 16-lane kernels (last-bit changes).
@@ -38,12 +41,90 @@ impl Default for Params {
     }
 }
 
-impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
+/// The registry entry of `spectral`.
+pub const KIND: Kind = Kind {
+    name: "spectral",
+    summary: "Top eigenvector of the coupling matrix (restarted Lanczos), then signs. p = 2 models and graphs; on the sphere with ξ = c q² it is the exact maximum.",
+    keys: &[
+        Key {
+            name: "tol",
+            ty: "number in (0, 1)",
+            default: "1e-10",
+            doc: "relative residual ‖Av − λv‖/max(1, |λ|) to stop at",
+        },
+        Key {
+            name: "basis",
+            ty: "integer ≥ 2",
+            default: "64",
+            doc: "Lanczos basis size before a restart",
+        },
+        Key {
+            name: "max_matvecs",
+            ty: "integer ≥ 1",
+            default: "20000",
+            doc: "budget of matrix–vector products",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(t) = s.tolerance("tol")? {
+        p.tol = t;
+    }
+    if let Some(b) = s.count("basis", 10_000)? {
+        p.basis = b.max(2);
+    }
+    if let Some(m) = s.count("max_matvecs", 1_000_000_000)? {
+        p.max_matvecs = m;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
         c.with("tol", self.tol)
             .with("basis", self.basis)
             .with("max_matvecs", self.max_matvecs)
     }
+    fn has_point(&self) -> bool {
+        true
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // Lanczos basis (basis + 2 vectors of f64) and the point.
+        8 * n as u128 * (self.basis.max(2) as u128 + 4)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        200.0 * n as f64 * flip
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        (!quadratic_only(m) && !m.family.is_sparse())
+            .then_some("it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })")
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
+        match inst {
+            Instance::Dense(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
+            Instance::Sparse(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
+            Instance::Mixed(m) | Instance::Sphere(m) => match (m.dense(), m.is_quadratic()) {
+                (Some(d), true) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
+                _ => Err(super::not_for(KIND.name, "H is not quadratic")),
+            },
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
+}
+
+fn quadratic_only(m: &ModelSpec) -> bool {
+    m.xi.terms.iter().all(|&(p, _)| p == 2)
 }
 
 /// Runs Lanczos on `op` and rounds. Returns (spins, point = √n v, λ_max, info).

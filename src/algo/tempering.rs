@@ -7,10 +7,13 @@
 //! strong baseline for ground states at moderate n. All draws come from the run's one stream,
 //! in a fixed order, so the result does not depend on threads.
 
+use super::{Algorithm, Key, Kind};
 use super::{Info, Output, descent, random_start};
 use crate::cell::Canon;
 use crate::model::Cube;
+use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
+use crate::spec::{Settings, SpecError};
 
 /// Revision of this algorithm's code.
 pub const REVISION: u32 = 1;
@@ -37,12 +40,6 @@ impl Default for Params {
 }
 
 impl Params {
-    pub(crate) fn canon(&self, c: Canon) -> Canon {
-        c.with("replicas", self.replicas)
-            .with("beta", vec![self.beta[0], self.beta[1]])
-            .with("sweeps", self.sweeps)
-    }
-
     /// The ladder of inverse temperatures, increasing.
     pub fn ladder(&self) -> Vec<f64> {
         let r = self.replicas.max(2) as usize;
@@ -50,6 +47,84 @@ impl Params {
         (0..r)
             .map(|k| self.beta[0] * ratio.powi(k as i32))
             .collect()
+    }
+}
+
+/// The registry entry of `tempering`.
+pub const KIND: Kind = Kind {
+    name: "tempering",
+    summary: "Parallel tempering (replica exchange) on a geometric β ladder; the best state seen is quenched and returned. Every ±1 family.",
+    keys: &[
+        Key {
+            name: "replicas",
+            ty: "integer ≥ 2",
+            default: "16",
+            doc: "number of temperatures on the ladder",
+        },
+        Key {
+            name: "beta",
+            ty: "`[smallest, largest]`, 0 < smallest < largest",
+            default: "`[0.2, 3.0]`",
+            doc: "ends of the geometric ladder of inverse temperatures",
+        },
+        Key {
+            name: "sweeps",
+            ty: "integer ≥ 1",
+            default: "1000",
+            doc: "sweeps per replica",
+        },
+    ],
+    parse,
+};
+
+fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
+    let mut p = Params::default();
+    if let Some(r) = s.count("replicas", 4096)? {
+        p.replicas = r.max(2);
+    }
+    if let Some(b) = s.beta_range("beta")? {
+        if b[0] <= 0.0 {
+            return Err(s.fail(
+                "beta",
+                "the ladder is geometric: the smallest β must be > 0",
+                "e.g. beta = [0.2, 3.0]",
+            ));
+        }
+        p.beta = b;
+    }
+    if let Some(x) = s.count("sweeps", 1_000_000_000)? {
+        p.sweeps = x;
+    }
+    Ok(super::AlgoSpec::new(p))
+}
+
+impl Algorithm for Params {
+    fn kind(&self) -> &'static str {
+        KIND.name
+    }
+    fn revision(&self) -> u32 {
+        REVISION
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c.with("replicas", self.replicas)
+            .with("beta", vec![self.beta[0], self.beta[1]])
+            .with("sweeps", self.sweeps)
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        // spins and fields per replica, plus the best state.
+        n as u128 * (9 * self.replicas.max(2) as u128 + 10)
+    }
+    fn cost(&self, n: u64, flip: f64) -> f64 {
+        n as f64 * flip * 0.3 * (self.sweeps * self.replicas) as f64
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        super::spins_only(m)
+    }
+    fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
     }
 }
 

@@ -7,6 +7,7 @@ mod cells;
 mod check;
 mod compare;
 mod fit;
+mod kinds;
 mod plot;
 mod run;
 mod slurm;
@@ -49,6 +50,8 @@ enum Command {
     Plot(plot::PlotArgs),
     /// Theory values for the model: Parisi functional (RS, k-step RSB), sphere, algorithmic.
     Theory(theory::TheoryArgs),
+    /// List the algorithm kinds with their settings and defaults (the spec reference).
+    Kinds(kinds::KindsArgs),
 }
 
 /// Where results and the cache live; shared by every command that touches them.
@@ -135,7 +138,17 @@ impl CommonArgs {
 
 /// Parses the command line, runs the command, prints errors, and returns the exit status.
 pub fn main() -> ExitCode {
-    let cli = match Cli::try_parse() {
+    main_from(std::env::args_os())
+}
+
+/// [`main`] with the arguments given (the first is the program name): lets a program that
+/// links kiln as a library, after registering its own kinds, run any command in-process.
+pub fn main_from<I, T>(args: I) -> ExitCode
+where
+    I: IntoIterator<Item = T>,
+    T: Into<std::ffi::OsString> + Clone,
+{
+    let cli = match Cli::try_parse_from(args) {
         Ok(c) => c,
         Err(e) => {
             let _ = e.print();
@@ -157,6 +170,7 @@ pub fn main() -> ExitCode {
         Command::Fit(a) => fit::run(&a),
         Command::Plot(a) => plot::run(&a),
         Command::Theory(a) => theory::run(&a),
+        Command::Kinds(a) => kinds::run(&a),
     };
     match result {
         Ok(code) => code,

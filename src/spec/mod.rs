@@ -6,16 +6,16 @@
 
 pub mod error;
 pub mod plan;
+pub mod settings;
 pub mod shard;
 
-use crate::algo::{
-    AlgoSpec, amp, anneal, descent, exhaustive, gradient, hessian, iamp, lowrank, spectral,
-    tempering,
-};
+use crate::algo::AlgoSpec;
 use crate::model::{Couplings, Family, ModelSpec};
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
 use serde::Deserialize;
+pub use settings::Settings;
+use std::collections::BTreeMap;
 use std::ops::Range;
 use std::path::Path;
 use toml::Spanned;
@@ -98,76 +98,10 @@ struct RawSweep {
     replicas: Option<Spanned<i64>>,
 }
 
-/// One `[[algorithm]]` table. Flat on purpose: every setting of every kind is optional here,
-/// and validation says which ones apply to the chosen kind (a tagged enum would lose the
-/// positions serde needs for good messages).
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct RawAlgorithm {
-    #[serde(default)]
-    label: Option<Spanned<String>>,
-    kind: Spanned<String>,
-    // descent
-    #[serde(default)]
-    order: Option<Spanned<String>>,
-    #[serde(default)]
-    max_sweeps: Option<Spanned<i64>>,
-    // anneal
-    #[serde(default)]
-    sweeps: Option<Spanned<i64>>,
-    #[serde(default)]
-    beta: Option<Spanned<Beta>>,
-    #[serde(default)]
-    quench: Option<Spanned<bool>>,
-    // spectral, gradient
-    #[serde(default)]
-    tol: Option<Spanned<f64>>,
-    #[serde(default)]
-    basis: Option<Spanned<i64>>,
-    #[serde(default)]
-    max_matvecs: Option<Spanned<i64>>,
-    #[serde(default)]
-    step: Option<Spanned<f64>>,
-    #[serde(default)]
-    max_iterations: Option<Spanned<i64>>,
-    // tempering
-    #[serde(default)]
-    replicas: Option<Spanned<i64>>,
-    // lowrank
-    #[serde(default)]
-    rank: Option<Spanned<i64>>,
-    #[serde(default)]
-    roundings: Option<Spanned<i64>>,
-    // hessian
-    #[serde(default)]
-    steps: Option<Spanned<i64>>,
-    #[serde(default)]
-    polish: Option<Spanned<bool>>,
-    // amp
-    #[serde(default)]
-    field: Option<Spanned<f64>>,
-    // iamp
-    #[serde(default)]
-    levels: Option<Spanned<i64>>,
-}
+/// One `[[algorithm]]` table, kept as parsed values with their positions: which keys apply
+/// depends on the kind, and each kind reads its own (see [`crate::algo::Kind`]).
+type RawAlgorithm = BTreeMap<String, Spanned<toml::Value>>;
 
-/// `beta`: one inverse temperature (amp) or a schedule [start, end] (anneal, tempering).
-#[derive(Deserialize)]
-#[serde(untagged)]
-enum Beta {
-    One(f64),
-    Range(Vec<f64>),
-}
-
-const DESCENT_KEYS: &[&str] = &["order", "max_sweeps"];
-const ANNEAL_KEYS: &[&str] = &["sweeps", "beta", "quench"];
-const SPECTRAL_KEYS: &[&str] = &["tol", "basis", "max_matvecs"];
-const GRADIENT_KEYS: &[&str] = &["step", "tol", "max_iterations"];
-const TEMPERING_KEYS: &[&str] = &["replicas", "beta", "sweeps"];
-const LOWRANK_KEYS: &[&str] = &["rank", "tol", "max_sweeps", "roundings"];
-const HESSIAN_KEYS: &[&str] = &["steps", "tol", "polish"];
-const AMP_KEYS: &[&str] = &["beta", "field", "tol", "max_iterations"];
-const IAMP_KEYS: &[&str] = &["step", "levels"];
 /// Largest degree p of a mixture term.
 pub const MAX_P: u32 = 8;
 
@@ -463,278 +397,22 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     let mut algorithms: Vec<AlgoEntry> = Vec::new();
     let mut label_spans: Vec<Range<usize>> = Vec::new();
     for (i, a) in raw.algorithm.iter().enumerate() {
-        let at = format!("algorithm[{}]", i + 1);
-        let a = a.get_ref();
-        let kind = a.kind.get_ref().as_str();
-        let present: Vec<(&str, Range<usize>)> = [
-            ("order", a.order.as_ref().map(|x| x.span())),
-            ("max_sweeps", a.max_sweeps.as_ref().map(|x| x.span())),
-            ("sweeps", a.sweeps.as_ref().map(|x| x.span())),
-            ("beta", a.beta.as_ref().map(|x| x.span())),
-            ("quench", a.quench.as_ref().map(|x| x.span())),
-            ("tol", a.tol.as_ref().map(|x| x.span())),
-            ("basis", a.basis.as_ref().map(|x| x.span())),
-            ("max_matvecs", a.max_matvecs.as_ref().map(|x| x.span())),
-            ("step", a.step.as_ref().map(|x| x.span())),
-            (
-                "max_iterations",
-                a.max_iterations.as_ref().map(|x| x.span()),
-            ),
-            ("replicas", a.replicas.as_ref().map(|x| x.span())),
-            ("rank", a.rank.as_ref().map(|x| x.span())),
-            ("roundings", a.roundings.as_ref().map(|x| x.span())),
-            ("steps", a.steps.as_ref().map(|x| x.span())),
-            ("polish", a.polish.as_ref().map(|x| x.span())),
-            ("field", a.field.as_ref().map(|x| x.span())),
-            ("levels", a.levels.as_ref().map(|x| x.span())),
-        ]
-        .into_iter()
-        .filter_map(|(k, s)| s.map(|s| (k, s)))
-        .collect();
-        let allowed: &[&str] = match kind {
-            "descent" => DESCENT_KEYS,
-            "anneal" => ANNEAL_KEYS,
-            "exhaustive" => &[],
-            "spectral" => SPECTRAL_KEYS,
-            "gradient" => GRADIENT_KEYS,
-            "tempering" => TEMPERING_KEYS,
-            "lowrank" => LOWRANK_KEYS,
-            "hessian" => HESSIAN_KEYS,
-            "amp" => AMP_KEYS,
-            "iamp" => IAMP_KEYS,
-            _ => {
-                return Err(loc.at(
-                    Some(a.kind.span()),
-                    format!("{at}.kind"),
-                    format!("unknown algorithm kind `{kind}`"),
-                    Some(choice_hint(kind, &AlgoSpec::KINDS)),
-                ));
-            }
-        };
-        if let Some((k, s)) = present.iter().find(|(k, _)| !allowed.contains(k)) {
-            return Err(loc.at(
-                Some(s.clone()),
-                format!("{at}.{k}"),
-                format!("`{k}` does not apply to kind `{kind}`"),
-                Some(if allowed.is_empty() {
-                    format!("`{kind}` takes no settings")
-                } else {
-                    format!(
-                        "settings of `{kind}`: {}",
-                        allowed
-                            .iter()
-                            .map(|c| format!("`{c}`"))
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    )
-                }),
-            ));
-        }
-        let algo = match kind {
-            "descent" => {
-                let mut p = descent::Params::default();
-                if let Some(o) = &a.order {
-                    p.order = descent::Order::parse(o.get_ref()).ok_or_else(|| {
-                        loc.at(
-                            Some(o.span()),
-                            format!("{at}.order"),
-                            format!("unknown order `{}`", o.get_ref()),
-                            Some(choice_hint(o.get_ref(), &descent::Order::NAMES)),
-                        )
-                    })?;
-                }
-                if let Some(m) = &a.max_sweeps {
-                    p.max_sweeps = positive(m, loc, &format!("{at}.max_sweeps"), 1_000_000_000)?;
-                }
-                AlgoSpec::Descent(p)
-            }
-            "exhaustive" => {
-                if let Some((n, span)) = sizes.iter().find(|(n, _)| *n > exhaustive::MAX_N) {
-                    return Err(loc.at(
-                        Some(span.clone()),
-                        "sweep.sizes",
-                        format!("exhaustive search ({at}) cannot enumerate n = {n}: 2^{} states", n - 1),
-                        Some(format!("exhaustive search needs every size ≤ {}; run it in a spec of its own with small sizes", exhaustive::MAX_N)),
-                    ));
-                }
-                AlgoSpec::Exhaustive(exhaustive::Params {})
-            }
-            "spectral" => {
-                let mut p = spectral::Params::default();
-                if let Some(t) = &a.tol {
-                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
-                }
-                if let Some(b) = &a.basis {
-                    p.basis = positive(b, loc, &format!("{at}.basis"), 10_000)?.max(2);
-                }
-                if let Some(m) = &a.max_matvecs {
-                    p.max_matvecs = positive(m, loc, &format!("{at}.max_matvecs"), 1_000_000_000)?;
-                }
-                AlgoSpec::Spectral(p)
-            }
-            "gradient" => {
-                let mut p = gradient::Params::default();
-                if let Some(t) = &a.tol {
-                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
-                }
-                if let Some(st) = &a.step {
-                    let x = *st.get_ref();
-                    if !(x > 0.0 && x.is_finite()) {
-                        return Err(loc.at(
-                            Some(st.span()),
-                            format!("{at}.step"),
-                            format!("step {x} is not a positive number"),
-                            Some("a step size η > 0, e.g. step = 0.5".into()),
-                        ));
-                    }
-                    p.step = x;
-                }
-                if let Some(m) = &a.max_iterations {
-                    p.max_iterations =
-                        positive(m, loc, &format!("{at}.max_iterations"), 1_000_000_000)?;
-                }
-                AlgoSpec::Gradient(p)
-            }
-            "tempering" => {
-                let mut p = tempering::Params::default();
-                if let Some(r) = &a.replicas {
-                    p.replicas = positive(r, loc, &format!("{at}.replicas"), 4096)?.max(2);
-                }
-                if let Some(b) = &a.beta {
-                    p.beta = beta_range(b, loc, &format!("{at}.beta"))?;
-                    if p.beta[0] <= 0.0 {
-                        return Err(loc.at(
-                            Some(b.span()),
-                            format!("{at}.beta"),
-                            "the ladder is geometric: the smallest β must be > 0",
-                            Some("e.g. beta = [0.2, 3.0]".into()),
-                        ));
-                    }
-                }
-                if let Some(sw) = &a.sweeps {
-                    p.sweeps = positive(sw, loc, &format!("{at}.sweeps"), 1_000_000_000)?;
-                }
-                AlgoSpec::Tempering(p)
-            }
-            "lowrank" => {
-                let mut p = lowrank::Params::default();
-                if let Some(r) = &a.rank {
-                    p.rank = positive(r, loc, &format!("{at}.rank"), 100_000)?;
-                }
-                if let Some(t) = &a.tol {
-                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
-                }
-                if let Some(m) = &a.max_sweeps {
-                    p.max_sweeps = positive(m, loc, &format!("{at}.max_sweeps"), 1_000_000_000)?;
-                }
-                if let Some(r) = &a.roundings {
-                    p.roundings = positive(r, loc, &format!("{at}.roundings"), 1_000_000)?;
-                }
-                AlgoSpec::Lowrank(p)
-            }
-            "hessian" => {
-                let mut p = hessian::Params::default();
-                if let Some(st) = &a.steps {
-                    p.steps = positive(st, loc, &format!("{at}.steps"), 1_000_000)?;
-                }
-                if let Some(t) = &a.tol {
-                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
-                }
-                if let Some(b) = &a.polish {
-                    p.polish = *b.get_ref();
-                }
-                AlgoSpec::Hessian(p)
-            }
-            "amp" => {
-                let mut p = amp::Params::default();
-                if let Some(b) = &a.beta {
-                    p.beta = beta_one(b, loc, &format!("{at}.beta"))?;
-                }
-                if let Some(h) = &a.field {
-                    p.field = nonnegative(h, loc, &format!("{at}.field"), 20.0)?;
-                }
-                if let Some(t) = &a.tol {
-                    p.tol = tolerance(t, loc, &format!("{at}.tol"))?;
-                }
-                if let Some(m) = &a.max_iterations {
-                    p.max_iterations =
-                        positive(m, loc, &format!("{at}.max_iterations"), 1_000_000)?;
-                }
-                AlgoSpec::Amp(p)
-            }
-            "iamp" => {
-                let mut p = iamp::Params::default();
-                if let Some(st) = &a.step {
-                    let v = *st.get_ref();
-                    if !(v > 0.0 && v <= 0.25) {
-                        return Err(loc.at(
-                            Some(st.span()),
-                            format!("{at}.step"),
-                            format!("step = {v} is not a time step in (0, 0.25]"),
-                            Some("the run takes about 1/step matrix–vector products; e.g. step = 0.02".into()),
-                        ));
-                    }
-                    p.step = v;
-                }
-                if let Some(l) = &a.levels {
-                    p.levels = positive(l, loc, &format!("{at}.levels"), 64)?.max(2);
-                }
-                AlgoSpec::Iamp(p)
-            }
-            _ => {
-                let mut p = anneal::Params::default();
-                if let Some(s) = &a.sweeps {
-                    p.sweeps = positive(s, loc, &format!("{at}.sweeps"), 1_000_000_000)?;
-                }
-                if let Some(b) = &a.beta {
-                    p.beta = beta_range(b, loc, &format!("{at}.beta"))?;
-                }
-                if let Some(q) = &a.quench {
-                    p.quench = *q.get_ref();
-                }
-                AlgoSpec::Anneal(p)
-            }
-        };
-        if let Some(why) = algo.unsupported(&model) {
-            return Err(loc.at(
-                Some(a.kind.span()),
-                format!("{at}.kind"),
-                format!(
-                    "`{kind}` cannot run on the `{}` family: {why}",
-                    model.family.name()
-                ),
-                Some(format!(
-                    "kinds for this family: {}",
-                    kinds_for(&model).join(", ")
-                )),
-            ));
-        }
-        let (label, lspan) = match &a.label {
-            Some(l) => (l.get_ref().clone(), l.span()),
-            None => (kind.to_string(), a.kind.span()),
-        };
-        if label.trim().is_empty() {
-            return Err(loc.at(
-                Some(lspan),
-                format!("{at}.label"),
-                "empty label",
-                Some("give a short name, or leave `label` out to use the kind".into()),
-            ));
-        }
-        if let Some(j) = algorithms.iter().position(|e| e.label == label) {
+        let (entry, lspan) = algorithm_entry(i, a, &model, &sizes, loc)?;
+        if let Some(j) = algorithms.iter().position(|e| e.label == entry.label) {
             let (line, _) = loc.line_col(label_spans[j].start);
             return Err(loc.at(
                 Some(lspan),
-                format!("{at}.label"),
+                format!("algorithm[{}].label", i + 1),
                 format!(
-                    "label `{label}` is already used by algorithm[{}] (line {line})",
+                    "label `{}` is already used by algorithm[{}] (line {line})",
+                    entry.label,
                     j + 1
                 ),
                 Some("labels name table rows: give each algorithm its own".into()),
             ));
         }
         label_spans.push(lspan);
-        algorithms.push(AlgoEntry { label, algo });
+        algorithms.push(entry);
     }
 
     let cells = sizes.len() as u128
@@ -768,6 +446,127 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         replicas,
         algorithms,
     })
+}
+
+/// One `[[algorithm]]` table: its kind from the registry, the kind's own keys, the model and
+/// size checks; returns the entry and the span its label is reported at.
+fn algorithm_entry(
+    i: usize,
+    table: &Spanned<RawAlgorithm>,
+    model: &ModelSpec,
+    sizes: &[(u64, Range<usize>)],
+    loc: &Locator,
+) -> Result<(AlgoEntry, Range<usize>), SpecError> {
+    let at = format!("algorithm[{}]", i + 1);
+    let values = table.get_ref();
+    let text = |key: &str| -> Result<Option<(String, Range<usize>)>, SpecError> {
+        match values.get(key) {
+            None => Ok(None),
+            Some(v) => match v.get_ref() {
+                toml::Value::String(s) => Ok(Some((s.clone(), v.span()))),
+                other => Err(loc.at(
+                    Some(v.span()),
+                    format!("{at}.{key}"),
+                    format!(
+                        "invalid type: {} `{other}`, expected a string",
+                        other.type_str()
+                    ),
+                    Some(format!("e.g. {key} = \"descent\"")),
+                )),
+            },
+        }
+    };
+    let Some((kind, kspan)) = text("kind")? else {
+        return Err(loc.at(
+            Some(table.span()),
+            at.clone(),
+            "missing key `kind`",
+            Some(format!(
+                "every [[algorithm]] names its kind: {}",
+                quoted(&crate::algo::kind_names())
+            )),
+        ));
+    };
+    let Some(k) = crate::algo::find(&kind) else {
+        return Err(loc.at(
+            Some(kspan),
+            format!("{at}.kind"),
+            format!("unknown algorithm kind `{kind}`"),
+            Some(choice_hint(&kind, &crate::algo::kind_names())),
+        ));
+    };
+    let mut settings = BTreeMap::new();
+    for (key, v) in values {
+        if key == "kind" || key == "label" {
+            continue;
+        }
+        if !k.keys.iter().any(|x| x.name == key) {
+            let elsewhere = crate::algo::kinds()
+                .iter()
+                .any(|o| o.keys.iter().any(|x| x.name == key));
+            let own: Vec<&str> = k.keys.iter().map(|x| x.name).collect();
+            let message = if elsewhere {
+                format!("`{key}` does not apply to kind `{kind}`")
+            } else {
+                format!("unknown key `{key}`")
+            };
+            let hint = match closest(key, own.iter().copied()) {
+                Some(c) if !elsewhere => format!("did you mean `{c}`?"),
+                _ if own.is_empty() => format!("`{kind}` takes no settings"),
+                _ => format!("settings of `{kind}`: {}", quoted(&own)),
+            };
+            return Err(loc.at(Some(v.span()), format!("{at}.{key}"), message, Some(hint)));
+        }
+        settings.insert(key.clone(), v.clone());
+    }
+    let algo = (k.parse)(&Settings {
+        at: at.clone(),
+        loc,
+        values: &settings,
+    })?;
+    for (n, span) in sizes {
+        if let Some((message, hint)) = algo.size_problem(*n) {
+            return Err(loc.at(
+                Some(span.clone()),
+                "sweep.sizes",
+                format!("{message} ({at})"),
+                Some(hint),
+            ));
+        }
+    }
+    if let Some(why) = algo.unsupported(model) {
+        return Err(loc.at(
+            Some(kspan),
+            format!("{at}.kind"),
+            format!(
+                "`{kind}` cannot run on the `{}` family: {why}",
+                model.family.name()
+            ),
+            Some(format!(
+                "kinds for this family: {}",
+                quoted(&crate::algo::kinds_for(model))
+            )),
+        ));
+    }
+    let (label, lspan) = text("label")?.unwrap_or((kind.clone(), kspan));
+    if label.trim().is_empty() {
+        return Err(loc.at(
+            Some(lspan),
+            format!("{at}.label"),
+            "empty label",
+            Some("give a short name, or leave `label` out to use the kind".into()),
+        ));
+    }
+    Ok((AlgoEntry { label, algo }, lspan))
+}
+
+/// `a`, `b`, `c`.
+fn quoted(names: &[&str]) -> String {
+    names
+        .iter()
+        .map(|c| format!("`{c}`"))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
@@ -821,113 +620,6 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
         };
     }
     Ok(out)
-}
-
-/// A single inverse temperature (amp).
-fn beta_one(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<f64, SpecError> {
-    match b.get_ref() {
-        Beta::One(v) if v.is_finite() && *v > 0.0 && *v <= 100.0 => Ok(*v),
-        Beta::One(v) => Err(loc.at(
-            Some(b.span()),
-            key,
-            format!("beta = {v} is not an inverse temperature in (0, 100]"),
-            Some("e.g. beta = 1.5".into()),
-        )),
-        Beta::Range(_) => Err(loc.at(
-            Some(b.span()),
-            key,
-            "amp takes one inverse temperature, not a schedule",
-            Some("write beta = 1.5".into()),
-        )),
-    }
-}
-
-/// A number in [0, max].
-fn nonnegative(v: &Spanned<f64>, loc: &Locator, key: &str, max: f64) -> Result<f64, SpecError> {
-    let x = *v.get_ref();
-    if x.is_finite() && (0.0..=max).contains(&x) {
-        Ok(x)
-    } else {
-        Err(loc.at(
-            Some(v.span()),
-            key,
-            format!("{x} is out of range"),
-            Some(format!("give a number between 0 and {max}")),
-        ))
-    }
-}
-
-/// `beta = [start, end]`: finite, start ≥ 0, increasing.
-fn beta_range(b: &Spanned<Beta>, loc: &Locator, key: &str) -> Result<[f64; 2], SpecError> {
-    let v = match b.get_ref() {
-        Beta::Range(v) => v,
-        Beta::One(x) => {
-            return Err(loc.at(
-                Some(b.span()),
-                key,
-                format!("beta = {x} is one number; this kind needs a schedule"),
-                Some(format!("beta = [start, end], e.g. [0.1, {x}]")),
-            ));
-        }
-    };
-    if v.len() != 2 {
-        return Err(loc.at(
-            Some(b.span()),
-            key,
-            format!("expected two numbers, got {}", v.len()),
-            Some("beta = [start, end], e.g. [0.1, 4.0]".into()),
-        ));
-    }
-    if !(v[0].is_finite() && v[1].is_finite() && v[0] >= 0.0) {
-        return Err(loc.at(
-            Some(b.span()),
-            key,
-            format!("beta = [{}, {}] is not a schedule", v[0], v[1]),
-            Some("both ends must be finite and the start ≥ 0".into()),
-        ));
-    }
-    if v[1] <= v[0] {
-        return Err(loc.at(
-            Some(b.span()),
-            key,
-            format!("beta is not increasing: {} then {}", v[0], v[1]),
-            Some("annealing cools: give beta = [start, end] with end > start".into()),
-        ));
-    }
-    Ok([v[0], v[1]])
-}
-
-/// The kinds that can run on a model (for hints).
-fn kinds_for(m: &ModelSpec) -> Vec<String> {
-    [
-        AlgoSpec::Descent(Default::default()),
-        AlgoSpec::Anneal(Default::default()),
-        AlgoSpec::Exhaustive(Default::default()),
-        AlgoSpec::Spectral(Default::default()),
-        AlgoSpec::Gradient(Default::default()),
-        AlgoSpec::Tempering(Default::default()),
-        AlgoSpec::Lowrank(Default::default()),
-        AlgoSpec::Hessian(Default::default()),
-        AlgoSpec::Amp(Default::default()),
-        AlgoSpec::Iamp(Default::default()),
-    ]
-    .iter()
-    .filter(|a| a.unsupported(m).is_none())
-    .map(|a| format!("`{}`", a.kind()))
-    .collect()
-}
-
-fn tolerance(v: &Spanned<f64>, loc: &Locator, key: &str) -> Result<f64, SpecError> {
-    let x = *v.get_ref();
-    if !(x > 0.0 && x < 1.0) {
-        return Err(loc.at(
-            Some(v.span()),
-            key,
-            format!("tolerance {x} is not in (0, 1)"),
-            Some("a small positive number, e.g. tol = 1e-8".into()),
-        ));
-    }
-    Ok(x)
 }
 
 /// The family-specific `[model]` keys: each required where it applies and refused elsewhere.
@@ -1233,15 +925,14 @@ beta = [0.1, 4]
         assert_eq!(s.algorithms[0].label, "descent");
         assert_eq!(
             s.algorithms[0].algo,
-            AlgoSpec::Descent(descent::Params::default())
+            AlgoSpec::new(crate::algo::descent::Params::default())
         );
-        match &s.algorithms[1].algo {
-            AlgoSpec::Anneal(p) => {
-                assert_eq!(p.beta, [0.1, 4.0]);
-                assert_eq!(p.sweeps, 10);
-            }
-            other => panic!("{other:?}"),
-        }
+        let p = s.algorithms[1]
+            .algo
+            .params::<crate::algo::anneal::Params>()
+            .expect("an annealer");
+        assert_eq!(p.beta, [0.1, 4.0]);
+        assert_eq!(p.sweeps, 10);
     }
 
     fn err_of(text: &str) -> SpecError {

@@ -122,7 +122,7 @@ fn sk_and_the_sk_mixture_agree() {
 #[test]
 fn sphere_quadratic_maximum_is_half_the_top_eigenvalue() {
     let m = mixed(Family::Sphere, &[(2, 0.5)]);
-    let algo = AlgoSpec::Spectral(spectral::Params::default());
+    let algo = AlgoSpec::new(spectral::Params::default());
     for (n, seeds) in [(300usize, 3u64), (1000, 2)] {
         for seed in 0..seeds {
             let inst = m.sample(n, &id("sphere2", seed), 0.0);

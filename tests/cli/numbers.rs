@@ -57,7 +57,7 @@ fn energies(algo: &AlgoSpec, n: usize, seeds: u64) -> Vec<f64> {
 /// the published range and 0.01 for the order dependence.
 #[test]
 fn descent_stops_well_below_the_parisi_value() {
-    let e = energies(&AlgoSpec::Descent(descent::Params::default()), 1000, 10);
+    let e = energies(&AlgoSpec::new(descent::Params::default()), 1000, 10);
     let (mean, se) = mean_se(&e);
     assert!(
         (mean - 0.69).abs() < 4.0 * se + 0.005 + 0.01,
@@ -76,7 +76,7 @@ fn descent_stops_well_below_the_parisi_value() {
 #[test]
 fn long_annealing_approaches_the_ground_state() {
     let n = 256;
-    let algo = AlgoSpec::Anneal(anneal::Params {
+    let algo = AlgoSpec::new(anneal::Params {
         sweeps: 2000,
         beta: [0.1, 4.0],
         quench: true,
@@ -89,7 +89,7 @@ fn long_annealing_approaches_the_ground_state() {
         "anneal {mean} ± {se}, target {target}"
     );
     assert!(mean < PARISI, "anneal {mean} above the n → ∞ optimum");
-    let d = energies(&AlgoSpec::Descent(descent::Params::default()), n, 12);
+    let d = energies(&AlgoSpec::new(descent::Params::default()), n, 12);
     assert!(
         mean > mean_se(&d).0 + 0.03,
         "annealing does not beat descent clearly"

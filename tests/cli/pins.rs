@@ -1,0 +1,357 @@
+//! Pinned outputs: what a seed gives, for every algorithm kind and for every family's sample and
+//! correlated copy, at one small size.
+//!
+//! A failure here means a change altered the numbers a seed produces. If that is what you meant:
+//! bump the kind's or the family's `REVISION` (so cached cells are recomputed), add a line to
+//! CHANGELOG.md under "Changes that alter numbers", and paste the new pin the failure prints.
+//! If it is not what you meant, the change has a bug.
+//!
+//! A pin holds the energy per spin in its shortest round-trip form (exact) and
+//! the first 16 hex digits of the SHA-256 of the output (spins as bytes, then the pre-rounding
+//! point's f64 bits, little-endian), so a change in any spin or in the last bit of the point fails.
+
+use crate::util::id;
+use kiln::algo::{AlgoSpec, Output};
+use kiln::model::{Couplings, Family, ModelSpec};
+use kiln::rng::{Purpose, stream};
+use kiln::theory::Mixture;
+use sha2::{Digest, Sha256};
+
+/// (kind, revision, family, n, energy per spin, output digest).
+type Pin = (
+    &'static str,
+    u32,
+    &'static str,
+    usize,
+    &'static str,
+    &'static str,
+);
+
+/// One pin per kind (gradient twice: on the cube and on the sphere).
+const ALGORITHM_PINS: &[Pin] = &[
+    (
+        "descent",
+        1,
+        "sk",
+        24,
+        "0.6088778769072176",
+        "f016bbe10e0531a3",
+    ),
+    (
+        "anneal",
+        1,
+        "sk",
+        24,
+        "0.6226103018494511",
+        "1bc50c78cb780056",
+    ),
+    (
+        "exhaustive",
+        1,
+        "sk",
+        16,
+        "0.569961689463128",
+        "34207c525877f7d3",
+    ),
+    (
+        "spectral",
+        2,
+        "sk",
+        24,
+        "0.567414759446812",
+        "685303ae7203e2e8",
+    ),
+    (
+        "gradient",
+        1,
+        "sk",
+        24,
+        "0.5863186426916422",
+        "087e6f6e1384c2a2",
+    ),
+    (
+        "gradient",
+        1,
+        "sphere",
+        24,
+        "0.6568691614452834",
+        "34e99d0fbb90fde5",
+    ),
+    (
+        "tempering",
+        1,
+        "sk",
+        24,
+        "0.6226103018494511",
+        "1bc50c78cb780056",
+    ),
+    (
+        "lowrank",
+        2,
+        "sk",
+        24,
+        "0.6226103018494511",
+        "3f9684f20674bd24",
+    ),
+    (
+        "hessian",
+        2,
+        "sphere",
+        24,
+        "0.7619441265899849",
+        "968d51b6cf1cc933",
+    ),
+    ("amp", 1, "sk", 24, "0.2311010712331977", "3b278dcecffcba17"),
+    (
+        "iamp",
+        2,
+        "cube",
+        24,
+        "0.51153388586043",
+        "0cbc06fbd8817617",
+    ),
+];
+
+fn model(family: &str, couplings: Couplings) -> ModelSpec {
+    let mut m = ModelSpec::sk(couplings);
+    m.family = Family::parse(family).expect("a family");
+    match m.family {
+        Family::Cube | Family::Sphere => {
+            m.xi = Mixture {
+                terms: vec![(2, 0.5), (3, 0.25)],
+            }
+        }
+        Family::ErdosRenyi | Family::Regular => m.degree = 3.0,
+        Family::Lattice => {
+            m.dimension = 2;
+            m.degree = 4.0;
+        }
+        Family::Sk => {}
+    }
+    m
+}
+
+fn digest(out: &Output) -> String {
+    let mut h = Sha256::new();
+    h.update(out.spins.iter().map(|&s| s as u8).collect::<Vec<_>>());
+    if let Some(p) = &out.point {
+        for x in p {
+            h.update(x.to_bits().to_le_bytes());
+        }
+    }
+    hex::encode(&h.finalize()[..8])
+}
+
+fn settings_of(kind: &str) -> AlgoSpec {
+    let k = kiln::algo::builtin()
+        .iter()
+        .find(|k| k.name == kind)
+        .expect("a built-in kind");
+    kiln::algo::default_settings(k).expect("defaults parse")
+}
+
+fn check(pins: &[Pin], got: &[String], what: &str) {
+    let mut bad = Vec::new();
+    for (p, g) in pins.iter().zip(got) {
+        let want = format!("{:?}", (p.0, p.1, p.2, p.3, p.4, p.5));
+        if &want != g {
+            bad.push(format!("  pinned {want}\n  now    {g}"));
+        }
+    }
+    assert!(
+        bad.is_empty(),
+        "{what}: a seed now gives other numbers.\n{}\nIf intended: bump the REVISION, add a CHANGELOG \
+         line under \"Changes that alter numbers\", and paste the new pins:\n{}",
+        bad.join("\n"),
+        got.iter()
+            .map(|g| format!("    {g},"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    );
+}
+
+/// Every built-in kind has a pin, and each pin's output is what the kind gives today.
+#[test]
+fn every_kind_gives_its_pinned_output() {
+    for k in kiln::algo::builtin() {
+        assert!(
+            ALGORITHM_PINS.iter().any(|p| p.0 == k.name),
+            "kind `{}` has no pinned output: add one to ALGORITHM_PINS",
+            k.name
+        );
+    }
+    let got: Vec<String> = ALGORITHM_PINS
+        .iter()
+        .map(|&(kind, _, family, n, _, _)| {
+            let algo = settings_of(kind);
+            let m = model(family, Couplings::Gaussian);
+            let inst = m.sample(n, &id("pin-instance", 0), 0.0);
+            let out = algo
+                .run(
+                    &inst,
+                    &mut stream(&id("pin-algorithm", 0), Purpose::Algorithm, 0),
+                )
+                .expect("runs");
+            let e = inst.energy(&out.spins) / n as f64;
+            format!(
+                "{:?}",
+                (
+                    kind,
+                    algo.revision(),
+                    family,
+                    n,
+                    format!("{e:?}").as_str(),
+                    digest(&out).as_str()
+                )
+            )
+        })
+        .collect();
+    check(ALGORITHM_PINS, &got, "algorithm pins");
+}
+
+/// (family, couplings, revision, n, energy per spin of a fixed σ on the sample, on its copy
+/// correlated at 1 − ε with ε = 0.3, digest of the copy's energies at 8 random σ).
+type CopyPin = (
+    &'static str,
+    &'static str,
+    u32,
+    usize,
+    &'static str,
+    &'static str,
+    &'static str,
+);
+
+const COPY_PINS: &[CopyPin] = &[
+    (
+        "sk",
+        "gaussian",
+        1,
+        24,
+        "0.2045422251267551",
+        "0.048615519723537164",
+        "de2c07b9dc3b1d6b",
+    ),
+    (
+        "sk",
+        "pm1",
+        1,
+        24,
+        "-0.27216552697590873",
+        "-0.2551551815399144",
+        "abf0b22b31dd343e",
+    ),
+    (
+        "cube",
+        "gaussian",
+        1,
+        24,
+        "0.2668274030631694",
+        "0.05134518228027305",
+        "c36b9ad589ad9877",
+    ),
+    (
+        "sphere",
+        "gaussian",
+        1,
+        24,
+        "0.2668274030631694",
+        "0.051345182280273065",
+        "7c79feda9a8a76db",
+    ),
+    (
+        "erdos-renyi",
+        "gaussian",
+        1,
+        24,
+        "-0.11749097959629888",
+        "-0.378174207312878",
+        "b07e0755d756c11f",
+    ),
+    (
+        "erdos-renyi",
+        "cut",
+        1,
+        24,
+        "0.2916666666666667",
+        "0.08333333333333333",
+        "18e708afa1ce22d3",
+    ),
+    (
+        "regular",
+        "pm1",
+        1,
+        24,
+        "-0.16666666666666666",
+        "-0.08333333333333333",
+        "93010de9b21eb45a",
+    ),
+    (
+        "lattice",
+        "gaussian",
+        1,
+        25,
+        "-0.06401104041339106",
+        "0.09502005088667705",
+        "5a7232e703eda126",
+    ),
+];
+
+/// Every family's sample and correlated copy give their pinned energies.
+#[test]
+fn every_family_copy_gives_its_pinned_energies() {
+    for f in Family::ALL {
+        assert!(
+            COPY_PINS.iter().any(|p| p.0 == f.name()),
+            "family `{}` has no pinned correlated copy: add one to COPY_PINS",
+            f.name()
+        );
+    }
+    let got: Vec<String> = COPY_PINS
+        .iter()
+        .map(|&(family, law, _, n, _, _, _)| {
+            let m = model(family, Couplings::parse(law).expect("a law"));
+            let a = m.sample(n, &id("pin-copy", 0), 0.0);
+            let b = m.sample(n, &id("pin-copy", 0), 0.3);
+            let mut r = stream(&id("pin-sigma", 0), Purpose::Algorithm, 0);
+            let sigmas: Vec<Vec<i8>> = (0..9)
+                .map(|_| (0..n).map(|_| r.sign() as i8).collect())
+                .collect();
+            let mut h = Sha256::new();
+            for s in &sigmas[1..] {
+                h.update(b.energy(s).to_bits().to_le_bytes());
+            }
+            let e0 = a.energy(&sigmas[0]) / n as f64;
+            let e1 = b.energy(&sigmas[0]) / n as f64;
+            format!(
+                "{:?}",
+                (
+                    family,
+                    law,
+                    m.revision(),
+                    n,
+                    format!("{e0:?}").as_str(),
+                    format!("{e1:?}").as_str(),
+                    hex::encode(&h.finalize()[..8]).as_str()
+                )
+            )
+        })
+        .collect();
+    let mut bad = Vec::new();
+    for (p, g) in COPY_PINS.iter().zip(&got) {
+        let want = format!("{:?}", p);
+        if &want != g {
+            bad.push(format!("  pinned {want}\n  now    {g}"));
+        }
+    }
+    assert!(
+        bad.is_empty(),
+        "correlated-copy pins: a seed now gives other disorder.\n{}\nIf intended: bump the \
+         family's REVISION, add a CHANGELOG line under \"Changes that alter numbers\", and paste \
+         the new pins:\n{}",
+        bad.join("\n"),
+        got.iter()
+            .map(|g| format!("    {g},"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    );
+}
