@@ -356,8 +356,8 @@ fn spectral_on_sk() {
 }
 
 /// Every algorithm is deterministic given its stream (the same cell twice gives identical
-/// output), and its kind and revision are part of its canonical settings (so of every cache
-/// key).
+/// output), and every key its kind declares is part of its canonical settings (so of every
+/// cache key): a setting left out of `canon` would let two different runs share a cell.
 #[test]
 fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
     use kiln::algo::hessian;
@@ -409,15 +409,20 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         };
         assert_eq!(bits(&x.point), bits(&y.point), "{}", a.kind());
         let settings = a.settings();
-        assert!(
-            settings.contains("revision") && settings.contains(a.kind()),
-            "{settings}"
-        );
+        let kind = kiln::algo::find(a.kind()).expect("a registered kind");
+        for key in kind.keys {
+            assert!(
+                settings.contains(&format!("\"{}\":", key.name)),
+                "{}: `{}` is not in the canonical settings {settings}",
+                a.kind(),
+                key.name
+            );
+        }
         kinds.insert(a.kind());
     }
     assert_eq!(
         kinds.len(),
-        kiln::algo::kinds().len(),
+        kiln::algo::builtin().len(),
         "every kind is covered"
     );
 }

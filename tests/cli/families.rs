@@ -436,7 +436,14 @@ fn every_example_spec_runs() {
         .collect();
     names.sort();
     let w = Work::new();
+    let (mut kinds, mut families) = (
+        std::collections::BTreeSet::new(),
+        std::collections::BTreeSet::new(),
+    );
     for spec in &names {
+        let parsed = kiln::spec::load(spec).expect("an example parses");
+        families.insert(parsed.model.family.name());
+        kinds.extend(parsed.algorithms.iter().map(|a| a.algo.kind()));
         let v = w.run_json(spec, &["--results", "r", "--cache", "c"]);
         let cells = &v["cells"];
         assert_eq!(cells["failed"].as_u64(), Some(0), "{}", spec.display());
@@ -447,5 +454,18 @@ fn every_example_spec_runs() {
             spec.display()
         );
     }
-    assert!(names.len() >= 6, "one example per family: {names:?}");
+    for k in kiln::algo::builtin() {
+        assert!(
+            kinds.contains(k.name),
+            "kind `{}` is in no example spec",
+            k.name
+        );
+    }
+    for f in kiln::model::Family::ALL {
+        assert!(
+            families.contains(f.name()),
+            "family `{}` is in no example spec",
+            f.name()
+        );
+    }
 }
