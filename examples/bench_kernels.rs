@@ -86,7 +86,7 @@ fn sparse(reps: usize) {
             &mut stream(&[r as u8 + 50; 32], Purpose::Algorithm, 0),
         );
         ns.push(t.elapsed().as_secs_f64() * 1e9 / (n as f64 * 200.0));
-        e = kiln::model::Cube::energy(&g, &out.spins) / n as f64;
+        e = kiln::model::SpinModel::energy(&g, &out.spins) / n as f64;
     }
     let (m, lo, hi) = stats(&ns);
     println!(

@@ -151,7 +151,7 @@ impl Algorithm for Params {
         0.3 * self.max_iterations as f64 * n as f64 * flip
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (!m.family.is_cube() || m.family.is_sparse()).then_some(
+        (!m.family.spins() || m.mixture().is_none()).then_some(
             "AMP's Onsager term is that of a dense mean-field model on the cube (sk or cube)",
         )
     }

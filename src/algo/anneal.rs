@@ -9,7 +9,7 @@
 use super::{Algorithm, Key, Kind};
 use super::{Info, Output, descent, random_start};
 use crate::cell::Canon;
-use crate::model::Cube;
+use crate::model::SpinModel;
 use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
@@ -120,7 +120,7 @@ fn beta_at(p: &Params, sweep: u64, steps: u64) -> f64 {
 }
 
 /// Anneals from a random start drawn from `rng`.
-pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
+pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
     let mut h = vec![0.0; n];
@@ -310,7 +310,7 @@ mod tests {
     fn integer_loop_equals_generic_loop() {
         use crate::model::sparse::{Graph, erdos_renyi, regular};
         struct Plain<'a>(&'a Graph);
-        impl Cube for Plain<'_> {
+        impl SpinModel for Plain<'_> {
             fn n(&self) -> usize {
                 self.0.n()
             }

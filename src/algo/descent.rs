@@ -10,7 +10,7 @@
 use super::{Algorithm, Key, Kind};
 use super::{Info, Output, random_start};
 use crate::cell::Canon;
-use crate::model::Cube;
+use crate::model::SpinModel;
 use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
@@ -126,7 +126,7 @@ impl Algorithm for Params {
 }
 
 /// Runs the descent from a random start drawn from `rng`.
-pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
+pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
     let mut h = vec![0.0; n];
@@ -141,7 +141,7 @@ pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
 
 /// The zero-temperature finish of annealing and tempering: fields recomputed from scratch (no
 /// rounding drift), then a sequential descent to a 1-flip-stable state.
-pub(crate) fn quench<M: Cube>(d: &M, s: &mut [i8], h: &mut [f64], rng: &mut Stream) -> Info {
+pub(crate) fn quench<M: SpinModel>(d: &M, s: &mut [i8], h: &mut [f64], rng: &mut Stream) -> Info {
     d.fields(s, h);
     descend(
         &Params {
@@ -156,7 +156,7 @@ pub(crate) fn quench<M: Cube>(d: &M, s: &mut [i8], h: &mut [f64], rng: &mut Stre
 }
 
 /// Descends from the given state (fields must equal Aσ).
-pub(crate) fn descend<M: Cube>(
+pub(crate) fn descend<M: SpinModel>(
     p: &Params,
     d: &M,
     s: &mut [i8],

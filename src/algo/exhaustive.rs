@@ -7,7 +7,7 @@
 use super::{Algorithm, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
-use crate::model::Cube;
+use crate::model::SpinModel;
 use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
@@ -70,7 +70,7 @@ impl Algorithm for Params {
 }
 
 /// Enumerates all states (n ≤ [`MAX_N`], checked by the spec).
-pub fn run<M: Cube>(_p: &Params, d: &M) -> Output {
+pub fn run<M: SpinModel>(_p: &Params, d: &M) -> Output {
     let n = d.n();
     let mut s = vec![1i8; n];
     let mut h = vec![0.0; n];

@@ -109,14 +109,18 @@ impl Algorithm for Params {
     fn cost(&self, n: u64, flip: f64) -> f64 {
         300.0 * n as f64 * flip
     }
-    fn unsupported(&self, _m: &ModelSpec) -> Option<&'static str> {
-        None
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        (m.mixture().is_none() && !m.family.sparse())
+            .then_some("it needs ∇H: a mean-field mixture (sk, cube, sphere) or a graph")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         Ok(match inst {
             Instance::Sphere(m) => run(self, m, rng),
             Instance::Dense(d) => run_cube(self, d.n(), |x, y| d.matvec(x, y), rng),
             Instance::Sparse(g) => run_cube(self, g.n(), |x, y| g.matvec(x, y), rng),
+            Instance::Spins(_) => {
+                return Err(super::not_for(KIND.name, "the instance has no gradient"));
+            }
             Instance::Mixed(m) => run_cube(
                 self,
                 m.n(),

@@ -109,8 +109,7 @@ impl Algorithm for Params {
         self.steps as f64 * (3.0 * n * flip + 60.0 * n * n)
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        m.family
-            .is_cube()
+        (m.family.spins() || m.mixture().is_none())
             .then_some("Hessian ascent runs on the sphere family")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {

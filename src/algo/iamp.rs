@@ -205,7 +205,7 @@ impl Algorithm for Params {
         self.steps() as f64 * n as f64 * flip
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (!m.family.is_cube() || m.family.is_sparse() || m.xi.d2(0.0) <= 0.0).then_some(
+        (!m.family.spins() || m.mixture().is_none_or(|xi| xi.d2(0.0) <= 0.0)).then_some(
             "incremental AMP needs a dense cube model with a p = 2 term (sk, or cube with xi = { 2 = …, … })",
         )
     }

@@ -172,8 +172,7 @@ impl Algorithm for Params {
         n as f64 * flip * self.rank_for(n as usize) as f64 * 50.0
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        let quadratic = m.xi.terms.iter().all(|&(p, _)| p == 2);
-        (!m.family.is_cube() || (!quadratic && !m.family.is_sparse())).then_some(
+        (!m.family.spins() || !m.family.quadratic()).then_some(
             "it relaxes a quadratic H on the cube (sk, a graph, or cube with xi = { 2 = … })",
         )
     }
@@ -186,6 +185,7 @@ impl Algorithm for Params {
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
             Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
+            Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
         }
     }
     fn as_any(&self) -> &dyn std::any::Any {

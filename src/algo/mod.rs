@@ -253,6 +253,7 @@ pub fn default_settings(k: &Kind) -> Result<AlgoSpec, SpecError> {
         at: format!("algorithm `{}`", k.name),
         loc: &loc,
         values: &empty,
+        anchor: None,
     })
 }
 
@@ -293,10 +294,10 @@ pub fn reference(kinds: &[Kind]) -> String {
 
 /// The refusal of the kinds that move ±1 spins, on the sphere.
 pub(crate) fn spins_only(m: &ModelSpec) -> Option<&'static str> {
-    (!m.family.is_cube()).then_some("it moves ±1 spins; the sphere family has real coordinates")
+    (!m.family.spins()).then_some("it moves ±1 spins; the sphere family has real coordinates")
 }
 
-/// Runs a kernel generic over [`crate::model::Cube`] on whichever ±1 instance this is: one
+/// Runs a kernel generic over [`crate::model::SpinModel`] on whichever ±1 instance this is: one
 /// monomorphic call per variant, and the refusal on the sphere.
 macro_rules! on_cube {
     ($inst:expr, $kind:expr, |$d:ident| $body:expr) => {
@@ -304,6 +305,7 @@ macro_rules! on_cube {
             Instance::Dense($d) => Ok($body),
             Instance::Mixed($d) => Ok($body),
             Instance::Sparse($d) => Ok($body),
+            Instance::Spins($d) => Ok($body),
             Instance::Sphere(_) => Err(super::not_for(
                 $kind,
                 "it moves ±1 spins; the sphere has real coordinates",

@@ -105,13 +105,14 @@ impl Algorithm for Params {
         200.0 * n as f64 * flip
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (!quadratic_only(m) && !m.family.is_sparse())
+        (!m.family.quadratic())
             .then_some("it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
         match inst {
             Instance::Dense(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
             Instance::Sparse(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
+            Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
             Instance::Mixed(m) | Instance::Sphere(m) => match (m.dense(), m.is_quadratic()) {
                 (Some(d), true) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
@@ -121,10 +122,6 @@ impl Algorithm for Params {
     fn as_any(&self) -> &dyn std::any::Any {
         self
     }
-}
-
-fn quadratic_only(m: &ModelSpec) -> bool {
-    m.xi.terms.iter().all(|&(p, _)| p == 2)
 }
 
 /// Runs Lanczos on `op` and rounds. Returns (spins, point = √n v, λ_max, info).

@@ -10,7 +10,7 @@
 use super::{Algorithm, Key, Kind};
 use super::{Info, Output, descent, random_start};
 use crate::cell::Canon;
-use crate::model::Cube;
+use crate::model::SpinModel;
 use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
@@ -128,7 +128,7 @@ impl Algorithm for Params {
     }
 }
 
-pub fn run<M: Cube>(p: &Params, d: &M, rng: &mut Stream) -> Output {
+pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let betas = p.ladder();
     let r = betas.len();

@@ -46,30 +46,28 @@ fn reference_lines(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
 ) -> anyhow::Result<Vec<(f64, String, String)>> {
-    use crate::model::Family;
-    let Some(m) = model else {
+    let Some((m, xi)) = model.and_then(|m| Some(m).zip(m.mixture())) else {
         return Ok(vec![]);
     };
-    Ok(match m.family {
-        Family::Sk | Family::Cube => {
-            let full = super::theory::cached_full_rsb(&cache.join("theory"), &m.xi)?;
-            let mut caption = format!(
-                "Parisi value {:.6} computed by kiln: full-RSB minimisation of the Auffinger–Chen functional (arXiv:1606.05335) on {} q-intervals.",
-                full.value,
-                full.m.len()
-            );
-            if m.xi == crate::theory::Mixture::sk() {
-                caption += " Published: 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)); for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).";
-            }
-            vec![(
-                full.value,
-                format!("Parisi value {:.5}", full.value),
-                caption,
-            )]
+    Ok(if m.family.spins() {
+        let full = super::theory::cached_full_rsb(&cache.join("theory"), xi)?;
+        let mut caption = format!(
+            "Parisi value {:.6} computed by kiln: full-RSB minimisation of the Auffinger–Chen functional (arXiv:1606.05335) on {} q-intervals.",
+            full.value,
+            full.m.len()
+        );
+        if *xi == crate::theory::Mixture::sk() {
+            caption += " Published: 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)); for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).";
         }
-        Family::Sphere => {
-            let (gs, ..) = crate::theory::sphere::ground_state(&m.xi);
-            let (alg, equal) = crate::theory::sphere::algorithmic(&m.xi);
+        vec![(
+            full.value,
+            format!("Parisi value {:.5}", full.value),
+            caption,
+        )]
+    } else {
+        {
+            let (gs, ..) = crate::theory::sphere::ground_state(xi);
+            let (alg, equal) = crate::theory::sphere::algorithmic(xi);
             let mut v = vec![(
                 gs,
                 format!("ground state {gs:.4}"),
@@ -86,7 +84,6 @@ fn reference_lines(
             }
             v
         }
-        _ => vec![],
     })
 }
 

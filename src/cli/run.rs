@@ -227,7 +227,7 @@ fn write_overlaps(
 ) -> anyhow::Result<()> {
     use crate::store::cache::Lookup;
     use std::collections::BTreeMap;
-    let sphere = !spec.model.family.is_cube();
+    let sphere = !spec.model.family.spins();
     let mut groups: BTreeMap<(usize, u64, u64), Vec<(u32, crate::cell::Key)>> = BTreeMap::new();
     for c in plan.cells.iter().filter(|c| c.epsilon == 0.0) {
         groups

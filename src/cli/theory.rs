@@ -67,17 +67,13 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 Some(p) => crate::spec::load(p)?,
                 None => crate::spec::default_spec(),
             };
-            use crate::model::Family;
-            let xi = match spec.model.family {
-                Family::Sk | Family::Cube | Family::Sphere => spec.model.xi.clone(),
-                other => {
-                    return Err(InputError(format!(
-                        "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere); {} is `{}`",
-                        spec.origin,
-                        other.name()
-                    ))
-                    .into());
-                }
+            let Some(xi) = spec.model.mixture().cloned() else {
+                return Err(InputError(format!(
+                    "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere); {} is `{}`",
+                    spec.origin,
+                    spec.model.name()
+                ))
+                .into());
             };
             (xi, Some(spec.name))
         }

@@ -84,7 +84,7 @@ fn cached_record(
 
 /// Whether outputs are measured on their continuous points (the sphere) rather than spins.
 fn needs_point(spec: &Spec) -> bool {
-    !spec.model.family.is_cube()
+    !spec.model.family.spins()
 }
 
 /// Whether the cell's reference keeps its continuous point: always on the sphere, and on the
@@ -475,16 +475,7 @@ fn run_reference(
 type Extras = (Option<f64>, Option<f64>);
 
 fn extras(spec: &Spec, inst: &crate::model::Instance, energy: f64) -> Extras {
-    let reduced = spec.model.reduced_scale().map(|s| energy / s);
-    let cut = match (spec.model.couplings, inst.edges()) {
-        (crate::model::Couplings::Cut, Some(m)) if m > 0 => {
-            // H = −(m − 2·cut) for all-(−1) couplings, so cut = (m + H)/2.
-            let h = energy * inst.n() as f64;
-            Some(((m as f64 + h) / 2.0).round() / m as f64)
-        }
-        _ => None,
-    };
-    (reduced, cut)
+    spec.model.extras(inst, energy)
 }
 
 fn compute_cell(

@@ -117,7 +117,7 @@ impl Mixed {
     }
 }
 
-impl super::Cube for Mixed {
+impl super::SpinModel for Mixed {
     fn n(&self) -> usize {
         self.n
     }

@@ -189,7 +189,7 @@ impl Dense {
 
 pub(crate) use crate::kernels::{dot, dot_signs};
 
-impl super::Cube for Dense {
+impl super::SpinModel for Dense {
     fn n(&self) -> usize {
         self.n
     }

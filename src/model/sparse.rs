@@ -41,6 +41,9 @@ const STRUCTURE: u64 = 1 << 62;
 /// Stream index offset of the fresh edges of a perturbed Erdős–Rényi `cut` graph.
 const FRESH: u64 = 1 << 61;
 
+/// Revision of the graph and lattice samplers. Bump when a seed's disorder changes.
+pub const REVISION: u32 = 1;
+
 /// An undirected graph with couplings, in CSR form.
 pub struct Graph {
     n: usize,

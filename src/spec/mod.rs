@@ -5,12 +5,14 @@
 //! [`plan::expand`] turns a `Spec` into the ordered list of cells with their keys.
 
 pub mod error;
+mod model;
 pub mod plan;
 pub mod settings;
 pub mod shard;
+mod sweep;
 
 use crate::algo::AlgoSpec;
-use crate::model::{Couplings, Family, ModelSpec};
+use crate::model::ModelSpec;
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
 use serde::Deserialize;
@@ -38,7 +40,7 @@ pub const MAX_N: i64 = 1 << 32;
 #[serde(deny_unknown_fields)]
 struct RawSpec {
     experiment: RawExperiment,
-    model: RawModel,
+    model: Spanned<model::RawModel>,
     sweep: RawSweep,
     #[serde(default)]
     algorithm: Vec<Spanned<RawAlgorithm>>,
@@ -72,23 +74,6 @@ struct RawExperiment {
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
-struct RawModel {
-    family: Spanned<String>,
-    #[serde(default)]
-    couplings: Option<Spanned<String>>,
-    /// ξ's coefficients c_p², keyed by the degree p (cube, sphere).
-    #[serde(default)]
-    xi: Option<Spanned<std::collections::BTreeMap<String, Spanned<f64>>>>,
-    /// Mean degree (erdos-renyi) or degree (regular).
-    #[serde(default)]
-    degree: Option<Spanned<toml::Value>>,
-    /// Lattice dimension D.
-    #[serde(default)]
-    dimension: Option<Spanned<i64>>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
 struct RawSweep {
     sizes: Spanned<Vec<Spanned<i64>>>,
     seeds: Spanned<toml::Value>,
@@ -103,7 +88,7 @@ struct RawSweep {
 type RawAlgorithm = BTreeMap<String, Spanned<toml::Value>>;
 
 /// Largest degree p of a mixture term.
-pub const MAX_P: u32 = 8;
+pub use crate::model::families::MAX_P;
 
 // ---------------------------------------------------------------- resolved spec
 
@@ -188,6 +173,22 @@ pub fn parse(text: &str, origin: &str) -> Result<Spec, SpecError> {
     validate(raw, &loc)
 }
 
+/// Resolves a `[model]` table given as its body (`family = "cube"`, `xi = { … }`, …), with the
+/// same checks as in a spec: for programs and tests that need a model without a whole spec.
+pub fn model_of(body: &str) -> Result<ModelSpec, SpecError> {
+    #[derive(Deserialize)]
+    struct Doc {
+        model: Spanned<model::RawModel>,
+    }
+    let text = format!("[model]\n{body}\n");
+    let loc = Locator {
+        origin: "[model]",
+        text: &text,
+    };
+    let doc: Doc = toml::from_str(&text).map_err(|e| serde_error(&loc, &e))?;
+    model::resolve(&doc.model, &loc)
+}
+
 /// Turns a deserialisation error into a located one, with a suggestion for unknown keys.
 fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
     let msg = e.message().trim().to_string();
@@ -248,141 +249,16 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     }
 
     // [model]
-    let fam = &raw.model.family;
-    let family = Family::parse(fam.get_ref()).ok_or_else(|| {
-        loc.at(
-            Some(fam.span()),
-            "model.family",
-            format!("unknown family `{}`", fam.get_ref()),
-            Some(choice_hint(fam.get_ref(), &Family::NAMES)),
-        )
-    })?;
-    let couplings = match &raw.model.couplings {
-        None => Couplings::Gaussian,
-        Some(c) => {
-            let law = Couplings::parse(c.get_ref()).ok_or_else(|| {
-                loc.at(
-                    Some(c.span()),
-                    "model.couplings",
-                    format!("unknown coupling law `{}`", c.get_ref()),
-                    Some(choice_hint(c.get_ref(), &Couplings::NAMES)),
-                )
-            })?;
-            if law == Couplings::Cut && !matches!(family, Family::ErdosRenyi | Family::Regular) {
-                return Err(loc.at(
-                    Some(c.span()),
-                    "model.couplings",
-                    format!("`cut` does not apply to the `{}` family", family.name()),
-                    Some("max-cut couplings are for the graph families `erdos-renyi` and `regular`; use `gaussian` or `pm1`".into()),
-                ));
-            }
-            law
-        }
-    };
-    let model = model_from(&raw.model, family, couplings, loc)?;
+    let model = model::resolve(&raw.model, loc)?;
 
     // [sweep]
-    let sizes_raw = &raw.sweep.sizes;
-    if sizes_raw.get_ref().is_empty() {
-        return Err(loc.at(
-            Some(sizes_raw.span()),
-            "sweep.sizes",
-            "no sizes given",
-            Some("list at least one size, e.g. sizes = [64, 128]".into()),
-        ));
-    }
-    let mut sizes = Vec::new();
-    for s in sizes_raw.get_ref() {
-        let mut n = *s.get_ref();
-        if family == Family::Lattice {
-            // Sizes of a lattice are side lengths L; the cell's n is L^D.
-            let l = n;
-            if l < 3 {
-                return Err(loc.at(
-                    Some(s.span()),
-                    "sweep.sizes",
-                    format!("side length L = {l} is too small for a periodic lattice"),
-                    Some("lattice sizes are side lengths L ≥ 3 (n = L^D sites)".into()),
-                ));
-            }
-            n = match l.checked_pow(model.dimension) {
-                Some(x) if x <= MAX_N => x,
-                _ => {
-                    return Err(loc.at(
-                        Some(s.span()),
-                        "sweep.sizes",
-                        format!(
-                            "L = {l} gives more than {MAX_N} sites in dimension {}",
-                            model.dimension
-                        ),
-                        Some("use a smaller side length".into()),
-                    ));
-                }
-            };
-        }
-        if n < 2 {
-            return Err(loc.at(
-                Some(s.span()),
-                "sweep.sizes",
-                format!("size {n} is too small"),
-                Some("every size n must be at least 2".into()),
-            ));
-        }
-        if n > MAX_N {
-            return Err(loc.at(
-                Some(s.span()),
-                "sweep.sizes",
-                format!("size {n} is larger than kiln supports ({MAX_N})"),
-                Some("sizes are numbers of spins; use a smaller n".into()),
-            ));
-        }
-        if sizes.iter().any(|(m, _)| *m == n as u64) {
-            return Err(loc.at(
-                Some(s.span()),
-                "sweep.sizes",
-                format!("size {n} is listed twice"),
-                Some("list each size once".into()),
-            ));
-        }
-        if let Some(why) = size_problem(&model, n as u64) {
-            return Err(loc.at(Some(s.span()), "sweep.sizes", why.0, Some(why.1)));
-        }
-        sizes.push((n as u64, s.span()));
-    }
+    let sizes = sweep::sizes(&raw.sweep.sizes, &model, loc)?;
     let seeds = seeds_from(&raw.sweep.seeds, loc)?;
     let replicas = match &raw.sweep.replicas {
         None => 1,
         Some(r) => positive(r, loc, "sweep.replicas", 64)? as u32,
     };
-    let mut epsilons = vec![0.0];
-    if let Some(eps) = &raw.sweep.epsilons {
-        for e in eps.get_ref() {
-            let x = *e.get_ref();
-            if !(0.0..1.0).contains(&x) {
-                return Err(loc.at(
-                    Some(e.span()),
-                    "sweep.epsilons",
-                    format!("ε = {x} is outside [0, 1)"),
-                    Some(
-                        "ε is one minus the correlation of the perturbed disorder: 0 ≤ ε < 1"
-                            .into(),
-                    ),
-                ));
-            }
-            let x = if x == 0.0 { 0.0 } else { x };
-            if x != 0.0 && epsilons.contains(&x) {
-                return Err(loc.at(
-                    Some(e.span()),
-                    "sweep.epsilons",
-                    format!("ε = {x} is listed twice"),
-                    Some("list each ε once".into()),
-                ));
-            }
-            if x != 0.0 {
-                epsilons.push(x);
-            }
-        }
-    }
+    let epsilons = sweep::epsilons(raw.sweep.epsilons.as_ref(), loc)?;
 
     // [[algorithm]]
     if raw.algorithm.is_empty() {
@@ -523,6 +399,7 @@ fn algorithm_entry(
         at: at.clone(),
         loc,
         values: &settings,
+        anchor: Some(kspan.clone()),
     })?;
     for (n, span) in sizes {
         if let Some((message, hint)) = algo.size_problem(*n) {
@@ -620,182 +497,6 @@ fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
         };
     }
     Ok(out)
-}
-
-/// The family-specific `[model]` keys: each required where it applies and refused elsewhere.
-fn model_from(
-    raw: &RawModel,
-    family: Family,
-    couplings: Couplings,
-    loc: &Locator,
-) -> Result<ModelSpec, SpecError> {
-    let mut m = ModelSpec::sk(couplings);
-    m.family = family;
-    let misplaced = |span: Range<usize>, key: &str, belongs: &str| {
-        loc.at(
-            Some(span),
-            format!("model.{key}"),
-            format!("`{key}` does not apply to the `{}` family", family.name()),
-            Some(format!("`{key}` belongs to {belongs}; remove it")),
-        )
-    };
-    let missing = |key: &str, example: &str| {
-        loc.at(
-            Some(raw.family.span()),
-            format!("model.{key}"),
-            format!("the `{}` family needs `{key}`", family.name()),
-            Some(format!("add e.g. {example} under [model]")),
-        )
-    };
-    // xi
-    match (&raw.xi, matches!(family, Family::Cube | Family::Sphere)) {
-        (Some(x), false) => {
-            return Err(misplaced(
-                x.span(),
-                "xi",
-                "the `cube` and `sphere` families",
-            ));
-        }
-        (None, true) => {
-            return Err(missing(
-                "xi",
-                "xi = { 2 = 0.5, 4 = 0.25 } (ξ(q) = Σ c_p² q^p)",
-            ));
-        }
-        (Some(x), true) => {
-            let mut terms = Vec::new();
-            for (k, v) in x.get_ref() {
-                let key = format!("model.xi.{k}");
-                let p: u32 = match k.parse() {
-                    Ok(p) if (2..=MAX_P).contains(&p) => p,
-                    _ => {
-                        return Err(loc.at(
-                            Some(v.span()),
-                            key,
-                            format!("`{k}` is not a degree p"),
-                            Some(format!("keys of xi are degrees p from 2 to {MAX_P}, values the weights c_p²")),
-                        ));
-                    }
-                };
-                let c = *v.get_ref();
-                if !(c >= 0.0 && c.is_finite()) {
-                    return Err(loc.at(
-                        Some(v.span()),
-                        key,
-                        format!("weight {c} is not a number ≥ 0"),
-                        Some("values of xi are the weights c_p² ≥ 0 of ξ(q) = Σ c_p² q^p".into()),
-                    ));
-                }
-                if c > 0.0 {
-                    terms.push((p, c));
-                }
-            }
-            if terms.is_empty() {
-                return Err(loc.at(
-                    Some(x.span()),
-                    "model.xi",
-                    "every weight of xi is zero",
-                    Some("give at least one positive c_p², e.g. xi = { 3 = 1.0 }".into()),
-                ));
-            }
-            terms.sort_by_key(|t| t.0);
-            m.xi = crate::theory::Mixture { terms };
-        }
-        (None, false) => {}
-    }
-    // degree
-    match (&raw.degree, family) {
-        (Some(d), Family::ErdosRenyi | Family::Regular) => {
-            let key = "model.degree";
-            let x = match d.get_ref() {
-                toml::Value::Integer(i) => *i as f64,
-                toml::Value::Float(f) if family == Family::ErdosRenyi => *f,
-                _ => {
-                    return Err(loc.at(
-                        Some(d.span()),
-                        key,
-                        "degree must be a number".to_string(),
-                        Some(if family == Family::Regular {
-                            "a whole degree d ≥ 1, e.g. degree = 3".into()
-                        } else {
-                            "a mean degree d > 0, e.g. degree = 5".into()
-                        }),
-                    ));
-                }
-            };
-            if !(x > 0.0 && x.is_finite() && x <= 1e6) || (family == Family::Regular && x < 1.0) {
-                return Err(loc.at(
-                    Some(d.span()),
-                    key,
-                    format!("degree {x} is out of range"),
-                    Some("a degree between 1 and 10⁶".into()),
-                ));
-            }
-            m.degree = x;
-        }
-        (Some(d), _) => {
-            return Err(misplaced(
-                d.span(),
-                "degree",
-                "the `erdos-renyi` and `regular` families",
-            ));
-        }
-        (None, Family::ErdosRenyi) => return Err(missing("degree", "degree = 5 (mean degree d)")),
-        (None, Family::Regular) => return Err(missing("degree", "degree = 3")),
-        (None, _) => {}
-    }
-    // dimension
-    match (&raw.dimension, family) {
-        (Some(d), Family::Lattice) => {
-            let x = *d.get_ref();
-            if !(1..=4).contains(&x) {
-                return Err(loc.at(
-                    Some(d.span()),
-                    "model.dimension",
-                    format!("dimension {x} is not supported"),
-                    Some("lattices of dimension D = 1 to 4 (2 and 3 are the usual glasses)".into()),
-                ));
-            }
-            m.dimension = x as u32;
-            m.degree = 2.0 * x as f64;
-        }
-        (Some(d), _) => return Err(misplaced(d.span(), "dimension", "the `lattice` family")),
-        (None, Family::Lattice) => return Err(missing("dimension", "dimension = 2")),
-        (None, _) => {}
-    }
-    Ok(m)
-}
-
-/// Why size n does not fit the model, if it does not: (message, hint).
-fn size_problem(m: &ModelSpec, n: u64) -> Option<(String, String)> {
-    match m.family {
-        Family::Cube | Family::Sphere => {
-            let p = m.xi.terms.iter().map(|t| t.0).max().unwrap_or(2) as u64;
-            (n < p).then(|| {
-                (
-                    format!("n = {n} is smaller than the largest degree p = {p}"),
-                    "a p-spin term needs n ≥ p".into(),
-                )
-            })
-        }
-        Family::Regular => {
-            let d = m.degree as u64;
-            if d >= n {
-                Some((
-                    format!("no simple {d}-regular graph on n = {n} vertices"),
-                    "a d-regular graph needs n > d".into(),
-                ))
-            } else if (n * d) % 2 == 1 {
-                Some((
-                    format!("n·d = {n}·{d} is odd: no {d}-regular graph on {n} vertices"),
-                    "use an even n (or an even degree)".into(),
-                ))
-            } else {
-                None
-            }
-        }
-        _ => None,
-    }
 }
 
 fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64, SpecError> {

@@ -21,6 +21,8 @@ pub struct Settings<'a> {
     pub(crate) at: String,
     pub(crate) loc: &'a Locator<'a>,
     pub(crate) values: &'a BTreeMap<String, Spanned<Value>>,
+    /// Where a missing key is reported (the table's `kind` or `family`).
+    pub(crate) anchor: Option<Range<usize>>,
 }
 
 impl Settings<'_> {
@@ -31,6 +33,42 @@ impl Settings<'_> {
 
     fn get(&self, key: &str) -> Option<&Spanned<Value>> {
         self.values.get(key)
+    }
+
+    /// The raw value of a key, for a kind or family that reads a structured value itself.
+    pub fn value(&self, key: &str) -> Option<&Value> {
+        self.get(key).map(|v| v.get_ref())
+    }
+
+    /// The error for a required key that is absent, reported where the table names its kind.
+    pub fn missing(
+        &self,
+        key: &str,
+        message: impl Into<String>,
+        hint: impl Into<String>,
+    ) -> SpecError {
+        self.loc.at(
+            self.anchor.clone(),
+            format!("{}.{key}", self.at),
+            message,
+            Some(hint.into()),
+        )
+    }
+
+    /// A located error about the entry `sub` of the table-valued `key`.
+    pub fn fail_sub(
+        &self,
+        key: &str,
+        sub: &str,
+        message: impl Into<String>,
+        hint: impl Into<String>,
+    ) -> SpecError {
+        self.loc.at(
+            self.span(key),
+            format!("{}.{key}.{sub}", self.at),
+            message,
+            Some(hint.into()),
+        )
     }
 
     /// A located error about `key` (at its value when it is present).

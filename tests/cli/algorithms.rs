@@ -138,9 +138,7 @@ fn lowrank_relaxation_below_the_spectral_bound_and_towards_one() {
 #[test]
 fn hessian_ascent_on_the_sphere() {
     use kiln::algo::hessian;
-    use kiln::model::Family;
-    let mut m2 = ModelSpec::sk(Couplings::Gaussian);
-    m2.family = Family::Sphere;
+    let m2 = ModelSpec::sphere(kiln::theory::Mixture::sk(), Couplings::Gaussian);
     let inst = m2.sample(150, &id("h2", 0), 0.0);
     let one = AlgoSpec::new(hessian::Params {
         steps: 1,
@@ -159,10 +157,7 @@ fn hessian_ascent_on_the_sphere() {
         .unwrap();
     assert!((inst.value(&x) - inst.value(&sp)).abs() / 150.0 < 1e-8);
 
-    let mut m3 = m2.clone();
-    m3.xi = kiln::theory::Mixture {
-        terms: vec![(3, 1.0)],
-    };
+    let m3 = ModelSpec::sphere(kiln::theory::Mixture::pure(3), Couplings::Gaussian);
     // Pure spherical 3-spin: every output below the ground state 1.657 (Crisanti & Sommers,
     // Z. Phys. B 87, 341 (1992)); the means at n = 100, 200, 400 (4 instances each),
     // extrapolated by weighted least squares in n^{-2/3} (the finite-size exponent of
@@ -361,13 +356,8 @@ fn spectral_on_sk() {
 #[test]
 fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
     use kiln::algo::hessian;
-    use kiln::model::Family;
     let cube = ModelSpec::sk(Couplings::Pm1);
-    let mut sphere = ModelSpec::sk(Couplings::Gaussian);
-    sphere.family = Family::Sphere;
-    sphere.xi = kiln::theory::Mixture {
-        terms: vec![(3, 1.0)],
-    };
+    let sphere = ModelSpec::sphere(kiln::theory::Mixture::pure(3), Couplings::Gaussian);
     let cases: Vec<(ModelSpec, AlgoSpec)> = vec![
         (cube.clone(), AlgoSpec::new(descent::Params::default())),
         (cube.clone(), AlgoSpec::new(anneal::Params::default())),
@@ -380,15 +370,13 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         (sphere.clone(), AlgoSpec::new(hessian::Params::default())),
         (cube.clone(), AlgoSpec::new(amp::Params::default())),
         (
-            {
-                // AMP's Onsager term with ξ'' on a mixture (p = 2 and 3 terms).
-                let mut m = cube.clone();
-                m.family = Family::Cube;
-                m.xi = kiln::theory::Mixture {
+            // AMP's Onsager term with ξ'' on a mixture (p = 2 and 3 terms).
+            ModelSpec::cube(
+                kiln::theory::Mixture {
                     terms: vec![(2, 0.5), (3, 0.25)],
-                };
-                m
-            },
+                },
+                Couplings::Pm1,
+            ),
             AlgoSpec::new(amp::Params::default()),
         ),
         (cube.clone(), AlgoSpec::new(iamp::Params::default())),
@@ -560,11 +548,12 @@ fn iamp_approaches_the_parisi_value() {
     // beat descent by 4 SE of the paired difference (descent scatters by 0.03 per instance) and
     // reach 0.9 of the Parisi value (measured 0.901–0.911; finite-size loss at this n is
     // several percent, cf. annealing 0.919).
-    let mut mix = ModelSpec::sk(Couplings::Gaussian);
-    mix.family = kiln::model::Family::Cube;
-    mix.xi = kiln::theory::Mixture {
-        terms: vec![(2, 0.5), (3, 0.25)],
-    };
+    let mix = ModelSpec::cube(
+        kiln::theory::Mixture {
+            terms: vec![(2, 0.5), (3, 0.25)],
+        },
+        Couplings::Gaussian,
+    );
     let n = 400;
     let (mut e, mut dsc) = (Vec::new(), Vec::new());
     for t in 0..10 {

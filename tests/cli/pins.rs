@@ -12,9 +12,8 @@
 
 use crate::util::id;
 use kiln::algo::{AlgoSpec, Output};
-use kiln::model::{Couplings, Family, ModelSpec};
+use kiln::model::{Couplings, ModelSpec};
 use kiln::rng::{Purpose, stream};
-use kiln::theory::Mixture;
 use sha2::{Digest, Sha256};
 
 /// (kind, revision, family, n, energy per spin, output digest).
@@ -112,23 +111,20 @@ const ALGORITHM_PINS: &[Pin] = &[
     ),
 ];
 
+/// The model of a pin: its family with the parameters of the pin table, through the spec
+/// parser (so the pins also cover how `[model]` is read).
 fn model(family: &str, couplings: Couplings) -> ModelSpec {
-    let mut m = ModelSpec::sk(couplings);
-    m.family = Family::parse(family).expect("a family");
-    match m.family {
-        Family::Cube | Family::Sphere => {
-            m.xi = Mixture {
-                terms: vec![(2, 0.5), (3, 0.25)],
-            }
-        }
-        Family::ErdosRenyi | Family::Regular => m.degree = 3.0,
-        Family::Lattice => {
-            m.dimension = 2;
-            m.degree = 4.0;
-        }
-        Family::Sk => {}
-    }
-    m
+    let params = match family {
+        "cube" | "sphere" => "xi = { 2 = 0.5, 3 = 0.25 }",
+        "erdos-renyi" | "regular" => "degree = 3",
+        "lattice" => "dimension = 2",
+        _ => "",
+    };
+    kiln::spec::model_of(&format!(
+        "family = \"{family}\"\ncouplings = \"{}\"\n{params}",
+        couplings.name()
+    ))
+    .expect("a model")
 }
 
 fn digest(out: &Output) -> String {
@@ -299,11 +295,11 @@ const COPY_PINS: &[CopyPin] = &[
 /// Every family's sample and correlated copy give their pinned energies.
 #[test]
 fn every_family_copy_gives_its_pinned_energies() {
-    for f in Family::ALL {
+    for f in kiln::model::builtin() {
         assert!(
-            COPY_PINS.iter().any(|p| p.0 == f.name()),
+            COPY_PINS.iter().any(|p| p.0 == f.name),
             "family `{}` has no pinned correlated copy: add one to COPY_PINS",
-            f.name()
+            f.name
         );
     }
     let got: Vec<String> = COPY_PINS

@@ -32,7 +32,7 @@ impl Algorithm for Flipper {
         n as f64
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (!m.family.is_cube()).then_some("it sets ±1 spins")
+        (!m.family.spins()).then_some("it sets ±1 spins")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
         let n = inst.n();

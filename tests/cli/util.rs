@@ -108,7 +108,7 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
     let d = match inst {
         Instance::Sphere(m) | Instance::Mixed(m) => m.dense().expect("a p = 2 term"),
         Instance::Dense(d) => d,
-        Instance::Sparse(_) => panic!("reference_top takes dense instances"),
+        Instance::Sparse(_) | Instance::Spins(_) => panic!("reference_top takes dense instances"),
     };
     let n = d.n();
     let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);

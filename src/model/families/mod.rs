@@ -1,0 +1,162 @@
+//! The families kiln ships, one file each; the list that gathers them is
+//! [`crate::model::builtin`]. Helpers shared by several families live here: reading ξ, and the
+//! instance size and cost of a mixture.
+
+pub mod cube;
+pub mod erdos_renyi;
+pub mod lattice;
+pub mod regular;
+pub mod sk;
+pub mod sphere;
+
+use crate::algo::Key;
+use crate::cell::Canon;
+use crate::model::{Couplings, Instance, sk as dense, sparse, tensor};
+use crate::spec::{Settings, SpecError};
+use crate::theory::Mixture;
+
+/// Largest degree p of a mixture term.
+pub const MAX_P: u32 = 8;
+
+/// The `xi` key of the mixture families.
+pub(crate) const XI: Key = Key {
+    name: "xi",
+    ty: "table `{ p = c_p², … }`, 2 ≤ p ≤ 8, c_p² ≥ 0",
+    default: "required",
+    doc: "the weights c_p² of ξ(q) = Σ c_p² q^p, e.g. `{ 2 = 0.5, 3 = 0.25 }`",
+};
+
+/// Reads `xi = { p = c_p², … }`: degrees 2..=MAX_P, weights finite and ≥ 0, zero weights
+/// dropped, at least one left; terms sorted by p.
+pub(crate) fn read_xi(s: &Settings<'_>, family: &str) -> Result<Mixture, SpecError> {
+    let Some(v) = s.value("xi") else {
+        return Err(s.missing(
+            "xi",
+            format!("the `{family}` family needs `xi`"),
+            "add e.g. xi = { 2 = 0.5, 4 = 0.25 } (ξ(q) = Σ c_p² q^p) under [model]",
+        ));
+    };
+    let Some(table) = v.as_table() else {
+        return Err(s.fail(
+            "xi",
+            format!("invalid type: {} `{v}`, expected a table", v.type_str()),
+            "e.g. xi = { 2 = 0.5, 3 = 0.25 }",
+        ));
+    };
+    let mut terms = Vec::new();
+    for (k, w) in table {
+        let p: u32 = match k.parse() {
+            Ok(p) if (2..=MAX_P).contains(&p) => p,
+            _ => {
+                return Err(s.fail_sub(
+                    "xi",
+                    k,
+                    format!("`{k}` is not a degree p"),
+                    format!("keys of xi are degrees p from 2 to {MAX_P}, values the weights c_p²"),
+                ));
+            }
+        };
+        let c = match w {
+            toml::Value::Float(x) => *x,
+            toml::Value::Integer(x) => *x as f64,
+            _ => f64::NAN,
+        };
+        if !(c >= 0.0 && c.is_finite()) {
+            return Err(s.fail_sub(
+                "xi",
+                k,
+                format!("weight {w} is not a number ≥ 0"),
+                "values of xi are the weights c_p² ≥ 0 of ξ(q) = Σ c_p² q^p".to_string(),
+            ));
+        }
+        if c > 0.0 {
+            terms.push((p, c));
+        }
+    }
+    if terms.is_empty() {
+        return Err(s.fail(
+            "xi",
+            "every weight of xi is zero",
+            "give at least one positive c_p², e.g. xi = { 3 = 1.0 }",
+        ));
+    }
+    terms.sort_by_key(|t| t.0);
+    Ok(Mixture { terms })
+}
+
+/// Revision of the mixture sampler (cube and sphere share their couplings).
+pub const MIXED_REVISION: u32 = 1;
+
+/// The disorder identity of a mixture: SK's when ξ = q²/2 (so `sk` and `cube` with
+/// `xi = { 2 = 0.5 }` give the same numbers bit for bit), else the shared "mixed" sampler's.
+pub(crate) fn mixed_disorder(xi: &Mixture, couplings: Couplings) -> Canon {
+    if *xi == Mixture::sk() {
+        crate::model::ModelSpec::sk(couplings).disorder_canon()
+    } else {
+        Canon::map()
+            .with("family", "mixed")
+            .with("couplings", couplings.name())
+            .with("revision", MIXED_REVISION)
+            .with("xi", xi.canon())
+    }
+}
+
+/// Peak bytes of a mixture instance: the dense p = 2 matrix and a tensor per p ≥ 3.
+pub(crate) fn mixed_bytes(xi: &Mixture, n: u64) -> u128 {
+    let mut b: u128 = 64 * n as u128;
+    for &(p, _) in &xi.terms {
+        b = b.saturating_add(if p == 2 {
+            dense::instance_bytes(n)
+        } else {
+            tensor::tuples(n, p).saturating_mul(8)
+        });
+    }
+    b
+}
+
+/// Entries a flip touches in a mixture instance.
+pub(crate) fn mixed_flip_cost(xi: &Mixture, n: u64) -> f64 {
+    xi.terms
+        .iter()
+        .map(|&(p, _)| tensor::tuples(n.saturating_sub(1), p - 1) as f64)
+        .sum::<f64>()
+        .max(1.0)
+}
+
+/// Why n is too small for the mixture's largest degree.
+pub(crate) fn mixed_size_problem(xi: &Mixture, n: u64) -> Option<(String, String)> {
+    let p = xi.terms.iter().map(|t| t.0).max().unwrap_or(2) as u64;
+    (n < p).then(|| {
+        (
+            format!("n = {n} is smaller than the largest degree p = {p}"),
+            "a p-spin term needs n ≥ p".into(),
+        )
+    })
+}
+
+/// The `degree` key of the graph families.
+pub(crate) const fn degree_key(doc: &'static str, ty: &'static str) -> Key {
+    Key {
+        name: "degree",
+        ty,
+        default: "required",
+        doc,
+    }
+}
+
+/// The fraction of edges cut, for max-cut couplings on a graph: H = −(m − 2·cut) for
+/// all-(−1) couplings, so cut = (m + H)/2.
+pub(crate) fn cut_fraction(c: Couplings, inst: &Instance, energy: f64) -> Option<f64> {
+    match (c, inst.edges()) {
+        (Couplings::Cut, Some(m)) if m > 0 => {
+            let h = energy * inst.n() as f64;
+            Some(((m as f64 + h) / 2.0).round() / m as f64)
+        }
+        _ => None,
+    }
+}
+
+/// Peak bytes of a graph with about m edges.
+pub(crate) fn graph_bytes(n: u64, m: f64) -> u128 {
+    sparse::instance_bytes(n, m)
+}

@@ -1,0 +1,138 @@
+//! `[model]`: the family from the registry, its coupling law, and the family's own keys, each
+//! read by the family's parser (in its file under `model/families/`).
+
+use std::collections::BTreeMap;
+use std::ops::Range;
+
+use toml::Spanned;
+
+use super::error::{Locator, choice_hint, closest};
+use super::{Settings, SpecError};
+use crate::model::{Couplings, ModelSpec};
+
+/// The `[model]` table, kept as parsed values with their positions.
+pub(super) type RawModel = BTreeMap<String, Spanned<toml::Value>>;
+
+/// A string-valued key of the table, with its span.
+fn text(
+    raw: &RawModel,
+    key: &str,
+    loc: &Locator,
+) -> Result<Option<(String, Range<usize>)>, SpecError> {
+    match raw.get(key) {
+        None => Ok(None),
+        Some(v) => match v.get_ref() {
+            toml::Value::String(s) => Ok(Some((s.clone(), v.span()))),
+            other => Err(loc.at(
+                Some(v.span()),
+                format!("model.{key}"),
+                format!(
+                    "invalid type: {} `{other}`, expected a string",
+                    other.type_str()
+                ),
+                Some(format!("e.g. {key} = \"sk\"")),
+            )),
+        },
+    }
+}
+
+/// Resolves `[model]`.
+pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpec, SpecError> {
+    let table = raw.get_ref();
+    let names = crate::model::family_names();
+    let Some((name, fspan)) = text(table, "family", loc)? else {
+        return Err(loc.at(
+            Some(raw.span()),
+            "model.family",
+            "missing key `family`",
+            Some(format!("name the family: {}", super::quoted(&names))),
+        ));
+    };
+    let Some(entry) = crate::model::find(&name) else {
+        return Err(loc.at(
+            Some(fspan),
+            "model.family",
+            format!("unknown family `{name}`"),
+            Some(choice_hint(&name, &names)),
+        ));
+    };
+    let couplings = match text(table, "couplings", loc)? {
+        None => Couplings::Gaussian,
+        Some((c, span)) => {
+            let law = Couplings::parse(&c).ok_or_else(|| {
+                loc.at(
+                    Some(span.clone()),
+                    "model.couplings",
+                    format!("unknown coupling law `{c}`"),
+                    Some(choice_hint(&c, &Couplings::NAMES)),
+                )
+            })?;
+            if !entry.couplings.contains(&law) {
+                let takes: Vec<&str> = entry.couplings.iter().map(|c| c.name()).collect();
+                let graphs: Vec<&str> = crate::model::families()
+                    .iter()
+                    .filter(|f| f.couplings.contains(&law))
+                    .map(|f| f.name)
+                    .collect();
+                return Err(loc.at(
+                    Some(span),
+                    "model.couplings",
+                    format!("`{c}` does not apply to the `{name}` family"),
+                    Some(format!(
+                        "`{c}` couplings are for {}; `{name}` takes {}",
+                        super::quoted(&graphs),
+                        super::quoted(&takes)
+                    )),
+                ));
+            }
+            law
+        }
+    };
+    let mut settings = BTreeMap::new();
+    for (key, v) in table {
+        if key == "family" || key == "couplings" {
+            continue;
+        }
+        if !entry.keys.iter().any(|k| k.name == key) {
+            let owners: Vec<&str> = crate::model::families()
+                .iter()
+                .filter(|f| f.keys.iter().any(|k| k.name == key))
+                .map(|f| f.name)
+                .collect();
+            let err = if owners.is_empty() {
+                let mut known = vec!["family", "couplings"];
+                for f in crate::model::families() {
+                    known.extend(f.keys.iter().map(|k| k.name));
+                }
+                loc.at(
+                    Some(v.span()),
+                    format!("model.{key}"),
+                    format!("unknown key `{key}`"),
+                    Some(match closest(key, known) {
+                        Some(c) => format!("did you mean `{c}`?"),
+                        None => "see the spec reference in README.md".into(),
+                    }),
+                )
+            } else {
+                loc.at(
+                    Some(v.span()),
+                    format!("model.{key}"),
+                    format!("`{key}` does not apply to the `{name}` family"),
+                    Some(format!(
+                        "`{key}` belongs to {}; remove it",
+                        super::quoted(&owners)
+                    )),
+                )
+            };
+            return Err(err);
+        }
+        settings.insert(key.clone(), v.clone());
+    }
+    let family = (entry.parse)(&Settings {
+        at: "model".into(),
+        loc,
+        values: &settings,
+        anchor: Some(fspan),
+    })?;
+    Ok(ModelSpec { family, couplings })
+}

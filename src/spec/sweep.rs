@@ -1,0 +1,95 @@
+//! `[sweep]`: sizes (read through the family, which knows what a size means for it) and ε
+//! levels. Every check is linear in the length of the list.
+
+use std::collections::HashSet;
+use std::ops::Range;
+
+use toml::Spanned;
+
+use super::error::Locator;
+use super::{MAX_N, SpecError};
+use crate::model::ModelSpec;
+
+/// The sizes n of the sweep, each with its place in the file.
+pub(super) fn sizes(
+    raw: &Spanned<Vec<Spanned<i64>>>,
+    model: &ModelSpec,
+    loc: &Locator,
+) -> Result<Vec<(u64, Range<usize>)>, SpecError> {
+    if raw.get_ref().is_empty() {
+        return Err(loc.at(
+            Some(raw.span()),
+            "sweep.sizes",
+            "no sizes given",
+            Some("list at least one size, e.g. sizes = [64, 128]".into()),
+        ));
+    }
+    let mut sizes = Vec::with_capacity(raw.get_ref().len());
+    let mut seen = HashSet::with_capacity(raw.get_ref().len());
+    for s in raw.get_ref() {
+        let refuse = |message: String, hint: String| {
+            loc.at(Some(s.span()), "sweep.sizes", message, Some(hint))
+        };
+        let written = *s.get_ref();
+        if written < 2 {
+            return Err(refuse(
+                format!("size {written} is too small"),
+                "every size n must be at least 2".into(),
+            ));
+        }
+        if written > MAX_N {
+            return Err(refuse(
+                format!("size {written} is larger than kiln supports ({MAX_N})"),
+                "sizes are numbers of spins; use a smaller n".into(),
+            ));
+        }
+        let n = model
+            .family
+            .size(written as u64)
+            .map_err(|(m, h)| refuse(m, h))?;
+        if !seen.insert(n) {
+            return Err(refuse(
+                format!("size {n} is listed twice"),
+                "list each size once".into(),
+            ));
+        }
+        if let Some((m, h)) = model.family.size_problem(n) {
+            return Err(refuse(m, h));
+        }
+        sizes.push((n, s.span()));
+    }
+    Ok(sizes)
+}
+
+/// The ε levels: always 0 first (the reference run), then each listed level once.
+pub(super) fn epsilons(
+    raw: Option<&Spanned<Vec<Spanned<f64>>>>,
+    loc: &Locator,
+) -> Result<Vec<f64>, SpecError> {
+    let mut epsilons = vec![0.0];
+    let mut seen = HashSet::new();
+    for e in raw.map_or(&[][..], |e| e.get_ref()) {
+        let x = *e.get_ref();
+        if !(0.0..1.0).contains(&x) {
+            return Err(loc.at(
+                Some(e.span()),
+                "sweep.epsilons",
+                format!("ε = {x} is outside [0, 1)"),
+                Some("ε is one minus the correlation of the perturbed disorder: 0 ≤ ε < 1".into()),
+            ));
+        }
+        if x == 0.0 {
+            continue;
+        }
+        if !seen.insert(x.to_bits()) {
+            return Err(loc.at(
+                Some(e.span()),
+                "sweep.epsilons",
+                format!("ε = {x} is listed twice"),
+                Some("list each ε once".into()),
+            ));
+        }
+        epsilons.push(x);
+    }
+    Ok(epsilons)
+}
