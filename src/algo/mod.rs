@@ -315,27 +315,6 @@ macro_rules! on_cube {
 }
 pub(crate) use on_cube;
 
-/// The kinds as a terminal listing: each name with its summary, then one line per key with
-/// its default.
-pub fn listing(kinds: &[Kind]) -> String {
-    let mut out = String::new();
-    for k in kinds {
-        out.push_str(&format!("{}\n    {}\n", k.name, k.summary));
-        let width = k.keys.iter().map(|x| x.name.len()).max().unwrap_or(0);
-        for key in k.keys {
-            out.push_str(&format!(
-                "    · {:width$}  = {}  ({}) {}\n",
-                key.name,
-                key.default.replace('`', ""),
-                key.ty.replace('`', ""),
-                key.doc
-            ));
-        }
-        out.push('\n');
-    }
-    out
-}
-
 /// The error for running a kind on an instance it does not support (the spec refuses these
 /// before anything runs; this is the guard behind it).
 pub(crate) fn not_for(kind: &'static str, why: &'static str) -> AlgoError {

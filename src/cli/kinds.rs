@@ -1,4 +1,4 @@
-//! `kiln kinds`: the algorithm kinds of the registry, with their settings and defaults.
+//! `kiln kinds`: the families and algorithm kinds of the registries, with their keys and defaults.
 //! Printed from the same list the spec parser reads, so it cannot drift from what is accepted.
 
 use clap::Args;
@@ -12,11 +12,11 @@ pub struct KindsArgs {
 }
 
 pub fn run(a: &KindsArgs) -> anyhow::Result<ExitCode> {
-    let kinds = crate::algo::kinds();
+    let (families, kinds) = (crate::model::families(), crate::algo::kinds());
     if a.markdown {
-        super::out(&crate::algo::reference(&kinds));
+        super::out(&crate::spec::reference(&families, &kinds));
     } else {
-        super::out(&crate::algo::listing(&kinds));
+        super::out(&crate::spec::listing(&families, &kinds));
     }
     Ok(ExitCode::SUCCESS)
 }

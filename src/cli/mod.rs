@@ -50,7 +50,7 @@ enum Command {
     Plot(plot::PlotArgs),
     /// Theory values for the model: Parisi functional (RS, k-step RSB), sphere, algorithmic.
     Theory(theory::TheoryArgs),
-    /// List the algorithm kinds with their settings and defaults (the spec reference).
+    /// List the model families and algorithm kinds with their keys and defaults.
     Kinds(kinds::KindsArgs),
 }
 

@@ -121,6 +121,10 @@ impl super::SpinModel for Mixed {
     fn n(&self) -> usize {
         self.n
     }
+    /// Even when every term has even p.
+    fn symmetric(&self) -> bool {
+        self.xi.terms.iter().all(|&(p, _)| p % 2 == 0)
+    }
     fn fields(&self, s: &[i8], h: &mut [f64]) {
         match &self.dense {
             Some(d) => d.fields(s, h),

@@ -373,11 +373,20 @@ pub trait SpinModel: Sync {
     fn as_graph(&self) -> Option<&sparse::Graph> {
         None
     }
+    /// Whether H(−σ) = H(σ) for every σ (no field, no odd-p term). Exhaustive search uses it
+    /// to enumerate half the states; the default, false, is always safe.
+    fn symmetric(&self) -> bool {
+        false
+    }
 }
 
 impl SpinModel for sparse::Graph {
     fn n(&self) -> usize {
         sparse::Graph::n(self)
+    }
+    /// Pairwise couplings, no field.
+    fn symmetric(&self) -> bool {
+        true
     }
     fn integer_gain_bound(&self) -> Option<usize> {
         sparse::Graph::integer_gain_bound(self)
@@ -430,6 +439,9 @@ impl SpinModel for Box<dyn SpinModel + Send> {
     }
     fn as_graph(&self) -> Option<&sparse::Graph> {
         (**self).as_graph()
+    }
+    fn symmetric(&self) -> bool {
+        (**self).symmetric()
     }
 }
 

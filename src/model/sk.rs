@@ -193,6 +193,10 @@ impl super::SpinModel for Dense {
     fn n(&self) -> usize {
         self.n
     }
+    /// A quadratic form: H(−σ) = H(σ).
+    fn symmetric(&self) -> bool {
+        true
+    }
     fn fields(&self, s: &[i8], h: &mut [f64]) {
         Dense::fields(self, s, h)
     }

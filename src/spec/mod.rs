@@ -7,6 +7,7 @@
 pub mod error;
 mod model;
 pub mod plan;
+mod reference;
 pub mod settings;
 pub mod shard;
 mod sweep;
@@ -15,6 +16,7 @@ use crate::algo::AlgoSpec;
 use crate::model::ModelSpec;
 pub use error::SpecError;
 use error::{Locator, choice_hint, closest};
+pub use reference::{listing, reference};
 use serde::Deserialize;
 pub use settings::Settings;
 use std::collections::BTreeMap;

@@ -46,7 +46,7 @@ const ALGORITHM_PINS: &[Pin] = &[
     ),
     (
         "exhaustive",
-        1,
+        2,
         "sk",
         16,
         "0.569961689463128",

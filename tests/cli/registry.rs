@@ -1,6 +1,6 @@
-//! The algorithm registry: a kind added from outside the crate through the public registration
-//! alone is accepted by the spec parser, runs end to end, and shows in the reference and the
-//! listing; the README's reference is the registry's text.
+//! The registries: an algorithm kind and a model family added from outside the crate through
+//! the public registration alone are accepted by the spec parser, run end to end, and show in
+//! the reference and the listing; the README's reference is the registries' text.
 
 use crate::util::Work;
 use kiln::algo::{AlgoError, AlgoSpec, Algorithm, Info, Key, Kind, Output};
@@ -135,9 +135,9 @@ fn a_kind_registered_from_outside_runs_end_to_end() {
     // 2 sizes × 3 seeds × 2 ε levels.
     assert_eq!(toy, 12, "{kinds:?}");
 
-    let all = kiln::algo::kinds();
-    assert!(kiln::algo::reference(&all).contains("#### `kind = \"toy-flipper\"`"));
-    assert!(kiln::algo::listing(&all).contains("toy-flipper\n    A test kind"));
+    let (fams, all) = (kiln::model::families(), kiln::algo::kinds());
+    assert!(kiln::spec::reference(&fams, &all).contains("#### `kind = \"toy-flipper\"`"));
+    assert!(kiln::spec::listing(&fams, &all).contains("toy-flipper"));
     assert!(kiln::algo::kinds_for(&parsed.model).contains(&"toy-flipper"));
 }
 
@@ -147,13 +147,13 @@ fn a_kind_registered_from_outside_runs_end_to_end() {
 fn readme_reference_is_the_registry() {
     let readme = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md"))
         .expect("README.md");
-    let begin = "<!-- kinds:begin -->\n";
+    let begin = "<!-- reference:begin -->\n";
     let start = readme.find(begin).expect("begin marker") + begin.len();
-    let end = readme.find("<!-- kinds:end -->").expect("end marker");
+    let end = readme.find("<!-- reference:end -->").expect("end marker");
     assert_eq!(
         &readme[start..end],
-        kiln::algo::reference(kiln::algo::builtin()),
-        "README.md's kinds section is stale: paste `kiln kinds --markdown` between the markers"
+        kiln::spec::reference(kiln::model::builtin(), kiln::algo::builtin()),
+        "README.md's reference section is stale: paste `kiln kinds --markdown` between the markers"
     );
 }
 
@@ -181,4 +181,202 @@ fn every_declared_key_is_read() {
             );
         }
     }
+}
+
+/// A toy family: the Curie–Weiss model in a random field, H(σ) = (J/2n)(Σσ)² + Σ h_i σ_i with
+/// h_i standard normal from the instance streams; its correlated copy moves each field to
+/// (1 − ε)h_i + sqrt(1 − (1 − ε)²) g_i, g_i from the perturbation streams.
+#[derive(Debug)]
+struct FieldMagnet {
+    coupling: f64,
+}
+
+struct FieldMagnetInstance {
+    j: f64,
+    h: Vec<f64>,
+}
+
+impl kiln::model::SpinModel for FieldMagnetInstance {
+    fn n(&self) -> usize {
+        self.h.len()
+    }
+    fn fields(&self, s: &[i8], f: &mut [f64]) {
+        let n = s.len() as f64;
+        let m: f64 = s.iter().map(|&x| x as f64).sum();
+        for i in 0..s.len() {
+            f[i] = self.h[i] + self.j / n * (m - s[i] as f64);
+        }
+    }
+    fn energy(&self, s: &[i8]) -> f64 {
+        let n = s.len() as f64;
+        let m: f64 = s.iter().map(|&x| x as f64).sum();
+        self.j / (2.0 * n) * (m * m - n)
+            + s.iter()
+                .zip(&self.h)
+                .map(|(&x, h)| x as f64 * h)
+                .sum::<f64>()
+    }
+    fn flip(&self, s: &mut [i8], f: &mut [f64], k: usize) {
+        let n = s.len() as f64;
+        let change = -2.0 * s[k] as f64 * self.j / n;
+        s[k] = -s[k];
+        for (i, fi) in f.iter_mut().enumerate() {
+            if i != k {
+                *fi += change;
+            }
+        }
+    }
+}
+
+impl kiln::model::Family for FieldMagnet {
+    fn name(&self) -> &'static str {
+        TOY_FAMILY.name
+    }
+    fn revision(&self) -> u32 {
+        1
+    }
+    fn params_canon(&self, c: Canon) -> Canon {
+        c.with("coupling", self.coupling)
+    }
+    fn spins(&self) -> bool {
+        true
+    }
+    fn instance_bytes(&self, n: u64) -> u128 {
+        16 * n as u128
+    }
+    fn flip_cost(&self, n: u64) -> f64 {
+        n as f64
+    }
+    fn sample(
+        &self,
+        n: usize,
+        _couplings: kiln::model::Couplings,
+        instance: &kiln::rng::Id,
+        epsilon: f64,
+    ) -> Instance {
+        use kiln::rng::{Purpose, stream};
+        let mut h: Vec<f64> = (0..n)
+            .map(|i| stream(instance, Purpose::Couplings, i as u64).normal())
+            .collect();
+        if epsilon > 0.0 {
+            let fresh = (1.0 - (1.0 - epsilon) * (1.0 - epsilon)).sqrt();
+            for (i, x) in h.iter_mut().enumerate() {
+                *x = (1.0 - epsilon) * *x
+                    + fresh * stream(instance, Purpose::Perturbation, i as u64).normal();
+            }
+        }
+        Instance::Spins(Box::new(FieldMagnetInstance {
+            j: self.coupling,
+            h,
+        }))
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
+}
+
+const TOY_FAMILY: kiln::model::FamilyEntry = kiln::model::FamilyEntry {
+    name: "toy-field-magnet",
+    summary: "A test family: the Curie–Weiss model in a Gaussian random field.",
+    keys: &[Key {
+        name: "coupling",
+        ty: "number",
+        default: "1.0",
+        doc: "the ferromagnetic coupling J",
+    }],
+    couplings: &[kiln::model::Couplings::Gaussian],
+    sizes: "the numbers of spins n",
+    parse: |s| {
+        Ok(std::sync::Arc::new(FieldMagnet {
+            coupling: s.number("coupling")?.unwrap_or(1.0),
+        }))
+    },
+};
+
+/// Registered from the test crate, the toy family is read from `[model]` with its own key,
+/// runs a spec end to end with built-in ±1 algorithms (descent, exhaustive search, annealing)
+/// and the toy kind, its correlated copy moves the output, and it shows in the references
+/// and the listing with no other edit; algorithms that need a gradient are refused up front.
+#[test]
+fn a_family_registered_from_outside_runs_end_to_end() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| kiln::model::register(TOY_FAMILY).expect("the toy family name is free"));
+    register_toy();
+    let w = Work::new();
+    let text = "[experiment]\nname = \"magnet\"\n\n[model]\nfamily = \"toy-field-magnet\"\ncoupling = 0.5\n\n\
+                [sweep]\nsizes = [10, 14]\nseeds = 3\nepsilons = [0.0, 0.3]\n\n\
+                [[algorithm]]\nkind = \"descent\"\n\n[[algorithm]]\nkind = \"exhaustive\"\n\n\
+                [[algorithm]]\nkind = \"anneal\"\nsweeps = 50\n\n[[algorithm]]\nkind = \"toy-flipper\"\n";
+    let spec = w.spec("magnet.toml", text);
+    let parsed = kiln::spec::load(&spec).expect("the toy family parses");
+    assert_eq!(parsed.model.name(), "toy-field-magnet");
+    assert!(parsed.model.canon().encode().contains("\"coupling\":0.5"));
+    let bad = w.spec("bad.toml", &text.replace("coupling = 0.5", "degree = 3"));
+    let e = kiln::spec::load(&bad).unwrap_err().to_string();
+    assert!(
+        e.contains("`degree` does not apply to the `toy-field-magnet` family"),
+        "{e}"
+    );
+    let bad = w.spec("bad2.toml", &text.replace("\"descent\"", "\"spectral\""));
+    let e = kiln::spec::load(&bad).unwrap_err().to_string();
+    assert!(
+        e.contains("cannot run on the `toy-field-magnet` family"),
+        "{e}"
+    );
+
+    let results = w.path().join("results");
+    let code = kiln::cli::main_from([
+        "kiln",
+        "run",
+        spec.to_str().unwrap(),
+        "--results",
+        results.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert_eq!(
+        format!("{code:?}"),
+        format!("{:?}", std::process::ExitCode::SUCCESS)
+    );
+    let df = kiln::store::table::read(&results.join("magnet/cells.parquet")).expect("a table");
+    // 2 sizes × 3 seeds × 2 ε levels × 4 algorithms.
+    assert_eq!(df.height(), 48);
+    let col = |name: &str| -> Vec<f64> {
+        df.column(name)
+            .unwrap()
+            .f64()
+            .unwrap()
+            .iter()
+            .map(|x| x.unwrap())
+            .collect()
+    };
+    let (energy, kinds) = (
+        col("energy"),
+        df.column("kind").unwrap().str().unwrap().clone(),
+    );
+    // Exhaustive search is exact: no other algorithm beats it on the same instance.
+    let (n, seed, eps) = (
+        df.column("n").unwrap().u64().unwrap().clone(),
+        df.column("seed").unwrap().u64().unwrap().clone(),
+        col("epsilon"),
+    );
+    for i in 0..df.height() {
+        if eps[i] != 0.0 {
+            continue;
+        }
+        let best = (0..df.height())
+            .find(|&j| {
+                kinds.get(j) == Some("exhaustive")
+                    && n.get(j) == n.get(i)
+                    && seed.get(j) == seed.get(i)
+                    && eps[j] == 0.0
+            })
+            .map(|j| energy[j])
+            .expect("an exact row");
+        assert!(energy[i] <= best + 1e-12, "row {i} beats exhaustive search");
+    }
+
+    let fams = kiln::model::families();
+    let algs = kiln::algo::kinds();
+    assert!(kiln::spec::reference(&fams, &algs).contains("#### `family = \"toy-field-magnet\"`"));
+    assert!(kiln::spec::listing(&fams, &algs).contains("toy-field-magnet"));
 }
