@@ -27,6 +27,26 @@ pub fn distance_points(a: &[f64], b: &[f64]) -> f64 {
     (a.iter().zip(b).map(|(x, y)| (x - y).powi(2)).sum::<f64>() / a.len() as f64).sqrt()
 }
 
+/// Every pair (a < b) of replica outputs with its overlap, and every triple (a < b < c) with
+/// its three overlaps sorted increasingly.
+#[allow(clippy::type_complexity)]
+pub fn replica_overlaps(outs: &[Vec<f64>]) -> (Vec<(u32, u32, f64)>, Vec<([u32; 3], [f64; 3])>) {
+    let q = |a: usize, b: usize| overlap_points(&outs[a], &outs[b]);
+    let k = outs.len();
+    let (mut pairs, mut triples) = (Vec::new(), Vec::new());
+    for a in 0..k {
+        for b in a + 1..k {
+            pairs.push((a as u32, b as u32, q(a, b)));
+            for c in b + 1..k {
+                let mut qs = [q(a, b), q(a, c), q(b, c)];
+                qs.sort_by(f64::total_cmp);
+                triples.push(([a as u32, b as u32, c as u32], qs));
+            }
+        }
+    }
+    (pairs, triples)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -3,7 +3,6 @@
 
 use super::InputError;
 use crate::spec::FitSettings;
-use crate::store::table;
 use std::path::{Path, PathBuf};
 
 /// An experiment's results folder, as named by a spec, a folder, or the built-in default.
@@ -82,63 +81,5 @@ impl Experiment {
                     .and_then(|v| v.as_str().map(String::from))
             })
             .unwrap_or_else(|| "unknown".into())
-    }
-}
-
-/// The columns `fit` and `plot` use, one entry per row.
-pub struct Cells {
-    pub family: Vec<String>,
-    pub couplings: Vec<String>,
-    pub algorithm: Vec<String>,
-    pub n: Vec<u64>,
-    pub seed: Vec<u64>,
-    pub epsilon: Vec<f64>,
-    pub energy: Vec<f64>,
-    pub energy_perturbed: Vec<f64>,
-    pub distance: Vec<f64>,
-}
-
-impl Cells {
-    pub fn read(path: &Path) -> anyhow::Result<Cells> {
-        let df = table::read(path)?;
-        let strs = |c: &str| -> anyhow::Result<Vec<String>> {
-            Ok(df
-                .column(c)?
-                .str()?
-                .iter()
-                .map(|s| s.unwrap_or("").to_string())
-                .collect())
-        };
-        let u64s = |c: &str| -> anyhow::Result<Vec<u64>> {
-            Ok(df
-                .column(c)?
-                .u64()?
-                .iter()
-                .map(|x| x.unwrap_or(0))
-                .collect())
-        };
-        let f64s = |c: &str| -> anyhow::Result<Vec<f64>> {
-            Ok(df
-                .column(c)?
-                .f64()?
-                .iter()
-                .map(|x| x.unwrap_or(f64::NAN))
-                .collect())
-        };
-        Ok(Cells {
-            family: strs("family")?,
-            couplings: strs("couplings")?,
-            algorithm: strs("algorithm")?,
-            n: u64s("n")?,
-            seed: u64s("seed")?,
-            epsilon: f64s("epsilon")?,
-            energy: f64s("energy")?,
-            energy_perturbed: f64s("energy_perturbed")?,
-            distance: f64s("distance")?,
-        })
-    }
-
-    pub fn len(&self) -> usize {
-        self.n.len()
     }
 }

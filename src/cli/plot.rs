@@ -50,7 +50,7 @@ fn reference_lines(
         return Ok(vec![]);
     };
     Ok(if m.family.spins() {
-        let full = super::theory::cached_full_rsb(&cache.join("theory"), xi)?;
+        let full = crate::theory::cached::full_rsb(&crate::store::cache::Cache::new(cache), xi)?;
         let mut caption = format!(
             "Parisi value {:.6} computed by kiln: full-RSB minimisation of the Auffinger–Chen functional (arXiv:1606.05335) on {} q-intervals.",
             full.value,
@@ -175,9 +175,6 @@ fn file_safe(label: &str) -> String {
         .collect()
 }
 
-/// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
-type EnergySamples = BTreeMap<(String, String), BTreeMap<String, Vec<(u64, f64)>>>;
-
 fn csv_line(fields: &[String]) -> String {
     fields.join(",") + "\n"
 }
@@ -196,38 +193,8 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     let table_path = exp.table()?;
     let cache = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
     let spec_hash = exp.spec_hash();
-    let cells = super::cells::Cells::read(&table_path)?;
-    let (fam, coup, alg) = (&cells.family, &cells.couplings, &cells.algorithm);
-    let (ns, eps) = (&cells.n, &cells.epsilon);
-    let (energy, dist) = (&cells.energy, &cells.distance);
-
-    // (family, couplings) → algorithm → samples (n, energy) at ε = 0.
-    let mut energies: EnergySamples = BTreeMap::new();
-    // algorithm → n → ε bits → distances.
-    let mut distances: BTreeMap<String, BTreeMap<u64, BTreeMap<u64, Vec<f64>>>> = BTreeMap::new();
-    let mut order: Vec<String> = Vec::new();
-    for i in 0..cells.len() {
-        if !order.contains(&alg[i]) {
-            order.push(alg[i].clone());
-        }
-        if eps[i] == 0.0 {
-            energies
-                .entry((fam[i].clone(), coup[i].clone()))
-                .or_default()
-                .entry(alg[i].clone())
-                .or_default()
-                .push((ns[i], energy[i]));
-        } else {
-            distances
-                .entry(alg[i].clone())
-                .or_default()
-                .entry(ns[i])
-                .or_default()
-                .entry(eps[i].to_bits())
-                .or_default()
-                .push(dist[i]);
-        }
-    }
+    let cells = crate::store::table::Cells::read(&table_path)?;
+    let (order, energies, distances) = cells.groups();
     let figdir = dir.join("figures");
     let mut written: Vec<PathBuf> = Vec::new();
     let params = Params {

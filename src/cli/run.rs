@@ -119,7 +119,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     };
     write_atomic(&manifest_path, manifest.to_toml().as_bytes())?;
     if spec.replicas > 1 {
-        write_overlaps(&spec, &plan, &cache, &dir)?;
+        crate::exec::overlaps::write_overlaps(&spec, &plan, &cache, &dir)?;
     }
 
     let k = &report.counts;
@@ -215,63 +215,4 @@ fn finish(report: &exec::Report, done: &str) -> ExitCode {
     } else {
         ExitCode::SUCCESS
     }
-}
-
-/// `overlaps.parquet` (every pair of replicas) and `triples.parquet` (every triple, overlaps
-/// sorted) for each (algorithm, n, seed) whose replicas all have their output in the cache.
-fn write_overlaps(
-    spec: &crate::spec::Spec,
-    plan: &crate::spec::plan::Plan,
-    cache: &crate::store::cache::Cache,
-    dir: &std::path::Path,
-) -> anyhow::Result<()> {
-    use crate::store::cache::Lookup;
-    use std::collections::BTreeMap;
-    let sphere = !spec.model.family.spins();
-    let mut groups: BTreeMap<(usize, u64, u64), Vec<(u32, crate::cell::Key)>> = BTreeMap::new();
-    for c in plan.cells.iter().filter(|c| c.epsilon == 0.0) {
-        groups
-            .entry((c.algo, c.n, c.seed))
-            .or_default()
-            .push((c.replica, c.key));
-    }
-    let mut pairs = table::Overlaps::default();
-    let mut triples = table::Triples::default();
-    for ((algo, n, seed), mut reps) in groups {
-        reps.sort();
-        let mut outs: Vec<Vec<f64>> = Vec::new();
-        for (_, key) in &reps {
-            let v = if sphere {
-                match cache.read_point(key)? {
-                    Lookup::Hit(x) => x,
-                    _ => break,
-                }
-            } else {
-                match cache.read_spins(key)? {
-                    Lookup::Hit(s) => s.iter().map(|&x| x as f64).collect(),
-                    _ => break,
-                }
-            };
-            outs.push(v);
-        }
-        if outs.len() != reps.len() {
-            continue;
-        }
-        let label = spec.algorithms[algo].label.as_str();
-        let q = |a: usize, b: usize| crate::measure::overlap_points(&outs[a], &outs[b]);
-        let k = outs.len();
-        for a in 0..k {
-            for b in a + 1..k {
-                pairs.push(label, n, seed, a as u32, b as u32, q(a, b));
-                for c in b + 1..k {
-                    let mut qs = [q(a, b), q(a, c), q(b, c)];
-                    qs.sort_by(f64::total_cmp);
-                    triples.push(label, n, seed, [a as u32, b as u32, c as u32], qs);
-                }
-            }
-        }
-    }
-    pairs.write(&dir.join("overlaps.parquet"), &spec.name)?;
-    triples.write(&dir.join("triples.parquet"), &spec.name)?;
-    Ok(())
 }

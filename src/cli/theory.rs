@@ -78,20 +78,23 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             (xi, Some(spec.name))
         }
     };
-    let cache_dir = a.folders.cache_dir().join("theory");
     if !(1..=6).contains(&a.k) {
         return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
     }
+    if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
+        return Err(InputError("--beta: give positive inverse temperatures".into()).into());
+    }
+    let cache = crate::store::cache::Cache::new(a.folders.cache_dir());
     let s = cube::Settings::default();
     let rs = cube::replica_symmetric(&xi);
     let cg = cube::constant_gamma(&xi);
     let full_t = std::time::Instant::now();
-    let full = cached_full_rsb(&cache_dir, &xi)?;
+    let full = crate::theory::cached::full_rsb(&cache, &xi)?;
     let full_secs = full_t.elapsed().as_secs_f64();
     let mut ks = Vec::new();
     for k in 1..=a.k {
         let t = std::time::Instant::now();
-        let sol = cached_k_rsb(&cache_dir, &xi, k, &s)?;
+        let sol = crate::theory::cached::k_rsb(&cache, &xi, k, &s)?;
         ks.push((k, sol, t.elapsed().as_secs_f64()));
     }
     // The order parameters, for incremental AMP and for plots.
@@ -134,9 +137,6 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     crate::store::write_atomic(&csv_path, csv.as_bytes())?;
     let (gs, l, m, q0) = sphere::ground_state(&xi);
     let (alg, condition) = sphere::algorithmic(&xi);
-    if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
-        return Err(InputError("--beta: give positive inverse temperatures".into()).into());
-    }
     let fs = crate::theory::full::FullSettings::default();
     let temps: Vec<(f64, f64, f64, crate::theory::full::FullRsb)> = a
         .beta
@@ -225,97 +225,6 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         out(&o);
     }
     Ok(ExitCode::SUCCESS)
-}
-
-/// Revision of the zero-temperature solver; enters the cache key of solved order parameters.
-const SOLVER_REVISION: u32 = 1;
-
-/// A cached solution file, if it exists, parses and names the expected key.
-fn read_cached(path: &std::path::Path, hex_key: &str) -> Option<serde_json::Value> {
-    let text = std::fs::read_to_string(path).ok()?;
-    let v: serde_json::Value = serde_json::from_str(&text).ok()?;
-    (v["key"] == hex_key).then_some(v)
-}
-
-/// The full-RSB solution from the cache, or solved (default settings) and stored.
-pub fn cached_full_rsb(
-    dir: &std::path::Path,
-    xi: &Mixture,
-) -> anyhow::Result<crate::theory::full::FullRsb> {
-    use crate::cell::Canon;
-    use crate::theory::full;
-    let s = full::FullSettings::default();
-    let key = Canon::map()
-        .with("mixture", xi.canon())
-        .with("levels", s.levels)
-        .with("grid", s.grid)
-        .with("half_width", s.half_width)
-        .with("nodes", s.nodes)
-        .with("power", s.power)
-        .with("max_iterations", s.max_iterations)
-        .with("revision", full::REVISION)
-        .hash("theory-full-rsb");
-    let hex_key = hex::encode(key);
-    let path = dir.join(format!("{hex_key}.json"));
-    if let Some(v) = read_cached(&path, &hex_key) {
-        let floats =
-            |f: &str| -> Option<Vec<f64>> { v[f].as_array()?.iter().map(|x| x.as_f64()).collect() };
-        if let (Some(value), Some(q), Some(m), Some(it), Some(g)) = (
-            v["value"].as_f64(),
-            floats("q"),
-            floats("m"),
-            v["iterations"].as_u64(),
-            v["gradient"].as_f64(),
-        ) {
-            return Ok(full::FullRsb {
-                value,
-                q,
-                m,
-                iterations: it as usize,
-                gradient: g,
-            });
-        }
-    }
-    let sol = full::full_rsb(xi, &s);
-    let v = serde_json::json!({"key": hex_key, "value": sol.value, "q": sol.q, "m": sol.m,
-        "iterations": sol.iterations, "gradient": sol.gradient});
-    crate::store::write_atomic(&path, v.to_string().as_bytes())?;
-    Ok(sol)
-}
-
-/// k-step RSB from the cache, or solved and stored (seconds: the original solve time).
-fn cached_k_rsb(
-    dir: &std::path::Path,
-    xi: &Mixture,
-    k: usize,
-    s: &cube::Settings,
-) -> anyhow::Result<cube::Solution> {
-    use crate::cell::Canon;
-    let key = Canon::map()
-        .with("mixture", xi.canon())
-        .with("k", k)
-        .with("grid", s.grid)
-        .with("half_width", s.half_width)
-        .with("nodes", s.nodes)
-        .with("revision", SOLVER_REVISION)
-        .hash("theory-krsb");
-    let hex_key = hex::encode(key);
-    let path = dir.join(format!("{hex_key}.json"));
-    if let Some(v) = read_cached(&path, &hex_key) {
-        let floats =
-            |f: &str| -> Option<Vec<f64>> { v[f].as_array()?.iter().map(|x| x.as_f64()).collect() };
-        if let (Some(value), Some(q), Some(m)) = (v["value"].as_f64(), floats("q"), floats("m")) {
-            return Ok(cube::Solution {
-                value,
-                steps: cube::Steps { q, m },
-            });
-        }
-    }
-    let sol = cube::k_rsb(xi, k, s);
-    let v =
-        serde_json::json!({"key": hex_key, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m});
-    crate::store::write_atomic(&path, v.to_string().as_bytes())?;
-    Ok(sol)
 }
 
 #[cfg(test)]

@@ -6,6 +6,7 @@
 //! depend on this order: every number comes from streams named by the cell's identity.
 
 pub mod memory;
+pub mod overlaps;
 
 use crate::cell::Key;
 use crate::measure;

@@ -12,6 +12,8 @@
 //! algorithms are paired) gives a second error for e∞ and errors for differences.
 
 pub mod format;
+pub mod latex;
+pub mod study;
 pub mod wls;
 
 /// One size: mean energy over seeds and its standard error.

@@ -332,7 +332,7 @@ impl Cache {
     }
 
     /// Moves a damaged file to `quarantine/` under a unique name.
-    fn quarantine<T>(&self, path: PathBuf, reason: String) -> Lookup<T> {
+    pub(crate) fn quarantine<T>(&self, path: PathBuf, reason: String) -> Lookup<T> {
         let dir = self.root.join("quarantine");
         let name = path.file_name().and_then(|s| s.to_str()).unwrap_or("entry");
         let stamp = std::time::SystemTime::now()

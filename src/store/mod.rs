@@ -2,8 +2,11 @@
 //! Parquet table and the manifest. Nothing here knows about numerics.
 
 pub mod cache;
+pub mod fits;
 pub mod manifest;
 pub mod table;
+pub mod theory;
+pub mod verify;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};

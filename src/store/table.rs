@@ -8,6 +8,7 @@
 use super::cache::Record;
 use super::{StoreError, write_atomic};
 use polars::prelude::*;
+use std::collections::BTreeMap;
 use std::path::Path;
 
 /// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added;
@@ -176,7 +177,7 @@ fn group_columns(experiment: &str, algorithm: &[String], n: &[u64], seed: &[u64]
     ]
 }
 
-fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreError> {
+pub(crate) fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreError> {
     let terr = |e: PolarsError| StoreError::Table {
         path: path.to_path_buf(),
         message: e.to_string(),
@@ -185,4 +186,111 @@ fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreErro
     let mut buf = Vec::new();
     ParquetWriter::new(&mut buf).finish(&mut df).map_err(terr)?;
     write_atomic(path, &buf)
+}
+
+/// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
+pub type EnergySamples = BTreeMap<(String, String), BTreeMap<String, Vec<(u64, f64)>>>;
+/// algorithm → n → ε bits → distances.
+pub type DistanceSamples = BTreeMap<String, BTreeMap<u64, BTreeMap<u64, Vec<f64>>>>;
+
+/// The columns `fit` and `plot` use, one entry per row.
+pub struct Cells {
+    pub family: Vec<String>,
+    pub couplings: Vec<String>,
+    pub algorithm: Vec<String>,
+    pub n: Vec<u64>,
+    pub seed: Vec<u64>,
+    pub epsilon: Vec<f64>,
+    pub energy: Vec<f64>,
+    pub energy_perturbed: Vec<f64>,
+    pub distance: Vec<f64>,
+}
+
+impl Cells {
+    pub fn read(path: &Path) -> Result<Cells, StoreError> {
+        let df = read(path)?;
+        let bad = |c: &str, e: PolarsError| StoreError::Table {
+            path: path.to_path_buf(),
+            message: format!("column `{c}`: {e}"),
+        };
+        let strs = |c: &str| -> Result<Vec<String>, StoreError> {
+            Ok(df
+                .column(c)
+                .and_then(|x| x.str())
+                .map_err(|e| bad(c, e))?
+                .iter()
+                .map(|s| s.unwrap_or("").to_string())
+                .collect())
+        };
+        let u64s = |c: &str| -> Result<Vec<u64>, StoreError> {
+            Ok(df
+                .column(c)
+                .and_then(|x| x.u64())
+                .map_err(|e| bad(c, e))?
+                .iter()
+                .map(|x| x.unwrap_or(0))
+                .collect())
+        };
+        let f64s = |c: &str| -> Result<Vec<f64>, StoreError> {
+            Ok(df
+                .column(c)
+                .and_then(|x| x.f64())
+                .map_err(|e| bad(c, e))?
+                .iter()
+                .map(|x| x.unwrap_or(f64::NAN))
+                .collect())
+        };
+        Ok(Cells {
+            family: strs("family")?,
+            couplings: strs("couplings")?,
+            algorithm: strs("algorithm")?,
+            n: u64s("n")?,
+            seed: u64s("seed")?,
+            epsilon: f64s("epsilon")?,
+            energy: f64s("energy")?,
+            energy_perturbed: f64s("energy_perturbed")?,
+            distance: f64s("distance")?,
+        })
+    }
+
+    pub fn len(&self) -> usize {
+        self.n.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.n.is_empty()
+    }
+
+    /// The rows grouped for figures: the algorithm labels in table order; (family, couplings)
+    /// → label → (n, energy) samples at ε = 0; label → n → ε bits → distances at ε > 0.
+    pub fn groups(&self) -> (Vec<String>, EnergySamples, DistanceSamples) {
+        let mut energies: EnergySamples = BTreeMap::new();
+        let mut distances: DistanceSamples = BTreeMap::new();
+        let mut order: Vec<String> = Vec::new();
+        let mut seen = std::collections::HashSet::new();
+        for i in 0..self.len() {
+            let label = &self.algorithm[i];
+            if seen.insert(label.clone()) {
+                order.push(label.clone());
+            }
+            if self.epsilon[i] == 0.0 {
+                energies
+                    .entry((self.family[i].clone(), self.couplings[i].clone()))
+                    .or_default()
+                    .entry(label.clone())
+                    .or_default()
+                    .push((self.n[i], self.energy[i]));
+            } else {
+                distances
+                    .entry(label.clone())
+                    .or_default()
+                    .entry(self.n[i])
+                    .or_default()
+                    .entry(self.epsilon[i].to_bits())
+                    .or_default()
+                    .push(self.distance[i]);
+            }
+        }
+        (order, energies, distances)
+    }
 }

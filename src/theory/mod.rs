@@ -5,6 +5,7 @@
 //! Normalisation (as everywhere in kiln): E[H(σ)H(τ)] = n·ξ(R(σ,τ)), ξ(q) = Σ_p c_p² q^p;
 //! SK is ξ(q) = q²/2. Values are lim max H/n (maximisation).
 
+pub mod cached;
 pub mod cube;
 pub mod full;
 pub mod quad;

@@ -1,0 +1,62 @@
+//! Solved order parameters in the cache (`<cache>/theory/<key>.json`), checksummed like every
+//! other entry: a header line `kiln-theory 1 sha256=<sum of the body>`, then the JSON body,
+//! which names its own key. A damaged or foreign entry is moved to `quarantine/` and solved
+//! again; it is never used.
+
+use std::path::PathBuf;
+
+use sha2::{Digest, Sha256};
+
+use super::cache::{Cache, Lookup};
+use super::{StoreError, write_atomic};
+
+const THEORY_MAGIC: &str = "kiln-theory 1 sha256=";
+
+/// Where the entry with this key lives.
+pub fn path(cache: &Cache, hex_key: &str) -> PathBuf {
+    cache.root().join("theory").join(format!("{hex_key}.json"))
+}
+
+/// Writes a solution: `body` must carry `"key": hex_key`.
+pub fn write(cache: &Cache, hex_key: &str, body: &serde_json::Value) -> Result<(), StoreError> {
+    let body = body.to_string();
+    let sum = hex::encode(Sha256::digest(body.as_bytes()));
+    let text = format!("{THEORY_MAGIC}{sum}\n{body}\n");
+    write_atomic(&path(cache, hex_key), text.as_bytes())
+}
+
+/// Reads and checks a solution.
+pub fn read(cache: &Cache, hex_key: &str) -> Result<Lookup<serde_json::Value>, StoreError> {
+    let path = path(cache, hex_key);
+    let bytes = match std::fs::read(&path) {
+        Ok(b) => b,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
+        Err(source) => return Err(StoreError::Read { path, source }),
+    };
+    match decode(&bytes, hex_key) {
+        Ok(v) => Ok(Lookup::Hit(v)),
+        Err(reason) => Ok(cache.quarantine(path, reason)),
+    }
+}
+
+fn decode(bytes: &[u8], hex_key: &str) -> Result<serde_json::Value, String> {
+    let text = std::str::from_utf8(bytes).map_err(|_| "not UTF-8 text".to_string())?;
+    let (head, body) = text
+        .split_once('\n')
+        .ok_or_else(|| "no header line (truncated?)".to_string())?;
+    let sum = head
+        .strip_prefix(THEORY_MAGIC)
+        .ok_or_else(|| "not a kiln theory entry".to_string())?;
+    let body = body
+        .strip_suffix('\n')
+        .ok_or_else(|| "truncated body".to_string())?;
+    if hex::encode(Sha256::digest(body.as_bytes())) != sum {
+        return Err("checksum mismatch".into());
+    }
+    let v: serde_json::Value =
+        serde_json::from_str(body).map_err(|e| format!("unreadable body: {e}"))?;
+    if v["key"] != hex_key {
+        return Err("foreign entry: it names another key".into());
+    }
+    Ok(v)
+}
