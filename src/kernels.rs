@@ -295,6 +295,23 @@ fn has_avx2() -> bool {
     std::arch::is_x86_feature_detected!("avx2")
 }
 
+/// Σ a_k b_k summed left to right, one term at a time: for short vectors (a rank-k row, a
+/// q-grid) whose pinned numbers were computed in this order. Long vectors use [`dot`].
+#[inline]
+pub fn dot_sequential(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+/// Scales v to unit norm under `dot` (left as is when zero); returns the norm it had.
+#[inline]
+pub fn normalize_with(v: &mut [f64], dot: impl Fn(&[f64], &[f64]) -> f64) -> f64 {
+    let s = dot(v, v).sqrt();
+    if s > 0.0 {
+        v.iter_mut().for_each(|x| *x /= s);
+    }
+    s
+}
+
 /// Σ a_k b_k over the common length.
 #[inline]
 pub fn dot(a: &[f64], b: &[f64]) -> f64 {

@@ -99,11 +99,7 @@ pub fn tridiagonal_eigen(d: &[f64], e: &[f64]) -> Result<(Vec<f64>, Vec<f64>), S
 use crate::kernels::{axpy, dot};
 
 fn normalize(v: &mut [f64]) -> f64 {
-    let s = dot(v, v).sqrt();
-    if s > 0.0 {
-        v.iter_mut().for_each(|x| *x /= s);
-    }
-    s
+    crate::kernels::normalize_with(v, dot)
 }
 
 /// Top (largest algebraic) eigenpair of the symmetric operator `op` (y = A x) on R^n, from

@@ -116,12 +116,12 @@ impl Algorithm for Params {
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         Ok(match inst {
             Instance::Sphere(m) => run(self, m, rng),
-            Instance::Dense(d) => run_cube(self, d.n(), |x, y| d.matvec(x, y), rng),
-            Instance::Sparse(g) => run_cube(self, g.n(), |x, y| g.matvec(x, y), rng),
+            Instance::Sk(d) => run_cube(self, d.n(), |x, y| d.matvec(x, y), rng),
+            Instance::Graph(g) => run_cube(self, g.n(), |x, y| g.matvec(x, y), rng),
             Instance::Spins(_) => {
                 return Err(super::not_for(KIND.name, "the instance has no gradient"));
             }
-            Instance::Mixed(m) => run_cube(
+            Instance::Cube(m) => run_cube(
                 self,
                 m.n(),
                 |x, y| {

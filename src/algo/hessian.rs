@@ -149,7 +149,7 @@ pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Result<Output, AlgoError>
             let mut w = v.to_vec();
             project(&mut w, &x);
             for (i, o) in out.iter_mut().enumerate() {
-                *o = crate::model::sk::dot(&hess[i * n..(i + 1) * n], &w);
+                *o = crate::kernels::dot(&hess[i * n..(i + 1) * n], &w);
             }
             project(out, &x);
         };

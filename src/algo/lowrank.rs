@@ -178,9 +178,9 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         match inst {
-            Instance::Dense(d) => Ok(super::with_relaxation(run(self, d, rng))),
-            Instance::Sparse(g) => Ok(super::with_relaxation(run(self, g, rng))),
-            Instance::Mixed(m) => match (m.dense(), m.is_quadratic()) {
+            Instance::Sk(d) => Ok(super::with_relaxation(run(self, d, rng))),
+            Instance::Graph(g) => Ok(super::with_relaxation(run(self, g, rng))),
+            Instance::Cube(m) => match (m.dense(), m.is_quadratic()) {
                 (Some(d), true) => Ok(super::with_relaxation(run(self, d, rng))),
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
@@ -272,14 +272,8 @@ pub fn run<A: Rows>(p: &Params, a: &A, rng: &mut Stream) -> (Output, f64) {
     )
 }
 
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
+use crate::kernels::dot_sequential as dot;
 
 fn normalize(x: &mut [f64]) -> f64 {
-    let s = dot(x, x).sqrt();
-    if s > 0.0 {
-        x.iter_mut().for_each(|v| *v /= s);
-    }
-    s
+    crate::kernels::normalize_with(x, dot)
 }

@@ -302,9 +302,9 @@ pub(crate) fn spins_only(m: &ModelSpec) -> Option<&'static str> {
 macro_rules! on_cube {
     ($inst:expr, $kind:expr, |$d:ident| $body:expr) => {
         match $inst {
-            Instance::Dense($d) => Ok($body),
-            Instance::Mixed($d) => Ok($body),
-            Instance::Sparse($d) => Ok($body),
+            Instance::Sk($d) => Ok($body),
+            Instance::Cube($d) => Ok($body),
+            Instance::Graph($d) => Ok($body),
             Instance::Spins($d) => Ok($body),
             Instance::Sphere(_) => Err(super::not_for(
                 $kind,

@@ -110,10 +110,10 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
         match inst {
-            Instance::Dense(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
-            Instance::Sparse(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
+            Instance::Sk(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
+            Instance::Graph(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
             Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
-            Instance::Mixed(m) | Instance::Sphere(m) => match (m.dense(), m.is_quadratic()) {
+            Instance::Cube(m) | Instance::Sphere(m) => match (m.dense(), m.is_quadratic()) {
                 (Some(d), true) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },

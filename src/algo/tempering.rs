@@ -1,5 +1,5 @@
 //! Parallel tempering (replica exchange Monte Carlo; Hukushima & Nemoto, J. Phys. Soc. Jpn. 65,
-//! 1604 (1996), arXiv:cond-mat/9512035): R replicas at inverse temperatures spaced
+//! 1604 (1996), arXiv:cond-mat/9512035): R chains at inverse temperatures spaced
 //! geometrically between `beta[0]` and `beta[1]`, each doing sequential Metropolis sweeps;
 //! after every sweep, neighbouring temperatures swap configurations with probability
 //! min(1, exp((β_{k+1} − β_k)(H_k − H_{k+1}))) (even pairs after even sweeps, odd pairs after
@@ -21,8 +21,8 @@ pub const REVISION: u32 = 1;
 /// Settings.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Params {
-    /// Number of replicas (temperatures), ≥ 2. Default 16.
-    pub replicas: u64,
+    /// Number of temperatures on the ladder (one chain each), ≥ 2. Default 16.
+    pub temperatures: u64,
     /// Smallest and largest inverse temperature, geometric in between. Default [0.2, 3.0].
     pub beta: [f64; 2],
     /// Sweeps per replica. Default 1000.
@@ -32,7 +32,7 @@ pub struct Params {
 impl Default for Params {
     fn default() -> Self {
         Params {
-            replicas: 16,
+            temperatures: 16,
             beta: [0.2, 3.0],
             sweeps: 1000,
         }
@@ -42,7 +42,7 @@ impl Default for Params {
 impl Params {
     /// The ladder of inverse temperatures, increasing.
     pub fn ladder(&self) -> Vec<f64> {
-        let r = self.replicas.max(2) as usize;
+        let r = self.temperatures.max(2) as usize;
         let ratio = (self.beta[1] / self.beta[0]).powf(1.0 / (r - 1) as f64);
         (0..r)
             .map(|k| self.beta[0] * ratio.powi(k as i32))
@@ -56,7 +56,7 @@ pub const KIND: Kind = Kind {
     summary: "Parallel tempering (replica exchange) on a geometric β ladder; the best state seen is quenched and returned. Every ±1 family.",
     keys: &[
         Key {
-            name: "replicas",
+            name: "temperatures",
             ty: "integer ≥ 2",
             default: "16",
             doc: "number of temperatures on the ladder",
@@ -79,8 +79,8 @@ pub const KIND: Kind = Kind {
 
 fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
     let mut p = Params::default();
-    if let Some(r) = s.count("replicas", 4096)? {
-        p.replicas = r.max(2);
+    if let Some(r) = s.count("temperatures", 4096)? {
+        p.temperatures = r.max(2);
     }
     if let Some(b) = s.beta_range("beta")? {
         if b[0] <= 0.0 {
@@ -106,16 +106,17 @@ impl Algorithm for Params {
         REVISION
     }
     fn canon(&self, c: Canon) -> Canon {
-        c.with("replicas", self.replicas)
+        // Canonical name kept from before the key was renamed, so cache keys do not change.
+        c.with("replicas", self.temperatures)
             .with("beta", vec![self.beta[0], self.beta[1]])
             .with("sweeps", self.sweeps)
     }
     fn work_bytes(&self, n: u64) -> u128 {
         // spins and fields per replica, plus the best state.
-        n as u128 * (9 * self.replicas.max(2) as u128 + 10)
+        n as u128 * (9 * self.temperatures.max(2) as u128 + 10)
     }
     fn cost(&self, n: u64, flip: f64) -> f64 {
-        n as f64 * flip * 0.3 * (self.sweeps * self.replicas) as f64
+        n as f64 * flip * 0.3 * (self.sweeps * self.temperatures) as f64
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)

@@ -11,13 +11,13 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let max_memory = a.max_memory()?;
     let jobs = a.jobs()?;
     let budget = memory::budget(max_memory);
-    let fit = memory::check(&spec, budget)?;
+    let fit_in_memory = memory::cells_that_fit(&spec, budget)?;
     let plan = expand(&spec);
     let cache = Cache::new(a.folders.cache_dir());
     let total = plan.distinct().count();
     let cached = plan.distinct().filter(|c| cache.has_record(&c.key)).count();
     let (largest, largest_n) = memory::largest_cell(&spec);
-    let parallel = jobs.min(fit).min(total.max(1));
+    let parallel = jobs.min(fit_in_memory).min(total.max(1));
     let sweep = format!(
         "{} sizes × {} seeds × {} ε × {} algorithms",
         spec.sizes.len(),

@@ -19,8 +19,8 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     let spec = c.load_spec()?;
     let max_memory = c.max_memory()?;
     let jobs_wanted = c.jobs()?;
-    let fit = memory::check(&spec, memory::budget(max_memory))?;
-    let jobs = jobs_wanted.min(fit);
+    let fit_in_memory = memory::cells_that_fit(&spec, memory::budget(max_memory))?;
+    let jobs = jobs_wanted.min(fit_in_memory);
     let shard = a
         .shard
         .as_deref()

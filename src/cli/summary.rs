@@ -8,16 +8,7 @@ use crate::spec::plan::Plan;
 use crate::store::cache::Record;
 use std::collections::HashMap;
 
-/// Mean and standard error of the mean (0 for a single value).
-pub fn mean_se(xs: &[f64]) -> (f64, f64) {
-    let n = xs.len() as f64;
-    let m = xs.iter().sum::<f64>() / n;
-    if xs.len() < 2 {
-        return (m, 0.0);
-    }
-    let v = xs.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (n - 1.0);
-    (m, (v / n).sqrt())
-}
+use crate::fit::mean_se;
 
 pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> String {
     let eps: Vec<f64> = spec.epsilons.iter().copied().filter(|&e| e > 0.0).collect();

@@ -75,7 +75,7 @@ pub fn parse_size(s: &str) -> Result<u64, String> {
 
 /// Refuses a spec whose largest cell cannot fit in `budget`; otherwise the number of cells
 /// that fit side by side (at least 1).
-pub fn check(spec: &Spec, budget: Option<u64>) -> Result<usize, SpecError> {
+pub fn cells_that_fit(spec: &Spec, budget: Option<u64>) -> Result<usize, SpecError> {
     let (bytes, n) = largest_cell(spec);
     match budget {
         Some(b) if bytes > b as u128 => Err(spec.size_error(

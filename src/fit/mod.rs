@@ -227,6 +227,26 @@ pub fn fit(points: &[Point], params: &Params) -> Result<Fit, FitError> {
     })
 }
 
+/// Mean and sample variance (n − 1 denominator; 0 for fewer than two values): the one place
+/// kiln computes them, so every table and summary agrees to the bit.
+pub fn mean_var(xs: &[f64]) -> (f64, f64) {
+    let n = xs.len() as f64;
+    let m = xs.iter().sum::<f64>() / n;
+    if xs.len() < 2 {
+        return (m, 0.0);
+    }
+    (
+        m,
+        xs.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (n - 1.0),
+    )
+}
+
+/// Mean and standard error of the mean (0 for a single value).
+pub fn mean_se(xs: &[f64]) -> (f64, f64) {
+    let (m, v) = mean_var(xs);
+    (m, (v / xs.len() as f64).sqrt())
+}
+
 /// Per-size points from (n, energy) samples: mean and standard error of the mean.
 pub fn points(samples: &[(u64, f64)]) -> Vec<Point> {
     let mut by: std::collections::BTreeMap<u64, Vec<f64>> = Default::default();
@@ -235,13 +255,7 @@ pub fn points(samples: &[(u64, f64)]) -> Vec<Point> {
     }
     by.into_iter()
         .map(|(n, xs)| {
-            let k = xs.len() as f64;
-            let m = xs.iter().sum::<f64>() / k;
-            let se = if xs.len() > 1 {
-                (xs.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (k - 1.0) / k).sqrt()
-            } else {
-                0.0
-            };
+            let (m, se) = mean_se(&xs);
             Point {
                 n: n as f64,
                 mean: m,

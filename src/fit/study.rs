@@ -168,10 +168,7 @@ pub fn extrapolate(
                 }
             }
         }
-        let sd = |xs: &[f64]| {
-            let m = xs.iter().sum::<f64>() / xs.len() as f64;
-            (xs.iter().map(|x| (x - m) * (x - m)).sum::<f64>() / (xs.len() as f64 - 1.0)).sqrt()
-        };
+        let sd = |xs: &[f64]| super::mean_var(xs).1.sqrt();
         for r in rows.iter_mut().filter(|r| {
             r.family == *family && r.couplings == *couplings && r.epsilon.to_bits() == *eps_bits
         }) {

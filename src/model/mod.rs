@@ -408,14 +408,14 @@ impl SpinModel for sparse::Graph {
 
 /// A sampled instance. Dispatch on the variant happens once per cell, never inside a kernel.
 pub enum Instance {
-    /// SK.
-    Dense(sk::Dense),
-    /// Mixed p-spin on the cube.
-    Mixed(mixed::Mixed),
-    /// Mixed p-spin on the sphere.
+    /// SK (a dense coupling matrix).
+    Sk(sk::Dense),
+    /// Mixed p-spin on the cube (a dense p = 2 matrix and p ≥ 3 tensors).
+    Cube(mixed::Mixed),
+    /// Mixed p-spin on the sphere (the same couplings, real points).
     Sphere(mixed::Mixed),
-    /// Sparse graphs and lattices.
-    Sparse(sparse::Graph),
+    /// Graphs and lattices (sparse couplings).
+    Graph(sparse::Graph),
     /// A ±1 instance of a family registered from outside the crate (dynamic dispatch per
     /// flip: fine for small studies; kiln's own families use the variants above).
     Spins(Box<dyn SpinModel + Send>),
@@ -448,26 +448,26 @@ impl SpinModel for Box<dyn SpinModel + Send> {
 impl Instance {
     pub fn n(&self) -> usize {
         match self {
-            Instance::Dense(d) => d.n(),
-            Instance::Mixed(m) | Instance::Sphere(m) => m.n(),
-            Instance::Sparse(g) => g.n(),
+            Instance::Sk(d) => d.n(),
+            Instance::Cube(m) | Instance::Sphere(m) => m.n(),
+            Instance::Graph(g) => g.n(),
             Instance::Spins(b) => b.n(),
         }
     }
     /// H(σ) of a ±1 configuration (on the sphere: at the point σ, norm √n).
     pub fn energy(&self, s: &[i8]) -> f64 {
         match self {
-            Instance::Dense(d) => d.energy(s),
-            Instance::Mixed(m) => SpinModel::energy(m, s),
+            Instance::Sk(d) => d.energy(s),
+            Instance::Cube(m) => SpinModel::energy(m, s),
             Instance::Sphere(m) => m.value(s),
-            Instance::Sparse(g) => g.energy(s),
+            Instance::Graph(g) => g.energy(s),
             Instance::Spins(b) => b.energy(s),
         }
     }
     /// H(x) at a real point (sphere); for ±1 families x must be ±1.
     pub fn value(&self, x: &[f64]) -> f64 {
         match self {
-            Instance::Sphere(m) | Instance::Mixed(m) => m.value(x),
+            Instance::Sphere(m) | Instance::Cube(m) => m.value(x),
             _ => {
                 let s: Vec<i8> = x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
                 self.energy(&s)
@@ -477,7 +477,7 @@ impl Instance {
     /// Number of edges (sparse graphs).
     pub fn edges(&self) -> Option<usize> {
         match self {
-            Instance::Sparse(g) => Some(g.edges()),
+            Instance::Graph(g) => Some(g.edges()),
             _ => None,
         }
     }

@@ -14,7 +14,7 @@
 //! index), so slices are generated in parallel and equal serial generation.
 
 use super::Couplings;
-use super::sk::dot;
+use crate::kernels::dot;
 use crate::rng::{Id, Purpose, stream};
 use rayon::prelude::*;
 

@@ -4,7 +4,9 @@
 //! defaults filled in, each problem reported with file, line, key and a hint), and
 //! [`plan::expand`] turns a `Spec` into the ordered list of cells with their keys.
 
+mod algorithms;
 pub mod error;
+mod fit_settings;
 mod model;
 pub mod plan;
 mod reference;
@@ -15,7 +17,7 @@ mod sweep;
 use crate::algo::AlgoSpec;
 use crate::model::ModelSpec;
 pub use error::SpecError;
-use error::{Locator, choice_hint, closest};
+use error::{Locator, closest};
 pub use reference::{listing, reference};
 use serde::Deserialize;
 pub use settings::Settings;
@@ -255,7 +257,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
 
     // [sweep]
     let sizes = sweep::sizes(&raw.sweep.sizes, &model, loc)?;
-    let seeds = seeds_from(&raw.sweep.seeds, loc)?;
+    let seeds = sweep::seeds_from(&raw.sweep.seeds, loc)?;
     let replicas = match &raw.sweep.replicas {
         None => 1,
         Some(r) => positive(r, loc, "sweep.replicas", 64)? as u32,
@@ -275,7 +277,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     let mut algorithms: Vec<AlgoEntry> = Vec::new();
     let mut label_spans: Vec<Range<usize>> = Vec::new();
     for (i, a) in raw.algorithm.iter().enumerate() {
-        let (entry, lspan) = algorithm_entry(i, a, &model, &sizes, loc)?;
+        let (entry, lspan) = algorithms::algorithm_entry(i, a, &model, &sizes, loc)?;
         if let Some(j) = algorithms.iter().position(|e| e.label == entry.label) {
             let (line, _) = loc.line_col(label_spans[j].start);
             return Err(loc.at(
@@ -308,7 +310,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
 
     let fit = match &raw.fit {
         None => FitSettings::default(),
-        Some(f) => fit_settings(f, loc)?,
+        Some(f) => fit_settings::fit_settings(f, loc)?,
     };
 
     Ok(Spec {
@@ -326,179 +328,13 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     })
 }
 
-/// One `[[algorithm]]` table: its kind from the registry, the kind's own keys, the model and
-/// size checks; returns the entry and the span its label is reported at.
-fn algorithm_entry(
-    i: usize,
-    table: &Spanned<RawAlgorithm>,
-    model: &ModelSpec,
-    sizes: &[(u64, Range<usize>)],
-    loc: &Locator,
-) -> Result<(AlgoEntry, Range<usize>), SpecError> {
-    let at = format!("algorithm[{}]", i + 1);
-    let values = table.get_ref();
-    let text = |key: &str| -> Result<Option<(String, Range<usize>)>, SpecError> {
-        match values.get(key) {
-            None => Ok(None),
-            Some(v) => match v.get_ref() {
-                toml::Value::String(s) => Ok(Some((s.clone(), v.span()))),
-                other => Err(loc.at(
-                    Some(v.span()),
-                    format!("{at}.{key}"),
-                    format!(
-                        "invalid type: {} `{other}`, expected a string",
-                        other.type_str()
-                    ),
-                    Some(format!("e.g. {key} = \"descent\"")),
-                )),
-            },
-        }
-    };
-    let Some((kind, kspan)) = text("kind")? else {
-        return Err(loc.at(
-            Some(table.span()),
-            at.clone(),
-            "missing key `kind`",
-            Some(format!(
-                "every [[algorithm]] names its kind: {}",
-                quoted(&crate::algo::kind_names())
-            )),
-        ));
-    };
-    let Some(k) = crate::algo::find(&kind) else {
-        return Err(loc.at(
-            Some(kspan),
-            format!("{at}.kind"),
-            format!("unknown algorithm kind `{kind}`"),
-            Some(choice_hint(&kind, &crate::algo::kind_names())),
-        ));
-    };
-    let mut settings = BTreeMap::new();
-    for (key, v) in values {
-        if key == "kind" || key == "label" {
-            continue;
-        }
-        if !k.keys.iter().any(|x| x.name == key) {
-            let elsewhere = crate::algo::kinds()
-                .iter()
-                .any(|o| o.keys.iter().any(|x| x.name == key));
-            let own: Vec<&str> = k.keys.iter().map(|x| x.name).collect();
-            let message = if elsewhere {
-                format!("`{key}` does not apply to kind `{kind}`")
-            } else {
-                format!("unknown key `{key}`")
-            };
-            let hint = match closest(key, own.iter().copied()) {
-                Some(c) if !elsewhere => format!("did you mean `{c}`?"),
-                _ if own.is_empty() => format!("`{kind}` takes no settings"),
-                _ => format!("settings of `{kind}`: {}", quoted(&own)),
-            };
-            return Err(loc.at(Some(v.span()), format!("{at}.{key}"), message, Some(hint)));
-        }
-        settings.insert(key.clone(), v.clone());
-    }
-    let algo = (k.parse)(&Settings {
-        at: at.clone(),
-        loc,
-        values: &settings,
-        anchor: Some(kspan.clone()),
-    })?;
-    for (n, span) in sizes {
-        if let Some((message, hint)) = algo.size_problem(*n) {
-            return Err(loc.at(
-                Some(span.clone()),
-                "sweep.sizes",
-                format!("{message} ({at})"),
-                Some(hint),
-            ));
-        }
-    }
-    if let Some(why) = algo.unsupported(model) {
-        return Err(loc.at(
-            Some(kspan),
-            format!("{at}.kind"),
-            format!(
-                "`{kind}` cannot run on the `{}` family: {why}",
-                model.family.name()
-            ),
-            Some(format!(
-                "kinds for this family: {}",
-                quoted(&crate::algo::kinds_for(model))
-            )),
-        ));
-    }
-    let (label, lspan) = text("label")?.unwrap_or((kind.clone(), kspan));
-    if label.trim().is_empty() {
-        return Err(loc.at(
-            Some(lspan),
-            format!("{at}.label"),
-            "empty label",
-            Some("give a short name, or leave `label` out to use the kind".into()),
-        ));
-    }
-    Ok((AlgoEntry { label, algo }, lspan))
-}
-
 /// `a`, `b`, `c`.
-fn quoted(names: &[&str]) -> String {
+pub(crate) fn quoted(names: &[&str]) -> String {
     names
         .iter()
         .map(|c| format!("`{c}`"))
         .collect::<Vec<_>>()
         .join(", ")
-}
-
-fn fit_settings(f: &RawFit, loc: &Locator) -> Result<FitSettings, SpecError> {
-    let mut out = FitSettings::default();
-    if let Some(o) = &f.omega {
-        out.omega = Some(match o.get_ref() {
-            toml::Value::String(s) if s == "fit" => None,
-            toml::Value::Float(x) if *x > 0.0 && x.is_finite() => Some(*x),
-            toml::Value::Integer(x) if *x > 0 => Some(*x as f64),
-            other => {
-                return Err(loc.at(
-                    Some(o.span()),
-                    "fit.omega",
-                    format!("`{other}` is not a correction exponent"),
-                    Some("give a positive number (e.g. 0.6667) or \"fit\"".into()),
-                ));
-            }
-        });
-    }
-    if let Some(t) = &f.terms {
-        let v = positive(t, loc, "fit.terms", 2)?;
-        out.terms = Some(v as usize);
-    }
-    if let Some(m) = &f.min_n {
-        out.min_n = Some(positive(m, loc, "fit.min_n", MAX_N)?);
-    }
-    if let Some(b) = &f.bootstrap {
-        let x = *b.get_ref();
-        if !(0..=1_000_000).contains(&x) {
-            return Err(loc.at(
-                Some(b.span()),
-                "fit.bootstrap",
-                format!("{x} bootstrap replicates"),
-                Some("give 0 (no bootstrap) to 1000000".into()),
-            ));
-        }
-        out.bootstrap = Some(x as usize);
-    }
-    if let Some(e) = &f.epsilon {
-        out.reference_only = match e.get_ref().as_str() {
-            "each" => false,
-            "reference" => true,
-            other => {
-                return Err(loc.at(
-                    Some(e.span()),
-                    "fit.epsilon",
-                    format!("unknown choice `{other}`"),
-                    Some(choice_hint(other, &["each", "reference"])),
-                ));
-            }
-        };
-    }
-    Ok(out)
 }
 
 fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64, SpecError> {
@@ -520,76 +356,6 @@ fn positive(v: &Spanned<i64>, loc: &Locator, key: &str, max: i64) -> Result<u64,
         ));
     }
     Ok(x as u64)
-}
-
-/// `seeds = 16` (0..16), `seeds = [0, 4, 9]`, or `seeds = "10..20"` (half-open).
-fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<u64>, SpecError> {
-    let key = "sweep.seeds";
-    let hint = || {
-        Some(
-            "give a count (seeds = 16), a list (seeds = [0, 4, 9]) or a range (seeds = \"10..20\")"
-                .to_string(),
-        )
-    };
-    let err = |m: String| loc.at(Some(v.span()), key, m, hint());
-    match v.get_ref() {
-        toml::Value::Integer(k) => {
-            if *k < 1 {
-                return Err(err(format!("seeds = {k} gives no instances")));
-            }
-            if *k as u64 > MAX_SEEDS {
-                return Err(err(format!(
-                    "seeds = {k} is more than the {MAX_SEEDS} kiln accepts"
-                )));
-            }
-            Ok((0..*k as u64).collect())
-        }
-        toml::Value::Array(xs) => {
-            if xs.is_empty() {
-                return Err(err("the seed list is empty".into()));
-            }
-            if xs.len() as u64 > MAX_SEEDS {
-                return Err(err(format!(
-                    "{} seeds is more than the {MAX_SEEDS} kiln accepts",
-                    xs.len()
-                )));
-            }
-            let mut out = Vec::with_capacity(xs.len());
-            for x in xs {
-                match x {
-                    toml::Value::Integer(s) if *s >= 0 => {
-                        if out.contains(&(*s as u64)) {
-                            return Err(err(format!("seed {s} is listed twice")));
-                        }
-                        out.push(*s as u64)
-                    }
-                    other => {
-                        return Err(err(format!("`{other}` is not a seed (a whole number ≥ 0)")));
-                    }
-                }
-            }
-            Ok(out)
-        }
-        toml::Value::String(s) => {
-            let parsed = s.split_once("..").and_then(|(a, b)| {
-                Some((a.trim().parse::<u64>().ok()?, b.trim().parse::<u64>().ok()?))
-            });
-            match parsed {
-                Some((a, b)) if a < b => {
-                    if b - a > MAX_SEEDS {
-                        return Err(err(format!(
-                            "the range {s} holds {} seeds, more than the {MAX_SEEDS} kiln accepts",
-                            b - a
-                        )));
-                    }
-                    Ok((a..b).collect())
-                }
-                Some((a, b)) => Err(err(format!("the range \"{s}\" is empty ({a} ≥ {b})"))),
-                None => Err(err(format!("\"{s}\" is not a seed range"))),
-            }
-        }
-        other => Err(err(format!("`{other}` is not a seed count, list or range"))),
-    }
 }
 
 #[cfg(test)]

@@ -7,7 +7,7 @@ use std::ops::Range;
 use toml::Spanned;
 
 use super::error::Locator;
-use super::{MAX_N, SpecError};
+use super::{MAX_N, MAX_SEEDS, SpecError};
 use crate::model::ModelSpec;
 
 /// The sizes n of the sweep, each with its place in the file.
@@ -92,4 +92,74 @@ pub(super) fn epsilons(
         epsilons.push(x);
     }
     Ok(epsilons)
+}
+
+/// `seeds = 16` (0..16), `seeds = [0, 4, 9]`, or `seeds = "10..20"` (half-open).
+pub(super) fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<u64>, SpecError> {
+    let key = "sweep.seeds";
+    let hint = || {
+        Some(
+            "give a count (seeds = 16), a list (seeds = [0, 4, 9]) or a range (seeds = \"10..20\")"
+                .to_string(),
+        )
+    };
+    let err = |m: String| loc.at(Some(v.span()), key, m, hint());
+    match v.get_ref() {
+        toml::Value::Integer(k) => {
+            if *k < 1 {
+                return Err(err(format!("seeds = {k} gives no instances")));
+            }
+            if *k as u64 > MAX_SEEDS {
+                return Err(err(format!(
+                    "seeds = {k} is more than the {MAX_SEEDS} kiln accepts"
+                )));
+            }
+            Ok((0..*k as u64).collect())
+        }
+        toml::Value::Array(xs) => {
+            if xs.is_empty() {
+                return Err(err("the seed list is empty".into()));
+            }
+            if xs.len() as u64 > MAX_SEEDS {
+                return Err(err(format!(
+                    "{} seeds is more than the {MAX_SEEDS} kiln accepts",
+                    xs.len()
+                )));
+            }
+            let mut out = Vec::with_capacity(xs.len());
+            for x in xs {
+                match x {
+                    toml::Value::Integer(s) if *s >= 0 => {
+                        if out.contains(&(*s as u64)) {
+                            return Err(err(format!("seed {s} is listed twice")));
+                        }
+                        out.push(*s as u64)
+                    }
+                    other => {
+                        return Err(err(format!("`{other}` is not a seed (a whole number ≥ 0)")));
+                    }
+                }
+            }
+            Ok(out)
+        }
+        toml::Value::String(s) => {
+            let parsed = s.split_once("..").and_then(|(a, b)| {
+                Some((a.trim().parse::<u64>().ok()?, b.trim().parse::<u64>().ok()?))
+            });
+            match parsed {
+                Some((a, b)) if a < b => {
+                    if b - a > MAX_SEEDS {
+                        return Err(err(format!(
+                            "the range {s} holds {} seeds, more than the {MAX_SEEDS} kiln accepts",
+                            b - a
+                        )));
+                    }
+                    Ok((a..b).collect())
+                }
+                Some((a, b)) => Err(err(format!("the range \"{s}\" is empty ({a} ≥ {b})"))),
+                None => Err(err(format!("\"{s}\" is not a seed range"))),
+            }
+        }
+        other => Err(err(format!("`{other}` is not a seed count, list or range"))),
+    }
 }

@@ -308,9 +308,7 @@ fn objective(p: &Problem, u: &[f64]) -> (f64, Vec<f64>) {
     (v, gu)
 }
 
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
+use crate::kernels::dot_sequential as dot;
 
 /// Minimises on the grid of K intervals from `m0` (one value per interval).
 fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f64>) -> FullRsb {

@@ -23,8 +23,8 @@ fn exercise(text: &str) {
             let p = plan::expand(&s);
             assert_eq!(p.cells.len(), cells);
         }
-        let _ = memory::check(&s, Some(1 << 30));
-        let _ = memory::check(&s, None);
+        let _ = memory::cells_that_fit(&s, Some(1 << 30));
+        let _ = memory::cells_that_fit(&s, None);
     }
 }
 

@@ -106,9 +106,9 @@ pub fn mean_se(xs: &[f64]) -> (f64, f64) {
 pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
     use kiln::model::Instance;
     let d = match inst {
-        Instance::Sphere(m) | Instance::Mixed(m) => m.dense().expect("a p = 2 term"),
-        Instance::Dense(d) => d,
-        Instance::Sparse(_) | Instance::Spins(_) => panic!("reference_top takes dense instances"),
+        Instance::Sphere(m) | Instance::Cube(m) => m.dense().expect("a p = 2 term"),
+        Instance::Sk(d) => d,
+        Instance::Graph(_) | Instance::Spins(_) => panic!("reference_top takes dense instances"),
     };
     let n = d.n();
     let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);

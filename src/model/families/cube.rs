@@ -60,7 +60,7 @@ impl Family for Cube {
         mixed_flip_cost(&self.xi, n)
     }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        Instance::Mixed(Mixed::sample(n, &self.xi, couplings, instance, epsilon))
+        Instance::Cube(Mixed::sample(n, &self.xi, couplings, instance, epsilon))
     }
     fn as_any(&self) -> &dyn std::any::Any {
         self

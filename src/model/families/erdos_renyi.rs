@@ -73,7 +73,7 @@ impl Family for ErdosRenyi {
         self.degree.max(1.0)
     }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        Instance::Sparse(sparse::erdos_renyi(
+        Instance::Graph(sparse::erdos_renyi(
             n,
             self.degree,
             couplings,

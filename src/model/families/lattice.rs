@@ -122,7 +122,7 @@ impl Family for Lattice {
         self.degree() as f64
     }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        Instance::Sparse(sparse::lattice(
+        Instance::Graph(sparse::lattice(
             self.side(n as u64),
             self.dimension as usize,
             couplings,

@@ -95,7 +95,7 @@ impl Family for Regular {
         (self.degree as f64).max(1.0)
     }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        Instance::Sparse(sparse::regular(
+        Instance::Graph(sparse::regular(
             n,
             self.degree as usize,
             couplings,

@@ -51,7 +51,7 @@ impl Family for Sk {
         n as f64
     }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        Instance::Dense(dense::sample(n, couplings, instance, epsilon))
+        Instance::Sk(dense::sample(n, couplings, instance, epsilon))
     }
     fn as_any(&self) -> &dyn std::any::Any {
         self
