@@ -128,12 +128,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("beta", self.beta)
             .with("field", self.field)
@@ -164,9 +159,6 @@ impl Algorithm for Params {
                 "it runs on dense models on the cube (sk, cube)",
             )),
         }
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

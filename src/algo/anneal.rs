@@ -81,12 +81,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("sweeps", self.sweeps)
             .with("beta", vec![self.beta[0], self.beta[1]])
@@ -104,9 +99,6 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

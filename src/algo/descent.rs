@@ -97,12 +97,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("order", self.order.name())
             .with("max_sweeps", self.max_sweeps)
@@ -119,9 +114,6 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

@@ -34,12 +34,7 @@ fn parse(_s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c
     }
@@ -63,9 +58,6 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, _rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d))
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

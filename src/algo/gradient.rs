@@ -88,12 +88,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("step", self.step)
             .with("tol", self.tol)
@@ -130,9 +125,6 @@ impl Algorithm for Params {
                 rng,
             ),
         })
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

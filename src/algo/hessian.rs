@@ -85,12 +85,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("steps", self.steps)
             .with("tol", self.tol)
@@ -120,9 +115,6 @@ impl Algorithm for Params {
                 "Hessian ascent runs on the sphere",
             )),
         }
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

@@ -147,12 +147,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("rank", self.rank)
             .with("tol", self.tol)
@@ -187,9 +182,6 @@ impl Algorithm for Params {
             Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
             Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
         }
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

@@ -292,6 +292,23 @@ pub fn reference(kinds: &[Kind]) -> String {
     out
 }
 
+/// The identity methods every `impl Algorithm` in a kind's file has: `kind` (its `KIND`'s
+/// name), `revision` (its `REVISION`) and `as_any`.
+macro_rules! identity {
+    () => {
+        fn kind(&self) -> &'static str {
+            KIND.name
+        }
+        fn revision(&self) -> u32 {
+            REVISION
+        }
+        fn as_any(&self) -> &dyn std::any::Any {
+            self
+        }
+    };
+}
+pub(crate) use identity;
+
 /// The refusal of the kinds that move ±1 spins, on the sphere.
 pub(crate) fn spins_only(m: &ModelSpec) -> Option<&'static str> {
     (!m.family.spins()).then_some("it moves ±1 spins; the sphere family has real coordinates")

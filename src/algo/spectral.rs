@@ -83,12 +83,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         c.with("tol", self.tol)
             .with("basis", self.basis)
@@ -118,9 +113,6 @@ impl Algorithm for Params {
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
         }
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

@@ -99,12 +99,7 @@ fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
 }
 
 impl Algorithm for Params {
-    fn kind(&self) -> &'static str {
-        KIND.name
-    }
-    fn revision(&self) -> u32 {
-        REVISION
-    }
+    super::identity!();
     fn canon(&self, c: Canon) -> Canon {
         // Canonical name kept from before the key was renamed, so cache keys do not change.
         c.with("replicas", self.temperatures)
@@ -123,9 +118,6 @@ impl Algorithm for Params {
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 

@@ -11,7 +11,8 @@ pub mod sphere;
 
 use crate::algo::Key;
 use crate::cell::Canon;
-use crate::model::{Couplings, Instance, sk as dense, sparse, tensor};
+use crate::model::{Couplings, Instance, mixed::Mixed, sk as dense, sparse, tensor};
+use crate::rng::Id;
 use crate::spec::{Settings, SpecError};
 use crate::theory::Mixture;
 
@@ -101,37 +102,76 @@ pub(crate) fn mixed_disorder(xi: &Mixture, couplings: Couplings) -> Canon {
     }
 }
 
-/// Peak bytes of a mixture instance: the dense p = 2 matrix and a tensor per p ≥ 3.
-pub(crate) fn mixed_bytes(xi: &Mixture, n: u64) -> u128 {
-    let mut b: u128 = 64 * n as u128;
-    for &(p, _) in &xi.terms {
-        b = b.saturating_add(if p == 2 {
-            dense::instance_bytes(n)
+/// The mixed p-spin model with covariance ξ: on the cube (`SPHERE = false`, ±1 spins) or on
+/// the sphere ‖x‖² = n (`SPHERE = true`). The two share their couplings for the same ξ, so one
+/// implementation serves both files.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MixtureFamily<const SPHERE: bool> {
+    pub xi: Mixture,
+}
+
+impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
+    fn name(&self) -> &'static str {
+        if SPHERE {
+            sphere::ENTRY.name
         } else {
-            tensor::tuples(n, p).saturating_mul(8)
-        });
+            cube::ENTRY.name
+        }
     }
-    b
-}
-
-/// Entries a flip touches in a mixture instance.
-pub(crate) fn mixed_flip_cost(xi: &Mixture, n: u64) -> f64 {
-    xi.terms
-        .iter()
-        .map(|&(p, _)| tensor::tuples(n.saturating_sub(1), p - 1) as f64)
-        .sum::<f64>()
-        .max(1.0)
-}
-
-/// Why n is too small for the mixture's largest degree.
-pub(crate) fn mixed_size_problem(xi: &Mixture, n: u64) -> Option<(String, String)> {
-    let p = xi.terms.iter().map(|t| t.0).max().unwrap_or(2) as u64;
-    (n < p).then(|| {
-        (
-            format!("n = {n} is smaller than the largest degree p = {p}"),
-            "a p-spin term needs n ≥ p".into(),
-        )
-    })
+    fn revision(&self) -> u32 {
+        MIXED_REVISION
+    }
+    fn params_canon(&self, c: Canon) -> Canon {
+        c.with("xi", self.xi.canon())
+    }
+    fn disorder_canon(&self, _sampler: Canon, couplings: Couplings) -> Canon {
+        mixed_disorder(&self.xi, couplings)
+    }
+    fn spins(&self) -> bool {
+        !SPHERE
+    }
+    fn mixture(&self) -> Option<&Mixture> {
+        Some(&self.xi)
+    }
+    fn size_problem(&self, n: u64) -> Option<(String, String)> {
+        let p = self.xi.terms.iter().map(|t| t.0).max().unwrap_or(2) as u64;
+        (n < p).then(|| {
+            (
+                format!("n = {n} is smaller than the largest degree p = {p}"),
+                "a p-spin term needs n ≥ p".into(),
+            )
+        })
+    }
+    fn instance_bytes(&self, n: u64) -> u128 {
+        let mut b: u128 = 64 * n as u128;
+        for &(p, _) in &self.xi.terms {
+            b = b.saturating_add(if p == 2 {
+                dense::instance_bytes(n)
+            } else {
+                tensor::tuples(n, p).saturating_mul(8)
+            });
+        }
+        b
+    }
+    fn flip_cost(&self, n: u64) -> f64 {
+        self.xi
+            .terms
+            .iter()
+            .map(|&(p, _)| tensor::tuples(n.saturating_sub(1), p - 1) as f64)
+            .sum::<f64>()
+            .max(1.0)
+    }
+    fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
+        let m = Mixed::sample(n, &self.xi, couplings, instance, epsilon);
+        if SPHERE {
+            Instance::Sphere(m)
+        } else {
+            Instance::Cube(m)
+        }
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
 }
 
 /// The `degree` key of the graph families.
