@@ -166,7 +166,8 @@ pub fn loglog_slope(points: &[(f64, f64, f64)]) -> Option<f64> {
     (sxx > 0.0).then(|| sxy / sxx)
 }
 
-fn wrap(text: &str, width: usize) -> Vec<String> {
+/// Greedy word wrap at `width` characters.
+pub(crate) fn wrap(text: &str, width: usize) -> Vec<String> {
     let mut lines = vec![String::new()];
     for word in text.split_whitespace() {
         let last = lines.last_mut().expect("one line");

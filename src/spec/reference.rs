@@ -40,7 +40,7 @@ pub fn listing(families: &[FamilyEntry], kinds: &[Kind]) -> String {
 
 fn block(out: &mut String, name: &str, summary: &str, keys: &[Key]) {
     out.push_str(&format!("  {name}\n"));
-    for line in wrap(summary, 88) {
+    for line in crate::plot::figures::wrap(summary, 88) {
         out.push_str(&format!("      {line}\n"));
     }
     let width = keys.iter().map(|k| k.name.len()).max().unwrap_or(0);
@@ -58,21 +58,4 @@ fn block(out: &mut String, name: &str, summary: &str, keys: &[Key]) {
         ));
     }
     out.push('\n');
-}
-
-/// Greedy word wrap at `width` characters.
-fn wrap(text: &str, width: usize) -> Vec<String> {
-    let mut lines = vec![String::new()];
-    for word in text.split_whitespace() {
-        let last = lines.last_mut().expect("one line");
-        if !last.is_empty() && last.chars().count() + 1 + word.chars().count() > width {
-            lines.push(word.to_string());
-        } else {
-            if !last.is_empty() {
-                last.push(' ');
-            }
-            last.push_str(word);
-        }
-    }
-    lines
 }

@@ -351,20 +351,30 @@ impl Cache {
     }
 }
 
-fn decode_record(bytes: &[u8], key: &Key) -> Result<Record, String> {
+/// The body of a text entry `<magic><sha256 of body>\n<body>\n` whose checksum matches.
+pub(crate) fn checked_body<'a>(
+    bytes: &'a [u8],
+    magic: &str,
+    what: &str,
+) -> Result<&'a str, String> {
     let text = std::str::from_utf8(bytes).map_err(|_| "not UTF-8 text".to_string())?;
     let (head, body) = text
         .split_once('\n')
         .ok_or_else(|| "no header line (truncated?)".to_string())?;
     let sum = head
-        .strip_prefix(RECORD_MAGIC)
-        .ok_or_else(|| "not a kiln record header".to_string())?;
+        .strip_prefix(magic)
+        .ok_or_else(|| format!("not a kiln {what} header"))?;
     let body = body
         .strip_suffix('\n')
         .ok_or_else(|| "truncated body".to_string())?;
     if hex::encode(Sha256::digest(body.as_bytes())) != sum {
         return Err("checksum mismatch".into());
     }
+    Ok(body)
+}
+
+fn decode_record(bytes: &[u8], key: &Key) -> Result<Record, String> {
+    let body = checked_body(bytes, RECORD_MAGIC, "record")?;
     let r: Record = serde_json::from_str(body).map_err(|e| format!("unreadable body: {e}"))?;
     if r.format != RECORD_FORMAT {
         return Err(format!(

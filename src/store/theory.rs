@@ -40,19 +40,7 @@ pub fn read(cache: &Cache, hex_key: &str) -> Result<Lookup<serde_json::Value>, S
 }
 
 fn decode(bytes: &[u8], hex_key: &str) -> Result<serde_json::Value, String> {
-    let text = std::str::from_utf8(bytes).map_err(|_| "not UTF-8 text".to_string())?;
-    let (head, body) = text
-        .split_once('\n')
-        .ok_or_else(|| "no header line (truncated?)".to_string())?;
-    let sum = head
-        .strip_prefix(THEORY_MAGIC)
-        .ok_or_else(|| "not a kiln theory entry".to_string())?;
-    let body = body
-        .strip_suffix('\n')
-        .ok_or_else(|| "truncated body".to_string())?;
-    if hex::encode(Sha256::digest(body.as_bytes())) != sum {
-        return Err("checksum mismatch".into());
-    }
+    let body = super::cache::checked_body(bytes, THEORY_MAGIC, "theory entry")?;
     let v: serde_json::Value =
         serde_json::from_str(body).map_err(|e| format!("unreadable body: {e}"))?;
     if v["key"] != hex_key {
