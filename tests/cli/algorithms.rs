@@ -167,7 +167,10 @@ fn hessian_ascent_on_the_sphere() {
     let algo = AlgoSpec::new(hessian::Params::default());
     let (mut xs, mut ys, mut ws) = (Vec::new(), Vec::new(), Vec::new());
     for n in [100usize, 200, 400] {
-        let e: Vec<f64> = (0..4)
+        // The four instances are independent: run them side by side (same numbers).
+        use rayon::prelude::*;
+        let e: Vec<f64> = (0..4u64)
+            .into_par_iter()
             .map(|t| {
                 let inst = m3.sample(n, &id("h3", t), 0.0);
                 let out = algo
@@ -523,19 +526,28 @@ fn iamp_approaches_the_parisi_value() {
     let algo = AlgoSpec::new(iamp::Params::default());
     let desc = AlgoSpec::new(descent::Params::default());
     let n = 3000;
-    let (mut e, mut dsc, mut relax) = (Vec::new(), Vec::new(), Vec::new());
-    for t in 0..3 {
-        let inst = m.sample(n, &id("iamp", t), 0.0);
-        let out = algo
-            .run(&inst, &mut stream(&id("iampr", t), Purpose::Algorithm, 0))
-            .unwrap();
-        e.push(inst.energy(&out.spins) / n as f64);
-        relax.push(out.info.relaxation.unwrap());
-        let d = desc
-            .run(&inst, &mut stream(&id("iampd", t), Purpose::Algorithm, 0))
-            .unwrap();
-        dsc.push(inst.energy(&d.spins) / n as f64);
-    }
+    // The three instances are independent: run side by side, collected in order.
+    use rayon::prelude::*;
+    let runs: Vec<(f64, f64, f64)> = (0..3u64)
+        .into_par_iter()
+        .map(|t| {
+            let inst = m.sample(n, &id("iamp", t), 0.0);
+            let out = algo
+                .run(&inst, &mut stream(&id("iampr", t), Purpose::Algorithm, 0))
+                .unwrap();
+            let d = desc
+                .run(&inst, &mut stream(&id("iampd", t), Purpose::Algorithm, 0))
+                .unwrap();
+            (
+                inst.energy(&out.spins) / n as f64,
+                inst.energy(&d.spins) / n as f64,
+                out.info.relaxation.unwrap(),
+            )
+        })
+        .collect();
+    let e: Vec<f64> = runs.iter().map(|r| r.0).collect();
+    let dsc: Vec<f64> = runs.iter().map(|r| r.1).collect();
+    let relax: Vec<f64> = runs.iter().map(|r| r.2).collect();
     let (me, se) = crate::util::mean_se(&e);
     let (md, sd) = crate::util::mean_se(&dsc);
     let (mr, sr) = crate::util::mean_se(&relax);

@@ -64,16 +64,23 @@ fn covariance_is_xi_of_the_overlap() {
         let m = mixed("cube", &terms);
         let s: Vec<i8> = vec![1; n as usize];
         let flips = [n / 2, n / 4, 0]; // R = 0, 0.5, 1
-        let mut prods: Vec<Vec<f64>> = vec![Vec::new(); 3];
-        for t in 0..samples {
-            let inst = m.sample(n as usize, &id(&format!("{terms:?}"), t), 0.0);
-            let h0 = inst.energy(&s);
-            for (r, &a) in flips.iter().enumerate() {
-                let mut s2 = s.clone();
-                s2[..a as usize].iter_mut().for_each(|x| *x = -1);
-                prods[r].push(h0 * inst.energy(&s2) / n as f64);
-            }
-        }
+        // Samples are independent: drawn side by side, collected in order (same numbers).
+        use rayon::prelude::*;
+        let per_sample: Vec<[f64; 3]> = (0..samples)
+            .into_par_iter()
+            .map(|t| {
+                let inst = m.sample(n as usize, &id(&format!("{terms:?}"), t), 0.0);
+                let h0 = inst.energy(&s);
+                flips.map(|a| {
+                    let mut s2 = s.clone();
+                    s2[..a as usize].iter_mut().for_each(|x| *x = -1);
+                    h0 * inst.energy(&s2) / n as f64
+                })
+            })
+            .collect();
+        let prods: Vec<Vec<f64>> = (0..3)
+            .map(|r| per_sample.iter().map(|p| p[r]).collect())
+            .collect();
         let xi = m.mixture().unwrap();
         for (r, &a) in flips.iter().enumerate() {
             let (mean, se) = mean_se(&prods[r]);
