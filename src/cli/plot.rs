@@ -253,11 +253,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         }
         let caption = format!(
             "{} ({} couplings): mean energy per spin over seeds at ε = 0, error bars 1 SE; lines: fits e∞ + a n^-ω with ω = {:.3} and 1σ bands; points at n^-ω = 0: extrapolations. {}",
-            if family == "sk" {
-                "SK".to_string()
-            } else {
-                family.to_string()
-            },
+            crate::model::find(family).map_or(family.as_str(), |f| f.title),
             couplings,
             a.omega,
             refs.iter()

@@ -155,6 +155,8 @@ pub trait Family: std::fmt::Debug + Send + Sync + 'static {
 #[derive(Clone, Copy)]
 pub struct FamilyEntry {
     pub name: &'static str,
+    /// How figures and captions name the family (e.g. "SK").
+    pub title: &'static str,
     pub summary: &'static str,
     pub keys: &'static [crate::algo::Key],
     pub couplings: &'static [Couplings],

@@ -277,6 +277,7 @@ impl kiln::model::Family for FieldMagnet {
 
 const TOY_FAMILY: kiln::model::FamilyEntry = kiln::model::FamilyEntry {
     name: "toy-field-magnet",
+    title: "toy field magnet",
     summary: "A test family: the Curie–Weiss model in a Gaussian random field.",
     keys: &[Key {
         name: "coupling",

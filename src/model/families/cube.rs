@@ -9,6 +9,7 @@ use crate::spec::{Settings, SpecError};
 /// The registry entry of `cube`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "cube",
+    title: "cube",
     summary: "Mixed p-spin model on the hypercube {±1}^n: a Gaussian process with covariance n·ξ(⟨σ, σ'⟩/n).",
     keys: &[XI],
     couplings: &[Couplings::Gaussian, Couplings::Pm1],

@@ -12,6 +12,7 @@ use crate::spec::{Settings, SpecError};
 /// The registry entry of `erdos-renyi`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "erdos-renyi",
+    title: "erdos-renyi",
     summary: "Erdős–Rényi graph G(n, d/n), H(σ) = Σ_{edges} J_ij σ_i σ_j; with `cut` couplings maximising H is max-cut.",
     keys: &[DEGREE],
     couplings: &[Couplings::Gaussian, Couplings::Pm1, Couplings::Cut],

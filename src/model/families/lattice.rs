@@ -13,6 +13,7 @@ use crate::spec::{Settings, SpecError};
 /// The registry entry of `lattice`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "lattice",
+    title: "lattice",
     summary: "Edwards–Anderson glass on the periodic L^D lattice: H(σ) = Σ_{⟨ij⟩} J_ij σ_i σ_j over nearest neighbours.",
     keys: &[Key {
         name: "dimension",

@@ -12,6 +12,7 @@ use crate::spec::{Settings, SpecError};
 /// The registry entry of `regular`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "regular",
+    title: "regular",
     summary: "Random d-regular graph, H(σ) = Σ_{edges} J_ij σ_i σ_j; with `cut` couplings maximising H is max-cut.",
     keys: &[DEGREE],
     couplings: &[Couplings::Gaussian, Couplings::Pm1, Couplings::Cut],

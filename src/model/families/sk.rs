@@ -11,6 +11,7 @@ use crate::theory::Mixture;
 /// The registry entry of `sk`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "sk",
+    title: "SK",
     summary: "Sherrington–Kirkpatrick: H(σ) = n^{-1/2} Σ_{i<j} J_ij σ_i σ_j on {±1}^n, ξ(q) = q²/2.",
     keys: &[],
     couplings: &[Couplings::Gaussian, Couplings::Pm1],

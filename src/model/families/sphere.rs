@@ -9,6 +9,7 @@ use crate::spec::{Settings, SpecError};
 /// The registry entry of `sphere`.
 pub const ENTRY: FamilyEntry = FamilyEntry {
     name: "sphere",
+    title: "sphere",
     summary: "Mixed p-spin model on the sphere ‖x‖² = n: the same process on real points (its couplings are the cube's for the same ξ).",
     keys: &[XI],
     couplings: &[Couplings::Gaussian, Couplings::Pm1],
