@@ -26,4 +26,6 @@ fn main() {
     println!("cargo:rerun-if-changed=.git/HEAD");
     println!("cargo:rerun-if-changed=.git/index");
     println!("cargo:rerun-if-changed=build.rs");
+    // A source edit without a git add must still mark the build dirty.
+    println!("cargo:rerun-if-changed=src");
 }

@@ -72,6 +72,25 @@ fn parse_toy(s: &Settings<'_>) -> Result<AlgoSpec, SpecError> {
     }))
 }
 
+/// Runs `kiln run <spec> --quiet` in this process (where the toys are registered), with the
+/// results under the workspace; returns the results folder.
+fn run_in_process(spec: &std::path::Path, w: &Work) -> std::path::PathBuf {
+    let results = w.path().join("results");
+    let code = kiln::cli::main_from([
+        "kiln",
+        "run",
+        spec.to_str().unwrap(),
+        "--results",
+        results.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert_eq!(
+        format!("{code:?}"),
+        format!("{:?}", std::process::ExitCode::SUCCESS)
+    );
+    results
+}
+
 fn register_toy() {
     static ONCE: std::sync::Once = std::sync::Once::new();
     ONCE.call_once(|| kiln::algo::register(TOY).expect("the toy name is free"));
@@ -108,19 +127,7 @@ fn a_kind_registered_from_outside_runs_end_to_end() {
     let e = kiln::spec::load(&bad).unwrap_err().to_string();
     assert!(e.contains("does not apply to kind `toy-flipper`"), "{e}");
 
-    let results = w.path().join("results");
-    let code = kiln::cli::main_from([
-        "kiln",
-        "run",
-        spec.to_str().unwrap(),
-        "--results",
-        results.to_str().unwrap(),
-        "--quiet",
-    ]);
-    assert_eq!(
-        format!("{code:?}"),
-        format!("{:?}", std::process::ExitCode::SUCCESS)
-    );
+    let results = run_in_process(&spec, &w);
     let table = results.join("small/cells.parquet");
     let df = kiln::store::table::read(&table).expect("the table reads");
     let kinds: Vec<String> = df
@@ -325,19 +332,7 @@ fn a_family_registered_from_outside_runs_end_to_end() {
         "{e}"
     );
 
-    let results = w.path().join("results");
-    let code = kiln::cli::main_from([
-        "kiln",
-        "run",
-        spec.to_str().unwrap(),
-        "--results",
-        results.to_str().unwrap(),
-        "--quiet",
-    ]);
-    assert_eq!(
-        format!("{code:?}"),
-        format!("{:?}", std::process::ExitCode::SUCCESS)
-    );
+    let results = run_in_process(&spec, &w);
     let df = kiln::store::table::read(&results.join("magnet/cells.parquet")).expect("a table");
     // 2 sizes × 3 seeds × 2 ε levels × 4 algorithms.
     assert_eq!(df.height(), 48);
