@@ -104,6 +104,9 @@ pub struct RunArgs {
     pub shard: Option<String>,
 }
 
+/// Largest `--jobs`: one thread per cell in flight.
+pub const MAX_JOBS: usize = 1024;
+
 /// An error caused by the user's input: exit status 2.
 #[derive(Debug, thiserror::Error)]
 #[error("{0}")]
@@ -130,6 +133,9 @@ impl CommonArgs {
     pub fn jobs(&self) -> Result<usize, InputError> {
         match self.jobs {
             Some(0) => Err(InputError("--jobs 0: give at least 1".into())),
+            Some(j) if j > MAX_JOBS => Err(InputError(format!(
+                "--jobs {j}: at most {MAX_JOBS} cells run at once (each has its own thread)"
+            ))),
             Some(j) => Ok(j),
             None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
         }

@@ -33,6 +33,8 @@ pub const DEFAULT_ORIGIN: &str = "built-in default (experiments/default.toml)";
 
 /// Largest number of cells one spec may expand to.
 pub const MAX_CELLS: u128 = 1_000_000;
+/// Largest spec file kiln reads, in bytes.
+pub const MAX_SPEC_BYTES: u64 = 4 << 20;
 /// Largest number of instance seeds.
 pub const MAX_SEEDS: u64 = 1_000_000;
 /// Largest size n accepted by the parser (memory is checked separately, per machine).
@@ -151,17 +153,54 @@ impl Spec {
 /// Reads and parses a spec file.
 pub fn load(path: &Path) -> Result<Spec, SpecError> {
     let origin = path.display().to_string();
-    let text = std::fs::read_to_string(path).map_err(|e| SpecError {
+    let refuse = |message: String, hint: &str| SpecError {
         origin: origin.clone(),
         line: None,
         key: None,
-        message: format!("cannot read the file: {e}"),
-        hint: Some(if e.kind() == std::io::ErrorKind::NotFound {
-            "check the path; `kiln run` with no spec runs the built-in default".into()
-        } else {
-            "check that the file is readable UTF-8 text".into()
-        }),
-    })?;
+        message,
+        hint: Some(hint.into()),
+    };
+    let unreadable = |e: std::io::Error| {
+        refuse(
+            format!("cannot read the file: {e}"),
+            if e.kind() == std::io::ErrorKind::NotFound {
+                "check the path; `kiln run` with no spec runs the built-in default"
+            } else {
+                "check that the file is readable UTF-8 text"
+            },
+        )
+    };
+    // A device, a FIFO or a folder would block or grow without end: only regular files, and
+    // no larger than MAX_SPEC_BYTES (the largest useful spec is a few hundred kilobytes).
+    let meta = std::fs::metadata(path).map_err(unreadable)?;
+    if !meta.is_file() {
+        return Err(refuse(
+            "not a regular file".into(),
+            "give the path of a TOML spec file",
+        ));
+    }
+    if meta.len() > MAX_SPEC_BYTES {
+        return Err(refuse(
+            format!(
+                "the file has {} bytes, more than the {MAX_SPEC_BYTES} a spec may have",
+                meta.len()
+            ),
+            "list seeds as a count or a range (seeds = 1000, seeds = \"0..1000\") rather than one by one",
+        ));
+    }
+    let mut text = String::new();
+    use std::io::Read;
+    std::fs::File::open(path)
+        .and_then(|f| f.take(MAX_SPEC_BYTES + 1).read_to_string(&mut text))
+        .map_err(unreadable)?;
+    if text.len() as u64 > MAX_SPEC_BYTES {
+        return Err(refuse(
+            format!(
+                "the file grew past the {MAX_SPEC_BYTES} bytes a spec may have while it was read"
+            ),
+            "give a spec file that is not being written",
+        ));
+    }
     parse(&text, &origin)
 }
 

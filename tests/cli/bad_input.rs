@@ -445,3 +445,51 @@ fn algorithms_are_matched_to_families() {
         &["`amp` cannot run on the `regular` family"],
     );
 }
+
+/// Hostile inputs are refused at once with exit 2 and nothing written (each of these used to
+/// block, grow without bound or run for minutes): a device that never ends, a FIFO nobody
+/// writes to, a folder, a spec file over the size cap, and a job count far beyond any machine.
+#[test]
+fn hostile_files_and_job_counts_are_refused_up_front() {
+    let w = Work::new();
+    let fifo = w.path().join("pipe.toml");
+    let made = std::process::Command::new("mkfifo")
+        .arg(&fifo)
+        .status()
+        .is_ok_and(|s| s.success());
+    let big = w.spec(
+        "big.toml",
+        &format!(
+            "{SMALL}\n# {}\n",
+            "x".repeat(kiln::spec::MAX_SPEC_BYTES as usize)
+        ),
+    );
+    let mut cases: Vec<(String, &str)> = vec![
+        ("/dev/zero".into(), "not a regular file"),
+        (w.path().display().to_string(), "not a regular file"),
+        (big.display().to_string(), "more than the"),
+    ];
+    if made {
+        cases.push((fifo.display().to_string(), "not a regular file"));
+    }
+    for (path, expected) in &cases {
+        for cmd in ["check", "run"] {
+            let o = w.kiln(&[cmd, path]);
+            assert_eq!(o.status.code(), Some(2), "{cmd} {path}: {}", stderr(&o));
+            assert!(
+                stderr(&o).contains(expected),
+                "{cmd} {path}: {}",
+                stderr(&o)
+            );
+            assert!(stderr(&o).contains("hint:"), "{}", stderr(&o));
+        }
+    }
+    let spec = w.spec("ok.toml", SMALL);
+    let o = w.kiln(&["run", spec.to_str().unwrap(), "--jobs", "100000"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("at most 1024"), "{}", stderr(&o));
+    assert!(
+        !w.path().join("results").exists(),
+        "a refusal wrote results"
+    );
+}
