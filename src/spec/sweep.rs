@@ -127,10 +127,11 @@ pub(super) fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<
                 )));
             }
             let mut out = Vec::with_capacity(xs.len());
+            let mut seen = HashSet::with_capacity(xs.len());
             for x in xs {
                 match x {
                     toml::Value::Integer(s) if *s >= 0 => {
-                        if out.contains(&(*s as u64)) {
+                        if !seen.insert(*s as u64) {
                             return Err(err(format!("seed {s} is listed twice")));
                         }
                         out.push(*s as u64)
