@@ -14,6 +14,7 @@ pub mod linalg;
 pub mod measure;
 pub mod model;
 pub mod plot;
+pub mod registry;
 pub mod rng;
 pub mod spec;
 pub mod store;

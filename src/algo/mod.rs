@@ -18,6 +18,7 @@ use std::collections::BTreeMap;
 
 use crate::cell::Canon;
 use crate::model::{Instance, ModelSpec};
+use crate::registry::{Named, Registry};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
 
@@ -128,45 +129,38 @@ const BUILTIN: &[Kind] = &[
     iamp::KIND,
 ];
 
-/// Kinds registered at run time by a program that links kiln as a library (tests, extensions).
-static REGISTERED: std::sync::RwLock<Vec<Kind>> = std::sync::RwLock::new(Vec::new());
+/// The kinds: the built-in list, then those registered at run time.
+static KINDS: Registry<Kind> = Registry::new(BUILTIN, "an algorithm kind");
+
+impl Named for Kind {
+    fn name(&self) -> &'static str {
+        self.name
+    }
+}
 
 /// Adds a kind to the registry for this process. Refused when its name is taken.
 pub fn register(kind: Kind) -> Result<(), String> {
-    let mut extra = REGISTERED.write().unwrap_or_else(|e| e.into_inner());
-    if BUILTIN
-        .iter()
-        .chain(extra.iter())
-        .any(|k| k.name == kind.name)
-    {
-        return Err(format!(
-            "an algorithm kind `{}` is already registered",
-            kind.name
-        ));
-    }
-    extra.push(kind);
-    Ok(())
+    KINDS.register(kind)
 }
 
 /// The kinds kiln ships, in list order.
 pub fn builtin() -> &'static [Kind] {
-    BUILTIN
+    KINDS.builtin()
 }
 
 /// Every kind: the built-in list, then those registered at run time, in registration order.
 pub fn kinds() -> Vec<Kind> {
-    let extra = REGISTERED.read().unwrap_or_else(|e| e.into_inner());
-    BUILTIN.iter().chain(extra.iter()).copied().collect()
+    KINDS.all()
 }
 
 /// The kind named `name`, if any.
 pub fn find(name: &str) -> Option<Kind> {
-    kinds().into_iter().find(|k| k.name == name)
+    KINDS.find(name)
 }
 
 /// The kinds' names, in list order.
 pub fn kind_names() -> Vec<&'static str> {
-    kinds().iter().map(|k| k.name).collect()
+    KINDS.names()
 }
 
 /// A fully resolved algorithm with its settings (defaults filled in). Cheap to clone; equal
@@ -276,18 +270,7 @@ pub fn reference(kinds: &[Kind]) -> String {
             "#### `kind = \"{}\"`\n\n{}\n\n",
             k.name, k.summary
         ));
-        if k.keys.is_empty() {
-            out.push_str("No settings.\n\n");
-            continue;
-        }
-        out.push_str("| key | type | default | meaning |\n| --- | --- | --- | --- |\n");
-        for key in k.keys {
-            out.push_str(&format!(
-                "| `{}` | {} | {} | {} |\n",
-                key.name, key.ty, key.default, key.doc
-            ));
-        }
-        out.push('\n');
+        out.push_str(&crate::spec::key_table(k.keys, "No settings."));
     }
     out
 }

@@ -18,6 +18,7 @@ pub mod tensor;
 use std::sync::Arc;
 
 use crate::cell::Canon;
+use crate::registry::{Named, Registry};
 use crate::rng::{Id, Stream};
 use crate::spec::{Settings, SpecError};
 use crate::theory::Mixture;
@@ -176,41 +177,38 @@ const BUILTIN: &[FamilyEntry] = &[
     families::lattice::ENTRY,
 ];
 
-static REGISTERED: std::sync::RwLock<Vec<FamilyEntry>> = std::sync::RwLock::new(Vec::new());
+/// The families: the built-in list, then those registered at run time.
+static FAMILIES: Registry<FamilyEntry> = Registry::new(BUILTIN, "a family");
+
+impl Named for FamilyEntry {
+    fn name(&self) -> &'static str {
+        self.name
+    }
+}
 
 /// Adds a family to the registry for this process. Refused when its name is taken.
 pub fn register(entry: FamilyEntry) -> Result<(), String> {
-    let mut extra = REGISTERED.write().unwrap_or_else(|e| e.into_inner());
-    if BUILTIN
-        .iter()
-        .chain(extra.iter())
-        .any(|f| f.name == entry.name)
-    {
-        return Err(format!("a family `{}` is already registered", entry.name));
-    }
-    extra.push(entry);
-    Ok(())
+    FAMILIES.register(entry)
 }
 
 /// The families kiln ships, in list order.
 pub fn builtin() -> &'static [FamilyEntry] {
-    BUILTIN
+    FAMILIES.builtin()
 }
 
 /// Every family: the built-in list, then those registered at run time.
 pub fn families() -> Vec<FamilyEntry> {
-    let extra = REGISTERED.read().unwrap_or_else(|e| e.into_inner());
-    BUILTIN.iter().chain(extra.iter()).copied().collect()
+    FAMILIES.all()
 }
 
 /// The family named `name`, if any.
 pub fn find(name: &str) -> Option<FamilyEntry> {
-    families().into_iter().find(|f| f.name == name)
+    FAMILIES.find(name)
 }
 
 /// The families' names, in list order.
 pub fn family_names() -> Vec<&'static str> {
-    families().iter().map(|f| f.name).collect()
+    FAMILIES.names()
 }
 
 /// The `[model]` reference of the families, as Markdown (the README's family section).
@@ -228,18 +226,7 @@ pub fn reference(entries: &[FamilyEntry]) -> String {
                 .join(", "),
             f.sizes
         ));
-        if f.keys.is_empty() {
-            out.push_str("No other keys.\n\n");
-            continue;
-        }
-        out.push_str("| key | type | default | meaning |\n| --- | --- | --- | --- |\n");
-        for key in f.keys {
-            out.push_str(&format!(
-                "| `{}` | {} | {} | {} |\n",
-                key.name, key.ty, key.default, key.doc
-            ));
-        }
-        out.push('\n');
+        out.push_str(&crate::spec::key_table(f.keys, "No other keys."));
     }
     out
 }

@@ -18,7 +18,7 @@ use crate::algo::AlgoSpec;
 use crate::model::ModelSpec;
 pub use error::SpecError;
 use error::{Locator, closest};
-pub use reference::{listing, reference};
+pub use reference::{key_table, listing, reference};
 use serde::Deserialize;
 pub use settings::Settings;
 use std::collections::BTreeMap;

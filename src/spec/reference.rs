@@ -14,6 +14,23 @@ pub fn reference(families: &[FamilyEntry], kinds: &[Kind]) -> String {
     )
 }
 
+/// A kind's or family's keys as a Markdown table (or `none` when it has no keys), followed
+/// by a blank line.
+pub fn key_table(keys: &[Key], none: &str) -> String {
+    if keys.is_empty() {
+        return format!("{none}\n\n");
+    }
+    let mut out = String::from("| key | type | default | meaning |\n| --- | --- | --- | --- |\n");
+    for key in keys {
+        out.push_str(&format!(
+            "| `{}` | {} | {} | {} |\n",
+            key.name, key.ty, key.default, key.doc
+        ));
+    }
+    out.push('\n');
+    out
+}
+
 /// The reference for the terminal: one block per family and per kind, its keys aligned.
 pub fn listing(families: &[FamilyEntry], kinds: &[Kind]) -> String {
     let mut out = String::from("families  ([model] family = \"…\")\n\n");
