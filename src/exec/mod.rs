@@ -468,16 +468,12 @@ fn run_reference(
         ));
     }
     let energy = energy_of(spec, &inst, &out);
-    let extras = extras(spec, &inst, energy);
+    let extras = spec.model.extras(&inst, energy);
     Ok((out, energy, extras))
 }
 
 /// Family-specific columns of the reference output: (energy_reduced, cut_fraction).
 type Extras = (Option<f64>, Option<f64>);
-
-fn extras(spec: &Spec, inst: &crate::model::Instance, energy: f64) -> Extras {
-    spec.model.extras(inst, energy)
-}
 
 fn compute_cell(
     spec: &Spec,

@@ -2,7 +2,7 @@
 
 use std::sync::Arc;
 
-use super::{cut_fraction, degree_key, graph_bytes};
+use super::{cut_fraction, degree_key};
 use crate::algo::Key;
 use crate::cell::Canon;
 use crate::model::{Couplings, Family, FamilyEntry, Instance, sparse};
@@ -68,7 +68,7 @@ impl Family for ErdosRenyi {
     /// Six standard deviations above the mean edge count.
     fn instance_bytes(&self, n: u64) -> u128 {
         let m = self.degree * (n as f64 - 1.0) / 2.0;
-        graph_bytes(n, m + 6.0 * m.sqrt() + 16.0)
+        sparse::instance_bytes(n, m + 6.0 * m.sqrt() + 16.0)
     }
     fn flip_cost(&self, _n: u64) -> f64 {
         self.degree.max(1.0)

@@ -3,7 +3,6 @@
 
 use std::sync::Arc;
 
-use super::graph_bytes;
 use crate::algo::Key;
 use crate::cell::Canon;
 use crate::model::{Couplings, Family, FamilyEntry, Instance, sparse};
@@ -117,7 +116,7 @@ impl Family for Lattice {
         }
     }
     fn instance_bytes(&self, n: u64) -> u128 {
-        graph_bytes(n, self.degree() as f64 * n as f64 / 2.0)
+        sparse::instance_bytes(n, self.degree() as f64 * n as f64 / 2.0)
     }
     fn flip_cost(&self, _n: u64) -> f64 {
         self.degree() as f64

@@ -11,7 +11,7 @@ pub mod sphere;
 
 use crate::algo::Key;
 use crate::cell::Canon;
-use crate::model::{Couplings, Instance, mixed::Mixed, sk as dense, sparse, tensor};
+use crate::model::{Couplings, Instance, mixed::Mixed, sk as dense, tensor};
 use crate::rng::Id;
 use crate::spec::{Settings, SpecError};
 use crate::theory::Mixture;
@@ -194,9 +194,4 @@ pub(crate) fn cut_fraction(c: Couplings, inst: &Instance, energy: f64) -> Option
         }
         _ => None,
     }
-}
-
-/// Peak bytes of a graph with about m edges.
-pub(crate) fn graph_bytes(n: u64, m: f64) -> u128 {
-    sparse::instance_bytes(n, m)
 }

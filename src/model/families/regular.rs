@@ -2,7 +2,7 @@
 
 use std::sync::Arc;
 
-use super::{cut_fraction, degree_key, graph_bytes};
+use super::{cut_fraction, degree_key};
 use crate::algo::Key;
 use crate::cell::Canon;
 use crate::model::{Couplings, Family, FamilyEntry, Instance, sparse};
@@ -90,7 +90,7 @@ impl Family for Regular {
         }
     }
     fn instance_bytes(&self, n: u64) -> u128 {
-        graph_bytes(n, self.degree as f64 * n as f64 / 2.0)
+        sparse::instance_bytes(n, self.degree as f64 * n as f64 / 2.0)
     }
     fn flip_cost(&self, _n: u64) -> f64 {
         (self.degree as f64).max(1.0)
