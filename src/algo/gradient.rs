@@ -46,7 +46,7 @@ pub const KIND: Kind = Kind {
     keys: &[
         Key {
             name: "step",
-            ty: "number > 0",
+            ty: "number in (0, 1000]",
             default: "0.5",
             doc: "step size η",
         },
@@ -66,17 +66,21 @@ pub const KIND: Kind = Kind {
     parse,
 };
 
+/// Largest step size: beyond it x + η∇H is ∇H alone to double precision, and near 1e308
+/// the sum overflows.
+const MAX_STEP: f64 = 1e3;
+
 fn parse(s: &Settings<'_>) -> Result<super::AlgoSpec, SpecError> {
     let mut p = Params::default();
     if let Some(t) = s.tolerance("tol")? {
         p.tol = t;
     }
     if let Some(x) = s.number("step")? {
-        if !(x > 0.0 && x.is_finite()) {
+        if !(x > 0.0 && x <= MAX_STEP) {
             return Err(s.fail(
                 "step",
-                format!("step {x} is not a positive number"),
-                "a step size η > 0, e.g. step = 0.5",
+                format!("step {x} is not a step size in (0, {MAX_STEP}]"),
+                "a step size η > 0, e.g. step = 0.5 (beyond 1000 the update is the gradient alone, and near 1e308 it overflows)",
             ));
         }
         p.step = x;

@@ -1,7 +1,7 @@
 //! Command line: one file per command. Parsing and printing only; the work is elsewhere.
 //!
 //! Exit status: 0 success, 1 failure (a cell failed, the disk refused a write), 2 bad input
-//! (spec or arguments), 130 interrupted.
+//! (spec or arguments), 130 interrupted by SIGINT (Ctrl-C), 143 by SIGTERM.
 
 mod cells;
 mod check;
@@ -10,6 +10,7 @@ mod fit;
 mod kinds;
 mod plot;
 mod run;
+mod signals;
 mod slurm;
 mod status;
 mod summary;
@@ -102,6 +103,14 @@ pub struct RunArgs {
     /// cache only. A plain `kiln run` afterwards assembles the table.
     #[arg(long, value_name = "i/N")]
     pub shard: Option<String>,
+    /// Lease of this runner's cell claims, in seconds: another runner (on any host) takes over
+    /// a claim not renewed for this long. The renewal runs every sixth of it.
+    #[arg(long, value_name = "SECONDS", default_value_t = 120.0)]
+    pub lease: f64,
+    /// After SIGTERM or Ctrl-C, how long to let the cells in flight finish before abandoning
+    /// them (their claims are released) and writing the table, in seconds.
+    #[arg(long, value_name = "SECONDS", default_value_t = 20.0)]
+    pub grace: f64,
 }
 
 /// Largest `--jobs`: one thread per cell in flight.

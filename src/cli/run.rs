@@ -1,15 +1,15 @@
 //! `kiln run`: run the missing cells of a spec, then write the table and the manifest.
 
 use super::{RunArgs, out};
-use crate::exec::{self, INTERRUPTED, Options, Provenance, memory};
+use crate::exec::{self, Options, Provenance, memory};
 use crate::spec::plan::expand;
 use crate::spec::shard::{self, Shard};
 use crate::store::cache::Cache;
 use crate::store::manifest::{Manifest, utc_now};
-use crate::store::{table, write_atomic};
+use crate::store::{table, write_all_atomic};
 use anyhow::Context;
+use std::collections::HashMap;
 use std::process::ExitCode;
-use std::sync::atomic::Ordering;
 use std::time::Instant;
 
 pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
@@ -31,7 +31,19 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     if let Some(sh) = shard {
         plan.cells = shard::cells_of(&spec, &plan, sh);
     }
-    let cache = Cache::new(c.folders.cache_dir());
+    for (flag, v, lo, hi) in [
+        ("--lease", a.lease, 0.2, 1e6),
+        ("--grace", a.grace, 0.0, 1e6),
+    ] {
+        if !(lo..=hi).contains(&v) {
+            return Err(super::InputError(format!(
+                "{flag} {v}: give a number of seconds from {lo} to {hi}"
+            ))
+            .into());
+        }
+    }
+    let cache =
+        Cache::new(c.folders.cache_dir()).with_lease(std::time::Duration::from_secs_f64(a.lease));
     cache.prepare()?;
     let talk = !a.quiet && !c.json;
     if jobs < jobs_wanted && !c.json {
@@ -40,15 +52,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         );
     }
 
-    let _ = ctrlc::set_handler(|| {
-        if INTERRUPTED.swap(true, Ordering::SeqCst) {
-            // Second Ctrl-C: leave now. Records are written atomically, so nothing is torn.
-            std::process::exit(130);
-        }
-        eprintln!(
-            "\ninterrupt: finishing the cells in flight, then writing the table (Ctrl-C again to leave at once)"
-        );
-    });
+    super::signals::install(a.grace);
 
     let host = crate::store::this_host().to_string();
     let prov = Provenance {
@@ -57,18 +61,44 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         threads: jobs as u32,
         computed_by: format!("{host}:{}:{started}", std::process::id()),
     };
-    let report = exec::execute(
-        &spec,
-        &plan,
-        &cache,
-        &Options {
-            jobs,
-            progress: talk,
-            note: (jobs < jobs_wanted).then(|| format!("{jobs} at a time (memory)")),
-        },
-        &prov,
-    )
+    let outputs = Outputs {
+        spec: &spec,
+        plan: &plan,
+        cache: &cache,
+        dir: c.folders.results.join(&spec.name),
+        host: &host,
+        jobs,
+        started: &started,
+    };
+    // Check up front that the table can be written, so a run does not compute for nothing.
+    if shard.is_none() {
+        outputs.check_writable()?;
+    }
+    let grace = std::time::Duration::from_secs_f64(a.grace);
+    let (done, finished) = std::sync::mpsc::channel::<()>();
+    let report = std::thread::scope(|s| {
+        let outputs = &outputs;
+        s.spawn(move || watchdog(finished, grace, outputs, shard.is_some()));
+        let r = exec::execute(
+            &spec,
+            &plan,
+            &cache,
+            &Options {
+                jobs,
+                progress: talk,
+                note: (jobs < jobs_wanted).then(|| format!("{jobs} at a time (memory)")),
+            },
+            &prov,
+        );
+        drop(done);
+        r
+    })
     .context("the run stopped")?;
+    if !c.json {
+        for t in &report.takeovers {
+            eprintln!("note: {t}");
+        }
+    }
     if !c.json {
         for d in &report.damaged {
             eprintln!("warning: {d}");
@@ -85,43 +115,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         ));
     }
 
-    // Assemble the table in plan order.
-    let rows: Vec<table::Row> = plan
-        .cells
-        .iter()
-        .filter(|cell| cell.replica == 0)
-        .filter_map(|cell| {
-            report.records.get(&cell.key).map(|r| table::Row {
-                experiment: &spec.name,
-                label: &spec.algorithms[cell.algo].label,
-                record: r,
-            })
-        })
-        .collect();
-    let dir = c.folders.results.join(&spec.name);
-    let table_path = dir.join("cells.parquet");
-    let manifest_path = dir.join("manifest.toml");
-    table::write(&table_path, &rows, &plan.spec_hash.hex())?;
-    let manifest = Manifest {
-        experiment: spec.name.clone(),
-        note: spec.note.clone(),
-        spec_origin: spec.origin.clone(),
-        spec_hash: plan.spec_hash.hex(),
-        kiln_version: crate::VERSION.into(),
-        git_revision: crate::GIT_REVISION.into(),
-        rustc: crate::RUSTC.into(),
-        host,
-        threads: jobs as u32,
-        started,
-        finished: utc_now(),
-        cells: report.counts.clone(),
-        spec: spec.text.clone(),
-    };
-    write_atomic(&manifest_path, manifest.to_toml().as_bytes())?;
-    if spec.replicas > 1 {
-        crate::exec::overlaps::write_overlaps(&spec, &plan, &cache, &dir)?;
-    }
-
+    let (table_path, manifest_path, rows) = outputs.write(&report.records, &report.counts)?;
     let k = &report.counts;
     let wall = t0.elapsed().as_secs_f64();
     if c.json {
@@ -129,7 +123,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             "experiment": spec.name,
             "spec_hash": plan.spec_hash.hex(),
             "cells": counts_json(k),
-            "rows": rows.len(),
+            "rows": rows,
             "table": table_path.display().to_string(),
             "manifest": manifest_path.display().to_string(),
             "cache": cache.root().display().to_string(),
@@ -138,6 +132,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             "interrupted": report.interrupted,
             "failures": failures_json(&report),
             "damaged": report.damaged,
+            "takeovers": report.takeovers,
         });
         out(&format!("{v}\n"));
     } else if !a.quiet {
@@ -156,7 +151,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     }
     Ok(finish(
         &report,
-        &format!("the table holds the {} rows done so far", rows.len()),
+        &format!("the table holds the {rows} rows done so far"),
     ))
 }
 
@@ -208,11 +203,151 @@ fn finish(report: &exec::Report, done: &str) -> ExitCode {
             "interrupted: {} cells not run; {done}. Run the same command again to resume.",
             report.counts.skipped
         );
-        return ExitCode::from(130);
+        return ExitCode::from(super::signals::exit_status());
     }
     if report.counts.failed > 0 {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS
     }
+}
+
+/// What a run writes at its end: the table, the replica tables and the manifest, all or none.
+struct Outputs<'a> {
+    spec: &'a crate::spec::Spec,
+    plan: &'a crate::spec::plan::Plan,
+    cache: &'a Cache,
+    dir: std::path::PathBuf,
+    host: &'a str,
+    jobs: usize,
+    started: &'a str,
+}
+
+impl Outputs<'_> {
+    /// Fails now, naming the path, if the results folder cannot be written.
+    fn check_writable(&self) -> anyhow::Result<()> {
+        crate::store::check_writable(&self.dir).with_context(|| {
+            format!(
+                "the results folder {} cannot be written; nothing was computed",
+                self.dir.display()
+            )
+        })
+    }
+
+    /// Writes the table (plan order) and the manifest naming the tables' checksums; returns
+    /// (table, manifest, rows).
+    fn write(
+        &self,
+        records: &HashMap<crate::cell::Key, crate::store::cache::Record>,
+        counts: &crate::store::manifest::CellCounts,
+    ) -> anyhow::Result<(std::path::PathBuf, std::path::PathBuf, usize)> {
+        let spec = self.spec;
+        let rows: Vec<table::Row> = self
+            .plan
+            .cells
+            .iter()
+            .filter(|cell| cell.replica == 0)
+            .filter_map(|cell| {
+                records.get(&cell.key).map(|r| table::Row {
+                    experiment: &spec.name,
+                    label: &spec.algorithms[cell.algo].label,
+                    record: r,
+                })
+            })
+            .collect();
+        let table_path = self.dir.join("cells.parquet");
+        let manifest_path = self.dir.join("manifest.toml");
+        let mut files = vec![(
+            table_path.clone(),
+            table::encode(&table_path, &rows, &self.plan.spec_hash.hex())?,
+        )];
+        if spec.replicas > 1 {
+            files.extend(crate::exec::overlaps::encode_overlaps(
+                spec, self.plan, self.cache, &self.dir,
+            )?);
+        }
+        let tables = files
+            .iter()
+            .map(|(p, b)| {
+                use sha2::{Digest, Sha256};
+                (
+                    p.file_name().expect("named").to_string_lossy().into_owned(),
+                    hex::encode(Sha256::digest(b)),
+                )
+            })
+            .collect();
+        let manifest = Manifest {
+            experiment: spec.name.clone(),
+            note: spec.note.clone(),
+            spec_origin: spec.origin.clone(),
+            spec_hash: self.plan.spec_hash.hex(),
+            kiln_version: crate::VERSION.into(),
+            git_revision: crate::GIT_REVISION.into(),
+            rustc: crate::RUSTC.into(),
+            host: self.host.to_string(),
+            threads: self.jobs as u32,
+            started: self.started.to_string(),
+            finished: utc_now(),
+            cells: counts.clone(),
+            tables,
+            spec: spec.text.clone(),
+        };
+        files.push((manifest_path.clone(), manifest.to_toml().into_bytes()));
+        let list: Vec<(&std::path::Path, &[u8])> =
+            files.iter().map(|(p, b)| (p.as_path(), &b[..])).collect();
+        write_all_atomic(&list)?;
+        Ok((table_path, manifest_path, rows.len()))
+    }
+}
+
+/// Watches a run for a stop signal: once one has come, gives the cells in flight `grace` to
+/// finish; if the run is still going then, releases the claims it holds, writes the table of
+/// what the cache holds (not for a shard) and exits with the signal's status.
+fn watchdog(
+    finished: std::sync::mpsc::Receiver<()>,
+    grace: std::time::Duration,
+    outputs: &Outputs,
+    shard: bool,
+) {
+    use std::sync::mpsc::RecvTimeoutError;
+    let mut since: Option<Instant> = None;
+    loop {
+        match finished.recv_timeout(std::time::Duration::from_millis(50)) {
+            Err(RecvTimeoutError::Timeout) => {}
+            _ => return,
+        }
+        if since.is_none() && super::signals::received() {
+            since = Some(Instant::now());
+        }
+        if since.is_some_and(|t| t.elapsed() >= grace) {
+            break;
+        }
+    }
+    crate::store::claims::release_all();
+    eprintln!(
+        "stop: cells still in flight after {:.0} s are abandoned (their claims released)",
+        grace.as_secs_f64()
+    );
+    if !shard {
+        let damaged = std::sync::Mutex::new(Vec::new());
+        let written = exec::lookup(outputs.spec, outputs.plan, outputs.cache, &damaged)
+            .map_err(anyhow::Error::from)
+            .and_then(|(records, missing)| {
+                let counts = crate::store::manifest::CellCounts {
+                    total: (records.len() + missing.len()) as u64,
+                    cached: records.len() as u64,
+                    skipped: missing.len() as u64,
+                    ..Default::default()
+                };
+                outputs.write(&records, &counts)
+            });
+        match written {
+            Ok((table, _, rows)) => eprintln!(
+                "stop: the table {} holds the {rows} rows done. Run the same command again to resume.",
+                table.display()
+            ),
+            Err(e) => eprintln!("error: the table could not be written: {e:#}"),
+        }
+    }
+    std::process::exit(super::signals::exit_status() as i32);
 }

@@ -5,6 +5,7 @@ use super::{CommonArgs, out};
 use crate::spec::plan::expand;
 use crate::spec::shard;
 use crate::store::cache::Cache;
+use crate::store::claims::{State, Verdict};
 use clap::Args;
 use std::collections::BTreeMap;
 use std::process::ExitCode;
@@ -41,7 +42,7 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
         t.cells += 1;
         if cache.has_record(&c.key) {
             t.done += 1;
-        } else if cache.claim_path(&c.key).exists() {
+        } else if let State::Held(Verdict::Live(_)) = cache.claim_state(&c.key)? {
             t.running += 1;
         } else if cache.failure_path(&c.key).exists() {
             t.failed += 1;

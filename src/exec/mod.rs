@@ -55,6 +55,8 @@ pub struct Report {
     pub failures: Vec<(String, String)>,
     /// Damaged cache entries found (and moved aside).
     pub damaged: Vec<String>,
+    /// Stale claims of other runners taken over, with the reason.
+    pub takeovers: Vec<String>,
     pub interrupted: bool,
 }
 
@@ -165,6 +167,7 @@ pub fn execute(
     prov: &Provenance,
 ) -> Result<Report, StoreError> {
     let damaged = Mutex::new(Vec::new());
+    let takeovers = Mutex::new(Vec::new());
     let (mut records, missing) = lookup(spec, plan, cache, &damaged)?;
     let by_key: BTreeMap<Key, &Cell> = plan.cells.iter().map(|c| (c.key, c)).collect();
     let total = by_key.len() as u64;
@@ -243,7 +246,7 @@ pub fn execute(
                             skipped.fetch_add(1, Ordering::Relaxed);
                             return;
                         }
-                        match attempt(spec, cell, cache, prov, &damaged, &writes) {
+                        match attempt(spec, cell, cache, prov, &damaged, &takeovers, &writes) {
                             Ok(Outcome::Computed(r)) => {
                                 new_records.lock().expect("lock").push(r);
                                 computed.fetch_add(1, Ordering::Relaxed);
@@ -294,6 +297,10 @@ pub fn execute(
     if let Some(e) = fatal.lock().expect("lock").take() {
         return Err(e);
     }
+    // Claims that killed runners left on cells that are done: nobody would touch them again.
+    if !INTERRUPTED.load(Ordering::Relaxed) {
+        cache.sweep_stale_claims()?;
+    }
     for r in new_records.into_inner().expect("lock") {
         let k = Key::from_hex(&r.key).expect("valid key");
         records.insert(k, r);
@@ -311,6 +318,7 @@ pub fn execute(
         records,
         failures,
         damaged: damaged.into_inner().expect("lock"),
+        takeovers: takeovers.into_inner().expect("lock"),
         interrupted: INTERRUPTED.load(Ordering::Relaxed),
     })
 }
@@ -395,10 +403,19 @@ fn attempt(
     cache: &Cache,
     prov: &Provenance,
     damaged: &Mutex<Vec<String>>,
+    takeovers: &Mutex<Vec<String>>,
     writes: &SyncSender<WriteJob>,
 ) -> Result<Outcome, StoreError> {
-    let guard = match cache.claim(&cell.key, &prov.host, &prov.computed_by)? {
-        Claim::Acquired(g) => g,
+    let guard = match cache.claim(&cell.key, &prov.computed_by)? {
+        Claim::Acquired { guard, took_over } => {
+            if let Some(why) = took_over {
+                takeovers
+                    .lock()
+                    .expect("lock")
+                    .push(format!("took over cell {}: {why}", &cell.key.hex()[..12]));
+            }
+            guard
+        }
         Claim::HeldByOther(_) => return Ok(Outcome::Deferred),
     };
     if let Some(r) = cached_record(spec, cache, cell, damaged)? {
@@ -583,6 +600,16 @@ fn compute_cell(
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
+    }
+    // A non-finite energy is not a result: the cell fails with the reason (shown by the run
+    // and by `kiln status`), keeps no record, and is tried again by the next run.
+    if !(record.energy.is_finite() && record.energy_perturbed.is_finite()) {
+        return Err(CellError::Failed(format!(
+            "{} produced a non-finite energy per spin ({}, perturbed {}); no record is kept — check its settings",
+            algo.kind(),
+            record.energy,
+            record.energy_perturbed
+        )));
     }
     record.wall_seconds = start.elapsed().as_secs_f64();
     Ok(CellFiles {

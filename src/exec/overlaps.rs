@@ -2,13 +2,14 @@
 //! n, seed) read back from the cache, their overlaps measured ([`crate::measure`]) and written.
 
 /// `overlaps.parquet` (every pair of replicas) and `triples.parquet` (every triple, overlaps
-/// sorted) for each (algorithm, n, seed) whose replicas all have their output in the cache.
-pub fn write_overlaps(
+/// sorted) for each (algorithm, n, seed) whose replicas all have their output in the cache,
+/// encoded: (path, bytes) for the caller to write with the rest of the run's files.
+pub fn encode_overlaps(
     spec: &crate::spec::Spec,
     plan: &crate::spec::plan::Plan,
     cache: &crate::store::cache::Cache,
     dir: &std::path::Path,
-) -> Result<(), crate::store::StoreError> {
+) -> Result<Vec<(std::path::PathBuf, Vec<u8>)>, crate::store::StoreError> {
     use crate::store::cache::Lookup;
     use std::collections::BTreeMap;
     let sphere = !spec.model.family.spins();
@@ -50,7 +51,9 @@ pub fn write_overlaps(
             triples.push(label, n, seed, r, qs);
         }
     }
-    pairs.write(&dir.join("overlaps.parquet"), &spec.name)?;
-    triples.write(&dir.join("triples.parquet"), &spec.name)?;
-    Ok(())
+    let (p, t) = (dir.join("overlaps.parquet"), dir.join("triples.parquet"));
+    Ok(vec![
+        (p.clone(), pairs.encode(&p, &spec.name)?),
+        (t.clone(), triples.encode(&t, &spec.name)?),
+    ])
 }

@@ -10,6 +10,9 @@ use super::error::{Locator, choice_hint, closest};
 use super::{AlgoEntry, RawAlgorithm, Settings, SpecError, quoted};
 use crate::model::ModelSpec;
 
+/// Longest label: labels are printed in tables, legends and file names.
+pub const MAX_LABEL_CHARS: usize = 80;
+
 /// One `[[algorithm]]` table: its kind from the registry, the kind's own keys, the model and
 /// size checks; returns the entry and the span its label is reported at.
 pub(super) fn algorithm_entry(
@@ -95,6 +98,19 @@ pub(super) fn algorithm_entry(
             format!("{at}.label"),
             "empty label",
             Some("give a short name, or leave `label` out to use the kind".into()),
+        ));
+    }
+    let chars = label.chars().count();
+    if chars > MAX_LABEL_CHARS || label.chars().any(char::is_control) {
+        return Err(loc.at(
+            Some(lspan),
+            format!("{at}.label"),
+            if chars > MAX_LABEL_CHARS {
+                format!("the label has {chars} characters, more than {MAX_LABEL_CHARS}")
+            } else {
+                "the label contains a control character (a line break or tab?)".to_string()
+            },
+            Some("labels name table rows and legend entries: keep them short, e.g. label = \"anneal-slow\"".into()),
         ));
     }
     Ok((AlgoEntry { label, algo }, lspan))

@@ -232,6 +232,36 @@ pub fn model_of(body: &str) -> Result<ModelSpec, SpecError> {
     model::resolve(&doc.model, &loc)
 }
 
+/// The first line (1-based) where nesting is deepest, and that depth: dots of a dotted key or
+/// table header plus the brackets and braces open at that point (strings skipped).
+fn deepest_line(text: &str) -> (usize, usize) {
+    let (mut best, mut open) = ((1, 0), 0usize);
+    for (i, line) in text.lines().enumerate() {
+        let (mut dots, mut quote, mut in_key, mut deepest) = (0, None, true, open);
+        for c in line.chars() {
+            match (quote, c) {
+                (Some(q), c) if c == q => quote = None,
+                (Some(_), _) => {}
+                (None, '"' | '\'') => quote = Some(c),
+                (None, '#') => break,
+                (None, '=') => in_key = false,
+                (None, '.') if in_key => dots += 1,
+                (None, '[' | '{') => {
+                    open += 1;
+                    deepest = deepest.max(open);
+                }
+                (None, ']' | '}') => open = open.saturating_sub(1),
+                _ => {}
+            }
+        }
+        let depth = deepest + dots;
+        if depth > best.1 {
+            best = (i + 1, depth);
+        }
+    }
+    best
+}
+
 /// Turns a deserialisation error into a located one, with a suggestion for unknown keys.
 fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
     let msg = e.message().trim().to_string();
@@ -261,6 +291,16 @@ fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
         hint = Some("see the spec reference in README.md for the required keys".into());
     } else if msg.starts_with("invalid type") || msg.starts_with("invalid value") {
         hint = Some("see the spec reference in README.md for the type of each key".into());
+    } else if span.is_none() && msg.contains("recursion limit") {
+        // The reader gives no position for this one: find the deepest line ourselves.
+        let (line, depth) = deepest_line(loc.text);
+        return SpecError {
+            origin: loc.origin.to_string(),
+            line: Some((line, 1)),
+            key: None,
+            message: format!("keys or values nest {depth} levels deep here, too deep to read"),
+            hint: Some("a spec needs at most three levels (`[model.xi]`, `a.b.c = …`)".into()),
+        };
     } else {
         hint = Some("the file is not valid TOML here".into());
     }
@@ -315,9 +355,11 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     }
     let mut algorithms: Vec<AlgoEntry> = Vec::new();
     let mut label_spans: Vec<Range<usize>> = Vec::new();
+    // Label → index, so that many algorithms validate in linear time.
+    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     for (i, a) in raw.algorithm.iter().enumerate() {
         let (entry, lspan) = algorithms::algorithm_entry(i, a, &model, &sizes, loc)?;
-        if let Some(j) = algorithms.iter().position(|e| e.label == entry.label) {
+        if let Some(&j) = seen.get(&entry.label) {
             let (line, _) = loc.line_col(label_spans[j].start);
             return Err(loc.at(
                 Some(lspan),
@@ -330,6 +372,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
                 Some("labels name table rows: give each algorithm its own".into()),
             ));
         }
+        seen.insert(entry.label.clone(), i);
         label_spans.push(lspan);
         algorithms.push(entry);
     }

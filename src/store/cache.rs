@@ -9,11 +9,13 @@
 //! Spins file: `KILNSPN1`, the 32-byte key, n as u64 LE, the spins packed 8 per byte (bit set
 //! = −1), then the SHA-256 of everything before it.
 
-use super::{StoreError, write_atomic};
+pub use super::claims::{Claim, ClaimGuard};
+use super::{StoreError, claims, write_atomic};
 use crate::cell::Key;
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 /// Version of the record body.
 pub const RECORD_FORMAT: u32 = 1;
@@ -33,41 +35,104 @@ pub struct Record {
     pub seed: u64,
     pub kind: String,
     pub settings: String,
+    #[serde(with = "nonfinite")]
     pub epsilon: f64,
     /// H(σ)/n of the reference run (ε = 0) on the original disorder.
+    #[serde(with = "nonfinite")]
     pub energy: f64,
     /// H'(σ')/n of the run on the perturbed disorder (equals `energy` at ε = 0).
+    #[serde(with = "nonfinite")]
     pub energy_perturbed: f64,
     /// σ·σ'/n (sphere: x·x'/n).
+    #[serde(with = "nonfinite")]
     pub overlap: f64,
     /// ‖σ − σ'‖/√n.
+    #[serde(with = "nonfinite")]
     pub distance: f64,
     pub iterations: u64,
     pub sweeps: u64,
     pub converged: bool,
     /// energy/√d on sparse graphs and lattices (d the (mean) degree); absent elsewhere.
-    #[serde(default)]
+    #[serde(default, with = "nonfinite_opt")]
     pub energy_reduced: Option<f64>,
     /// Cut edges / all edges of the reference output, for `cut` couplings.
-    #[serde(default)]
+    #[serde(default, with = "nonfinite_opt")]
     pub cut_fraction: Option<f64>,
     /// Value per spin of the relaxation an algorithm solved before rounding (lowrank).
-    #[serde(default)]
+    #[serde(default, with = "nonfinite_opt")]
     pub relaxation: Option<f64>,
     /// ‖x − x'‖/√n of the pre-rounding points (norm √n each), for algorithms that return one;
     /// on the sphere it equals `distance`.
-    #[serde(default)]
+    #[serde(default, with = "nonfinite_opt")]
     pub distance_point: Option<f64>,
     /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
     #[serde(default)]
     pub replica: u32,
     // provenance (not part of the numbers)
+    #[serde(with = "nonfinite")]
     pub wall_seconds: f64,
     pub host: String,
     pub threads: u32,
     pub kiln_version: String,
     /// `host:pid:start` of the process that computed it.
     pub computed_by: String,
+}
+
+/// Numbers as JSON numbers when finite and as the strings `NaN`, `inf`, `-inf` otherwise
+/// (JSON has no non-finite numbers; a plain writer would store null and the record would
+/// read as damaged).
+mod nonfinite {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    pub fn serialize<S: Serializer>(x: &f64, s: S) -> Result<S::Ok, S::Error> {
+        if x.is_finite() {
+            s.serialize_f64(*x)
+        } else if x.is_nan() {
+            s.serialize_str("NaN")
+        } else if *x > 0.0 {
+            s.serialize_str("inf")
+        } else {
+            s.serialize_str("-inf")
+        }
+    }
+
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Num {
+        Finite(f64),
+        Text(String),
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+        match Num::deserialize(d)? {
+            Num::Finite(x) => Ok(x),
+            Num::Text(t) => match t.as_str() {
+                "NaN" => Ok(f64::NAN),
+                "inf" => Ok(f64::INFINITY),
+                "-inf" => Ok(f64::NEG_INFINITY),
+                _ => Err(serde::de::Error::custom(format!("not a number: {t:?}"))),
+            },
+        }
+    }
+}
+
+/// [`nonfinite`] for optional numbers (null: absent).
+mod nonfinite_opt {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    pub fn serialize<S: Serializer>(x: &Option<f64>, s: S) -> Result<S::Ok, S::Error> {
+        match x {
+            Some(x) => super::nonfinite::serialize(x, s),
+            None => s.serialize_none(),
+        }
+    }
+
+    #[derive(Deserialize)]
+    struct Wrap(#[serde(with = "super::nonfinite")] f64);
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<Option<f64>, D::Error> {
+        Ok(Option::<Wrap>::deserialize(d)?.map(|w| w.0))
+    }
 }
 
 /// The outcome of a cache lookup.
@@ -81,41 +146,6 @@ pub enum Lookup<T> {
         reason: String,
         moved_to: Option<PathBuf>,
     },
-}
-
-/// The outcome of trying to claim a cell.
-#[derive(Debug)]
-pub enum Claim {
-    /// This process holds the claim until the guard is dropped.
-    Acquired(ClaimGuard),
-    /// Another live process holds it; the text names the holder.
-    HeldByOther(String),
-}
-
-/// Removes the claim file when dropped.
-#[derive(Debug)]
-pub struct ClaimGuard {
-    path: PathBuf,
-}
-
-impl Drop for ClaimGuard {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.path);
-    }
-}
-
-/// Whether a claim's holder (`host pid …`) is known to be gone: same host, no such process.
-fn holder_is_gone(holder: &str, this_host: &str) -> bool {
-    let mut parts = holder.split_whitespace();
-    match (
-        parts.next(),
-        parts.next().and_then(|p| p.parse::<u32>().ok()),
-    ) {
-        (Some(h), Some(pid)) if h == this_host => !Path::new(&format!("/proc/{pid}")).exists(),
-        (Some(_), Some(_)) => false,
-        // An empty or unreadable claim: its writer died between create and write.
-        _ => true,
-    }
 }
 
 impl<T> Lookup<T> {
@@ -141,11 +171,22 @@ impl<T> Lookup<T> {
 #[derive(Clone, Debug)]
 pub struct Cache {
     root: PathBuf,
+    /// The lease of this process's claims (see [`super::claims`]).
+    lease: Duration,
 }
 
 impl Cache {
     pub fn new(root: impl Into<PathBuf>) -> Cache {
-        Cache { root: root.into() }
+        Cache {
+            root: root.into(),
+            lease: claims::DEFAULT_LEASE,
+        }
+    }
+
+    /// The same cache, with claims leased for `lease`.
+    pub fn with_lease(mut self, lease: Duration) -> Cache {
+        self.lease = lease;
+        self
     }
 
     pub fn root(&self) -> &Path {
@@ -182,54 +223,29 @@ impl Cache {
         Ok(())
     }
 
-    pub fn claim_path(&self, key: &Key) -> PathBuf {
-        self.entry(key, "claims", "claim")
+    /// The folder holding a cell's claims.
+    pub fn claims_dir(&self, key: &Key) -> PathBuf {
+        self.root.join("claims").join(&key.hex()[..2])
     }
 
-    /// Claims a cell for computation by atomic creation of its claim file. A claim left by a
-    /// dead process on this host (kill -9) is broken and taken over. Claims of other hosts
-    /// are respected.
-    pub fn claim(&self, key: &Key, host: &str, owner: &str) -> Result<Claim, StoreError> {
-        let path = self.claim_path(key);
-        let werr = |source| StoreError::Write {
-            path: path.clone(),
-            source,
-        };
-        std::fs::create_dir_all(path.parent().expect("claim has a folder")).map_err(werr)?;
-        for _ in 0..3 {
-            match std::fs::OpenOptions::new()
-                .write(true)
-                .create_new(true)
-                .open(&path)
-            {
-                Ok(mut f) => {
-                    use std::io::Write;
-                    f.write_all(format!("{host} {} {owner}\n", std::process::id()).as_bytes())
-                        .map_err(werr)?;
-                    return Ok(Claim::Acquired(ClaimGuard { path }));
-                }
-                Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
-                    let holder = std::fs::read_to_string(&path).unwrap_or_default();
-                    if holder_is_gone(&holder, host) {
-                        // Give a writer between create and write a moment before judging.
-                        if holder.is_empty() {
-                            std::thread::sleep(std::time::Duration::from_millis(50));
-                            if !std::fs::read_to_string(&path)
-                                .unwrap_or_default()
-                                .is_empty()
-                            {
-                                continue;
-                            }
-                        }
-                        let _ = std::fs::remove_file(&path);
-                        continue;
-                    }
-                    return Ok(Claim::HeldByOther(holder.trim().to_string()));
-                }
-                Err(e) => return Err(werr(e)),
-            }
-        }
-        Ok(Claim::HeldByOther("a claim that keeps reappearing".into()))
+    /// Claims a cell for computation (a lease; see [`super::claims`]).
+    pub fn claim(&self, key: &Key, owner: &str) -> Result<Claim, StoreError> {
+        claims::claim(&self.claims_dir(key), key, self.lease, owner)
+    }
+
+    /// Whether a cell is claimed, and whether that claim is live.
+    pub fn claim_state(&self, key: &Key) -> Result<claims::State, StoreError> {
+        claims::state(&self.claims_dir(key), key, self.lease)
+    }
+
+    /// Removes every stale claim in the cache; returns how many.
+    pub fn sweep_stale_claims(&self) -> Result<u64, StoreError> {
+        claims::sweep(&self.root.join("claims"), self.lease)
+    }
+
+    /// Removes a cell's claim if it is stale; true if it was.
+    pub fn clear_stale_claim(&self, key: &Key) -> Result<bool, StoreError> {
+        claims::clear_if_stale(&self.claims_dir(key), key, self.lease)
     }
 
     pub fn failure_path(&self, key: &Key) -> PathBuf {
@@ -260,15 +276,7 @@ impl Cache {
 
     pub fn read_record(&self, key: &Key) -> Result<Lookup<Record>, StoreError> {
         let path = self.record_path(key);
-        let bytes = match std::fs::read(&path) {
-            Ok(b) => b,
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
-            Err(source) => return Err(StoreError::Read { path, source }),
-        };
-        match decode_record(&bytes, key) {
-            Ok(r) => Ok(Lookup::Hit(r)),
-            Err(reason) => Ok(self.quarantine(path, reason)),
-        }
+        self.read_entry(path, |b| decode_record(b, key))
     }
 
     pub fn write_spins(&self, key: &Key, spins: &[i8]) -> Result<(), StoreError> {
@@ -292,15 +300,7 @@ impl Cache {
 
     pub fn read_spins(&self, key: &Key) -> Result<Lookup<Vec<i8>>, StoreError> {
         let path = self.spins_path(key);
-        let bytes = match std::fs::read(&path) {
-            Ok(b) => b,
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
-            Err(source) => return Err(StoreError::Read { path, source }),
-        };
-        match decode_spins(&bytes, key) {
-            Ok(s) => Ok(Lookup::Hit(s)),
-            Err(reason) => Ok(self.quarantine(path, reason)),
-        }
+        self.read_entry(path, |b| decode_spins(b, key))
     }
 
     /// Writes the continuous output point of a reference run: `KILNPNT1`, the key, n as u64
@@ -320,34 +320,57 @@ impl Cache {
 
     pub fn read_point(&self, key: &Key) -> Result<Lookup<Vec<f64>>, StoreError> {
         let path = self.point_path(key);
+        self.read_entry(path, |b| decode_point(b, key))
+    }
+
+    /// Reads an entry through `decode`: missing, a hit, or damaged (moved aside). A folder
+    /// where the file should be counts as damage too.
+    pub(crate) fn read_entry<T>(
+        &self,
+        path: PathBuf,
+        decode: impl FnOnce(&[u8]) -> Result<T, String>,
+    ) -> Result<Lookup<T>, StoreError> {
         let bytes = match std::fs::read(&path) {
             Ok(b) => b,
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
+            Err(_) if path.is_dir() => {
+                return self.quarantine(path, "a folder where a file should be".into());
+            }
             Err(source) => return Err(StoreError::Read { path, source }),
         };
-        match decode_point(&bytes, key) {
-            Ok(s) => Ok(Lookup::Hit(s)),
-            Err(reason) => Ok(self.quarantine(path, reason)),
+        match decode(&bytes) {
+            Ok(x) => Ok(Lookup::Hit(x)),
+            Err(reason) => self.quarantine(path, reason),
         }
     }
 
-    /// Moves a damaged file to `quarantine/` under a unique name.
-    pub(crate) fn quarantine<T>(&self, path: PathBuf, reason: String) -> Lookup<T> {
+    /// Moves a damaged file (or folder) to `quarantine/` under a unique name. If it cannot be
+    /// moved (say `quarantine` is a file), the error names the path: damaged entries are
+    /// evidence, and are never overwritten in place.
+    pub(crate) fn quarantine<T>(
+        &self,
+        path: PathBuf,
+        reason: String,
+    ) -> Result<Lookup<T>, StoreError> {
         let dir = self.root.join("quarantine");
         let name = path.file_name().and_then(|s| s.to_str()).unwrap_or("entry");
         let stamp = std::time::SystemTime::now()
             .duration_since(std::time::UNIX_EPOCH)
             .map_or(0, |d| d.as_nanos());
         let target = dir.join(format!("{name}.{stamp}.{}", std::process::id()));
-        let moved_to = std::fs::create_dir_all(&dir)
+        std::fs::create_dir_all(&dir)
             .and_then(|_| std::fs::rename(&path, &target))
-            .ok()
-            .map(|_| target);
-        Lookup::Damaged {
+            .map_err(|source| StoreError::Quarantine {
+                path: path.clone(),
+                reason: reason.clone(),
+                to: dir.clone(),
+                source,
+            })?;
+        Ok(Lookup::Damaged {
             path,
             reason,
-            moved_to,
-        }
+            moved_to: Some(target),
+        })
     }
 }
 
@@ -498,6 +521,31 @@ mod tests {
             other => panic!("{other:?}"),
         }
         assert!(matches!(c.read_record(&key(2)).unwrap(), Lookup::Missing));
+    }
+
+    /// NaN and infinities survive the JSON record bit for bit (a NaN once came back as
+    /// null, and the record was then read as damaged on every run).
+    #[test]
+    fn non_finite_numbers_round_trip() {
+        let d = tempfile::tempdir().unwrap();
+        let c = Cache::new(d.path());
+        let mut r = record(key(3));
+        r.overlap = f64::NAN;
+        r.distance = f64::INFINITY;
+        r.energy_perturbed = f64::NEG_INFINITY;
+        r.relaxation = Some(f64::NAN);
+        c.write_record(&r).unwrap();
+        match c.read_record(&key(3)).unwrap() {
+            Lookup::Hit(got) => {
+                assert!(got.overlap.is_nan());
+                assert_eq!(got.distance, f64::INFINITY);
+                assert_eq!(got.energy_perturbed, f64::NEG_INFINITY);
+                assert!(got.relaxation.unwrap().is_nan());
+                assert_eq!(got.energy.to_bits(), r.energy.to_bits());
+                assert_eq!(got.distance_point, None);
+            }
+            other => panic!("{other:?}"),
+        }
     }
 
     #[test]

@@ -17,6 +17,8 @@ pub struct Manifest {
     pub started: String,
     pub finished: String,
     pub cells: CellCounts,
+    /// SHA-256 of each table written with this manifest, by file name; readers check it.
+    pub tables: std::collections::BTreeMap<String, String>,
     /// The exact spec text.
     pub spec: String,
 }

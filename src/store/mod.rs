@@ -2,6 +2,7 @@
 //! Parquet table and the manifest. Nothing here knows about numerics.
 
 pub mod cache;
+pub mod claims;
 pub mod fits;
 pub mod manifest;
 pub mod table;
@@ -29,14 +30,34 @@ pub enum StoreError {
     },
     #[error("cannot write the table {path}: {message}")]
     Table { path: PathBuf, message: String },
+    #[error(
+        "the table {path} is damaged: {message}. Rewrite it with the `kiln run` that made it (its cells come from the cache)"
+    )]
+    Damaged { path: PathBuf, message: String },
+    #[error(
+        "damaged cache entry {path} ({reason}) cannot be moved aside to {to}: {source}. Make {to} a writable folder (move away what is there) and run again"
+    )]
+    Quarantine {
+        path: PathBuf,
+        reason: String,
+        to: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    #[error("cannot use the table {path}: {message}")]
+    Unusable { path: PathBuf, message: String },
 }
 
 /// This machine's host name (cached), used to tell own leftovers from other hosts' files.
+/// `KILN_HOST` overrides it: for containers that share a host name, and to stand in for a
+/// second host in tests.
 pub fn this_host() -> &'static str {
     static HOST: std::sync::OnceLock<String> = std::sync::OnceLock::new();
     HOST.get_or_init(|| {
-        std::fs::read_to_string("/proc/sys/kernel/hostname")
+        std::env::var("KILN_HOST")
             .ok()
+            .filter(|s| !s.trim().is_empty())
+            .or_else(|| std::fs::read_to_string("/proc/sys/kernel/hostname").ok())
             .map(|s| s.trim().to_string())
             .filter(|s| !s.is_empty())
             .or_else(|| std::env::var("HOSTNAME").ok())
@@ -63,10 +84,13 @@ pub fn temp_is_orphan(file_name: &str) -> bool {
 
 static TMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 
-/// Writes `bytes` to `path` so that readers see either the old file or the whole new one:
-/// a temporary file in the same folder, fsync, rename, fsync of the folder. On error the
-/// temporary file is removed.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
+/// A temporary file beside `path`, written and synced, waiting to be renamed over it.
+struct Staged {
+    tmp: PathBuf,
+    path: PathBuf,
+}
+
+fn stage(path: &Path, bytes: &[u8]) -> Result<Staged, StoreError> {
     let err = |source| StoreError::Write {
         path: path.to_path_buf(),
         source,
@@ -83,18 +107,86 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
         f.write_all(bytes)?;
-        f.sync_all()?;
-        drop(f);
-        std::fs::rename(&tmp, path)?;
-        if let Ok(d) = std::fs::File::open(dir) {
+        f.sync_all()
+    })();
+    match result {
+        Ok(()) => Ok(Staged {
+            tmp,
+            path: path.to_path_buf(),
+        }),
+        Err(e) => {
+            let _ = std::fs::remove_file(&tmp);
+            Err(err(e))
+        }
+    }
+}
+
+/// Whether files can be written into `dir` (created if missing): a temporary file is
+/// written, synced and removed. The error names the path.
+pub fn check_writable(dir: &Path) -> Result<(), StoreError> {
+    let staged = stage(&dir.join("write-check"), b"")?;
+    let _ = std::fs::remove_file(&staged.tmp);
+    Ok(())
+}
+
+/// Writes `bytes` to `path` so that readers see either the old file or the whole new one:
+/// a temporary file in the same folder, fsync, rename, fsync of the folder. On error the
+/// temporary file is removed.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
+    write_all_atomic(&[(path, bytes)])
+}
+
+/// Writes several files all or none: every one is first written and synced to a temporary
+/// file; only when all are down are they renamed into place (renames need no space, so a
+/// full disk stops the write before any file changes). On error the temporary files are
+/// removed.
+pub fn write_all_atomic(files: &[(&Path, &[u8])]) -> Result<(), StoreError> {
+    // A folder in a file's place would make its rename fail after others were done.
+    for (path, _) in files {
+        if path.is_dir() {
+            return Err(StoreError::Write {
+                path: path.to_path_buf(),
+                source: std::io::Error::new(
+                    std::io::ErrorKind::IsADirectory,
+                    "a folder is where this file goes",
+                ),
+            });
+        }
+    }
+    let mut staged = Vec::with_capacity(files.len());
+    for (path, bytes) in files {
+        match stage(path, bytes) {
+            Ok(s) => staged.push(s),
+            Err(e) => {
+                for s in &staged {
+                    let _ = std::fs::remove_file(&s.tmp);
+                }
+                return Err(e);
+            }
+        }
+    }
+    for (i, s) in staged.iter().enumerate() {
+        if let Err(source) = std::fs::rename(&s.tmp, &s.path) {
+            for rest in &staged[i..] {
+                let _ = std::fs::remove_file(&rest.tmp);
+            }
+            return Err(StoreError::Write {
+                path: s.path.clone(),
+                source,
+            });
+        }
+    }
+    let mut dirs: Vec<&Path> = staged
+        .iter()
+        .map(|s| s.path.parent().unwrap_or(Path::new(".")))
+        .collect();
+    dirs.dedup();
+    for d in dirs {
+        if let Ok(d) = std::fs::File::open(d) {
             let _ = d.sync_all();
         }
-        Ok(())
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
     }
-    result.map_err(err)
+    Ok(())
 }
 
 #[cfg(test)]
@@ -110,6 +202,23 @@ mod tests {
         assert_eq!(std::fs::read(&p).unwrap(), b"second");
         let names: Vec<_> = std::fs::read_dir(d.path().join("sub")).unwrap().collect();
         assert_eq!(names.len(), 1);
+    }
+
+    /// All or none: a second file that cannot be written (a folder in its place) leaves the
+    /// first one unchanged and no temporary file behind.
+    #[test]
+    fn files_written_together_are_all_or_none() {
+        let d = tempfile::tempdir().unwrap();
+        let (a, b) = (
+            d.path().join("cells.parquet"),
+            d.path().join("manifest.toml"),
+        );
+        write_atomic(&a, b"old").unwrap();
+        std::fs::create_dir(&b).unwrap();
+        let e = write_all_atomic(&[(&a, b"new"), (&b, b"m")]).unwrap_err();
+        assert!(e.to_string().contains("manifest.toml"), "{e}");
+        assert_eq!(std::fs::read(&a).unwrap(), b"old");
+        assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 2);
     }
 
     #[test]

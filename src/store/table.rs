@@ -8,6 +8,7 @@
 use super::cache::Record;
 use super::{StoreError, write_atomic};
 use polars::prelude::*;
+use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -66,38 +67,213 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
     ])
 }
 
-/// Writes the table atomically to `path`.
+/// Encodes the cells table: Parquet with kiln's metadata and a digest of its content.
+pub fn encode(path: &Path, rows: &[Row], spec_hash: &str) -> Result<Vec<u8>, StoreError> {
+    encode_frame(
+        path,
+        frame(rows),
+        vec![
+            ("kiln.format".into(), TABLE_FORMAT.into()),
+            ("kiln.convention".into(), CONVENTION.into()),
+            ("kiln.spec_hash".into(), spec_hash.into()),
+        ],
+    )
+}
+
+/// Writes the cells table atomically to `path`.
 pub fn write(path: &Path, rows: &[Row], spec_hash: &str) -> Result<(), StoreError> {
+    write_atomic(path, &encode(path, rows, spec_hash)?)
+}
+
+/// Metadata key of the content digest: SHA-256 over every column's name, type and values
+/// (see [`content_digest`]). A reader recomputes it, so a table whose numbers changed after
+/// kiln wrote it is refused even when it still parses.
+pub const DIGEST_KEY: &str = "kiln.content_sha256";
+
+/// Encodes a frame as Parquet with `meta` and the content digest in its key–value metadata.
+fn encode_frame(
+    path: &Path,
+    df: PolarsResult<DataFrame>,
+    mut meta: Vec<(String, String)>,
+) -> Result<Vec<u8>, StoreError> {
     let terr = |e: PolarsError| StoreError::Table {
         path: path.to_path_buf(),
         message: e.to_string(),
     };
-    let mut df = frame(rows).map_err(terr)?;
-    let meta = KeyValueMetadata::from_static(vec![
-        ("kiln.format".into(), TABLE_FORMAT.into()),
-        ("kiln.convention".into(), CONVENTION.into()),
-        ("kiln.spec_hash".into(), spec_hash.into()),
-    ]);
-    let mut buf = Vec::new();
-    ParquetWriter::new(&mut buf)
-        .with_key_value_metadata(Some(meta))
-        .finish(&mut df)
-        .map_err(terr)?;
-    write_atomic(path, &buf)
+    let mut df = df.map_err(terr)?;
+    meta.push((DIGEST_KEY.into(), content_digest(&df)));
+    let mut encode = |meta: Vec<(String, String)>| -> Result<Vec<u8>, StoreError> {
+        let mut buf = Vec::new();
+        ParquetWriter::new(&mut buf)
+            .with_key_value_metadata(Some(KeyValueMetadata::from_static(meta)))
+            .finish(&mut df)
+            .map_err(terr)?;
+        Ok(buf)
+    };
+    // The pages come before the footer and do not depend on the metadata: encode once to
+    // learn their bytes, then again with their checksum in the metadata.
+    let first = encode(meta.clone())?;
+    let end = pages_end(&first).expect("a table kiln just wrote has a footer");
+    meta.push((PAGES_KEY.into(), hex::encode(Sha256::digest(&first[..end]))));
+    let second = encode(meta)?;
+    if second.get(..end) != Some(&first[..end]) {
+        return Err(StoreError::Table {
+            path: path.to_path_buf(),
+            message: "the Parquet writer gave different pages for the same data".into(),
+        });
+    }
+    Ok(second)
 }
 
-/// Reads a table back (for `fit`, `plot` and tests).
+/// Metadata key of the SHA-256 of the bytes before the footer (every data page). A reader
+/// checks it after decoding only the footer, so damaged pages never reach the page decoder
+/// (whose reaction to a damaged page header can be an allocation of exabytes).
+pub const PAGES_KEY: &str = "kiln.pages_sha256";
+
+/// Where a Parquet file's footer starts (the file ends with the footer, its length as u32
+/// LE, and `PAR1`).
+fn pages_end(bytes: &[u8]) -> Option<usize> {
+    let n = bytes.len();
+    if n < 12 || &bytes[n - 4..] != b"PAR1" {
+        return None;
+    }
+    let footer = u32::from_le_bytes(bytes[n - 8..n - 4].try_into().ok()?) as usize;
+    (n - 8).checked_sub(footer).filter(|&e| e >= 4)
+}
+
+/// SHA-256 (hex) over the frame's height and, per column, its name, type and values (numbers
+/// by their bits, nulls marked), so any change of a stored number changes it.
+pub fn content_digest(df: &DataFrame) -> String {
+    let mut h = Sha256::new();
+    h.update((df.height() as u64).to_le_bytes());
+    for col in df.columns() {
+        h.update(col.name().as_bytes());
+        h.update([0]);
+        h.update(col.dtype().to_string().as_bytes());
+        h.update([0]);
+        let s = col.as_materialized_series();
+        let mut put = |v: Option<&[u8]>| match v {
+            Some(b) => {
+                h.update([1]);
+                h.update((b.len() as u64).to_le_bytes());
+                h.update(b);
+            }
+            None => h.update([0]),
+        };
+        match s.dtype() {
+            DataType::Float64 => s.f64().expect("f64").iter().for_each(|v| {
+                put(v
+                    .map(|x| x.to_bits().to_le_bytes())
+                    .as_ref()
+                    .map(|b| &b[..]))
+            }),
+            DataType::UInt64 => s
+                .u64()
+                .expect("u64")
+                .iter()
+                .for_each(|v| put(v.map(|x| x.to_le_bytes()).as_ref().map(|b| &b[..]))),
+            DataType::UInt32 => s
+                .u32()
+                .expect("u32")
+                .iter()
+                .for_each(|v| put(v.map(|x| x.to_le_bytes()).as_ref().map(|b| &b[..]))),
+            DataType::Boolean => s
+                .bool()
+                .expect("bool")
+                .iter()
+                .for_each(|v| put(v.map(|x| [x as u8]).as_ref().map(|b| &b[..]))),
+            DataType::String => s
+                .str()
+                .expect("str")
+                .iter()
+                .for_each(|v| put(v.map(str::as_bytes))),
+            _ => (0..s.len()).for_each(|i| {
+                let v = s.get(i).map(|v| format!("{v:?}")).unwrap_or_default();
+                put(Some(v.as_bytes()))
+            }),
+        }
+    }
+    hex::encode(h.finalize())
+}
+
+/// How many table reads are running: while any is, the panic hook stays quiet (a damaged
+/// file can make the Parquet decoder panic; the panic is caught and reported as damage).
+static READING: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+fn quiet_panics_while_reading() {
+    static HOOK: std::sync::Once = std::sync::Once::new();
+    HOOK.call_once(|| {
+        let default = std::panic::take_hook();
+        std::panic::set_hook(Box::new(move |info| {
+            if READING.load(std::sync::atomic::Ordering::SeqCst) == 0 {
+                default(info);
+            }
+        }));
+    });
+}
+
+/// The SHA-256 that the `manifest.toml` beside a table records for it, if any.
+fn manifest_checksum(path: &Path) -> Option<String> {
+    let name = path.file_name()?.to_str()?;
+    let text = std::fs::read_to_string(path.with_file_name("manifest.toml")).ok()?;
+    let v: toml::Table = text.parse().ok()?;
+    Some(v.get("tables")?.get(name)?.as_str()?.to_string())
+}
+
+/// Reads a table back (for `fit`, `plot`, `compare` and tests), refusing a damaged one with
+/// a message that names the file: its bytes must match the checksum in the `manifest.toml`
+/// beside it (when there is one, checked before decoding), it must decode (a panic of the
+/// decoder is caught), and its content must match the digest in its metadata (when it has
+/// one; tables written before the digest existed have none).
 pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
-    let f = std::fs::File::open(path).map_err(|source| StoreError::Read {
+    let bytes = std::fs::read(path).map_err(|source| StoreError::Read {
         path: path.to_path_buf(),
         source,
     })?;
-    ParquetReader::new(f)
-        .finish()
-        .map_err(|e| StoreError::Table {
-            path: path.to_path_buf(),
-            message: e.to_string(),
-        })
+    let damaged = |why: String| StoreError::Damaged {
+        path: path.to_path_buf(),
+        message: why,
+    };
+    if manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(&bytes)) != want) {
+        return Err(damaged(
+            "its bytes do not match the checksum its manifest.toml records".into(),
+        ));
+    }
+    quiet_panics_while_reading();
+    READING.fetch_add(1, std::sync::atomic::Ordering::SeqCst);
+    let decoded = std::panic::catch_unwind(
+        || -> PolarsResult<(DataFrame, Option<String>, String)> {
+            let mut reader = ParquetReader::new(std::io::Cursor::new(&bytes[..]));
+            let kv = reader.get_metadata()?.key_value_metadata().clone();
+            let value = |key: &str| {
+                kv.as_ref()
+                    .and_then(|kv| kv.iter().find(|k| k.key == key))
+                    .and_then(|k| k.value.clone())
+            };
+            if let Some(want) = value(PAGES_KEY) {
+                let end = pages_end(&bytes);
+                if end.is_none_or(|e| hex::encode(Sha256::digest(&bytes[..e])) != want) {
+                    polars_bail!(ComputeError: "its data pages do not match the checksum in its footer");
+                }
+            }
+            let digest = value(DIGEST_KEY);
+            let df = reader.finish()?;
+            let got = content_digest(&df);
+            Ok((df, digest, got))
+        },
+    );
+    READING.fetch_sub(1, std::sync::atomic::Ordering::SeqCst);
+    let (df, digest, got) = match decoded {
+        Ok(Ok(x)) => x,
+        Ok(Err(e)) => return Err(damaged(format!("not a readable Parquet table ({e})"))),
+        Err(_) => return Err(damaged("the Parquet decoder failed on it".into())),
+    };
+    if digest.is_some_and(|want| got != want) {
+        return Err(damaged(
+            "its content does not match the digest kiln wrote into it".into(),
+        ));
+    }
+    Ok(df)
 }
 
 /// Pairwise overlaps of replica outputs: one row per (algorithm, n, seed, a < b).
@@ -121,14 +297,14 @@ impl Overlaps {
         self.overlap.push(q);
     }
 
-    pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
+    pub fn encode(&self, path: &Path, experiment: &str) -> Result<Vec<u8>, StoreError> {
         let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
         cols.extend([
             Column::new("replica_a".into(), self.a.clone()),
             Column::new("replica_b".into(), self.b.clone()),
             Column::new("overlap".into(), self.overlap.clone()),
         ]);
-        write_frame(path, DataFrame::new_infer_height(cols))
+        encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
     }
 }
 
@@ -153,7 +329,7 @@ impl Triples {
         }
     }
 
-    pub fn write(&self, path: &Path, experiment: &str) -> Result<(), StoreError> {
+    pub fn encode(&self, path: &Path, experiment: &str) -> Result<Vec<u8>, StoreError> {
         let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
         cols.extend([
             Column::new("replica_a".into(), self.r[0].clone()),
@@ -163,7 +339,7 @@ impl Triples {
             Column::new("q_mid".into(), self.q[1].clone()),
             Column::new("q_max".into(), self.q[2].clone()),
         ]);
-        write_frame(path, DataFrame::new_infer_height(cols))
+        encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
     }
 }
 
@@ -177,15 +353,9 @@ fn group_columns(experiment: &str, algorithm: &[String], n: &[u64], seed: &[u64]
     ]
 }
 
+/// Writes a frame atomically, with the content digest in its metadata.
 pub(crate) fn write_frame(path: &Path, df: PolarsResult<DataFrame>) -> Result<(), StoreError> {
-    let terr = |e: PolarsError| StoreError::Table {
-        path: path.to_path_buf(),
-        message: e.to_string(),
-    };
-    let mut df = df.map_err(terr)?;
-    let mut buf = Vec::new();
-    ParquetWriter::new(&mut buf).finish(&mut df).map_err(terr)?;
-    write_atomic(path, &buf)
+    write_atomic(path, &encode_frame(path, df, Vec::new())?)
 }
 
 /// (family, couplings) → algorithm → (n, energy) samples at ε = 0.
@@ -209,7 +379,7 @@ pub struct Cells {
 impl Cells {
     pub fn read(path: &Path) -> Result<Cells, StoreError> {
         let df = read(path)?;
-        let bad = |c: &str, e: PolarsError| StoreError::Table {
+        let bad = |c: &str, e: PolarsError| StoreError::Unusable {
             path: path.to_path_buf(),
             message: format!("column `{c}`: {e}"),
         };

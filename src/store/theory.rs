@@ -28,15 +28,7 @@ pub fn write(cache: &Cache, hex_key: &str, body: &serde_json::Value) -> Result<(
 /// Reads and checks a solution.
 pub fn read(cache: &Cache, hex_key: &str) -> Result<Lookup<serde_json::Value>, StoreError> {
     let path = path(cache, hex_key);
-    let bytes = match std::fs::read(&path) {
-        Ok(b) => b,
-        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Lookup::Missing),
-        Err(source) => return Err(StoreError::Read { path, source }),
-    };
-    match decode(&bytes, hex_key) {
-        Ok(v) => Ok(Lookup::Hit(v)),
-        Err(reason) => Ok(cache.quarantine(path, reason)),
-    }
+    cache.read_entry(path, |b| decode(b, hex_key))
 }
 
 fn decode(bytes: &[u8], hex_key: &str) -> Result<serde_json::Value, String> {

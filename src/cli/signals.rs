@@ -1,0 +1,66 @@
+//! SIGINT (Ctrl-C) and SIGTERM (what Slurm sends at a time limit or on `scancel`, and what
+//! `kill` sends by default) stop a run the same way: no new cells start, the cells in flight
+//! get a grace period to finish, then the claims still held are released and the table is
+//! written from what is done. A second signal leaves at once (claims released). The exit
+//! status is 128 + the signal: 130 after SIGINT, 143 after SIGTERM.
+
+use crate::exec::INTERRUPTED;
+use signal_hook::consts::{SIGINT, SIGTERM};
+use std::sync::atomic::{AtomicI32, Ordering};
+
+/// The first stopping signal received (0: none).
+static RECEIVED: AtomicI32 = AtomicI32::new(0);
+
+/// The exit status for an interrupted run: 128 + the signal (130 if none was recorded).
+pub fn exit_status() -> u8 {
+    match RECEIVED.load(Ordering::SeqCst) {
+        0 => 130,
+        s => (128 + s) as u8,
+    }
+}
+
+/// Whether a stopping signal has arrived.
+pub fn received() -> bool {
+    RECEIVED.load(Ordering::SeqCst) != 0
+}
+
+fn name(sig: i32) -> &'static str {
+    if sig == SIGTERM {
+        "SIGTERM"
+    } else {
+        "interrupt"
+    }
+}
+
+/// Installs the handlers (once per process; later calls do nothing).
+pub fn install(grace_seconds: f64) {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| {
+        let mut signals = match signal_hook::iterator::Signals::new([SIGINT, SIGTERM]) {
+            Ok(s) => s,
+            Err(e) => {
+                eprintln!("warning: cannot watch for SIGINT/SIGTERM ({e}); a stop signal will end kiln at once");
+                return;
+            }
+        };
+        std::thread::Builder::new()
+            .name("kiln-signals".into())
+            .spawn(move || {
+                for sig in signals.forever() {
+                    if INTERRUPTED.swap(true, Ordering::SeqCst) {
+                        // A second signal: leave now. Records are written atomically, so
+                        // nothing is torn; held claims are released so others need not wait.
+                        crate::store::claims::release_all();
+                        eprintln!("{}: leaving at once", name(sig));
+                        std::process::exit(128 + sig);
+                    }
+                    RECEIVED.store(sig, Ordering::SeqCst);
+                    eprintln!(
+                        "\n{}: finishing the cells in flight (at most {grace_seconds:.0} s), then writing the table (a second signal leaves at once)",
+                        name(sig)
+                    );
+                }
+            })
+            .expect("signal thread");
+    });
+}
