@@ -105,11 +105,21 @@ pub struct RunArgs {
     pub shard: Option<String>,
     /// Lease of this runner's cell claims, in seconds: another runner (on any host) takes over
     /// a claim not renewed for this long. The renewal runs every sixth of it.
-    #[arg(long, value_name = "SECONDS", default_value_t = 120.0)]
+    #[arg(
+        long,
+        value_name = "SECONDS",
+        default_value_t = 120.0,
+        env = "KILN_LEASE"
+    )]
     pub lease: f64,
     /// After SIGTERM or Ctrl-C, how long to let the cells in flight finish before abandoning
     /// them (their claims are released) and writing the table, in seconds.
-    #[arg(long, value_name = "SECONDS", default_value_t = 20.0)]
+    #[arg(
+        long,
+        value_name = "SECONDS",
+        default_value_t = 20.0,
+        env = "KILN_GRACE"
+    )]
     pub grace: f64,
 }
 

@@ -111,6 +111,9 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
          #SBATCH --time={time}\n\
          {part}\
          #SBATCH --output={out}/shard-%a.out\n\
+         # SIGTERM a minute before the time limit: kiln finishes or abandons its cells in flight\n\
+         # (--grace), releases its claims and exits 143; the next submission resumes.\n\
+         #SBATCH --signal=B:TERM@60\n\
          set -euo pipefail\n\
          exec {kiln} run {spec} --shard \"$SLURM_ARRAY_TASK_ID/{tasks}\" {common_args} --jobs \"${{SLURM_CPUS_PER_TASK:-{cpus}}}\" --quiet\n",
         name = spec.name,
@@ -132,6 +135,7 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
          #SBATCH --time={time}\n\
          {part}\
          #SBATCH --output={out}/assemble.out\n\
+         #SBATCH --signal=B:TERM@60\n\
          set -euo pipefail\n\
          exec {kiln} run {spec} {common_args} --jobs 1 --quiet\n",
         name = spec.name,

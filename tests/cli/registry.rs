@@ -376,3 +376,105 @@ fn a_family_registered_from_outside_runs_end_to_end() {
     assert!(kiln::spec::reference(&fams, &algs).contains("#### `family = \"toy-field-magnet\"`"));
     assert!(kiln::spec::listing(&fams, &algs).contains("toy-field-magnet"));
 }
+
+/// A test kind for the sphere that returns a point of NaNs: the energy per spin is not a number.
+#[derive(Debug)]
+struct NanPoint;
+
+impl Algorithm for NanPoint {
+    fn kind(&self) -> &'static str {
+        NAN.name
+    }
+    fn revision(&self) -> u32 {
+        1
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        8 * n as u128
+    }
+    fn cost(&self, n: u64, _flip: f64) -> f64 {
+        n as f64
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        m.family
+            .spins()
+            .then_some("it returns a point on the sphere")
+    }
+    fn run(&self, inst: &Instance, _rng: &mut Stream) -> Result<Output, AlgoError> {
+        let n = inst.n();
+        Ok(Output {
+            spins: vec![1; n],
+            point: Some(vec![f64::NAN; n]),
+            info: Info::default(),
+        })
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
+}
+
+const NAN: Kind = Kind {
+    name: "toy-nan",
+    summary: "A test kind: a point of NaNs on the sphere.",
+    keys: &[],
+    parse: |_| Ok(AlgoSpec::new(NanPoint)),
+};
+
+/// A cell whose algorithm produced a non-finite energy per spin is a failed cell with the
+/// reason: the run exits 1, no record is kept (so no later run reads it as damage), the
+/// failure note says why, and the other algorithm's cells are done and tabled.
+#[test]
+fn a_non_finite_energy_is_a_failed_cell() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| kiln::algo::register(NAN).expect("the name is free"));
+    let w = Work::new();
+    let spec = w.spec(
+        "s.toml",
+        r#"[experiment]
+name = "nan"
+[model]
+family = "sphere"
+xi = { 3 = 1.0 }
+[sweep]
+sizes = [20]
+seeds = 2
+[[algorithm]]
+kind = "toy-nan"
+[[algorithm]]
+kind = "gradient"
+"#,
+    );
+    let results = w.path().join("results");
+    let code = kiln::cli::main_from([
+        "kiln",
+        "run",
+        spec.to_str().unwrap(),
+        "--results",
+        results.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert_eq!(
+        format!("{code:?}"),
+        format!("{:?}", std::process::ExitCode::from(1))
+    );
+    let df = kiln::store::table::read(&results.join("nan/cells.parquet")).unwrap();
+    assert_eq!(df.height(), 2, "the gradient cells are tabled");
+    let mut notes = Vec::new();
+    for shard in std::fs::read_dir(results.join(".cache/failed")).unwrap() {
+        for f in std::fs::read_dir(shard.unwrap().path()).unwrap() {
+            notes.push(std::fs::read_to_string(f.unwrap().path()).unwrap());
+        }
+    }
+    assert_eq!(notes.len(), 2, "{notes:?}");
+    assert!(
+        notes[0].contains("toy-nan produced a non-finite energy per spin (NaN"),
+        "{notes:?}"
+    );
+    let records: usize = std::fs::read_dir(results.join(".cache/records"))
+        .unwrap()
+        .map(|s| std::fs::read_dir(s.unwrap().path()).unwrap().count())
+        .sum();
+    assert_eq!(records, 2, "only the gradient cells have records");
+}
