@@ -27,6 +27,18 @@ pub fn distance_points(a: &[f64], b: &[f64]) -> f64 {
     (a.iter().zip(b).map(|(x, y)| (x - y).powi(2)).sum::<f64>() / a.len() as f64).sqrt()
 }
 
+/// The distance to the nearer of y and −y, given d = ‖x − y‖/√n for two points of norm √n
+/// (±1 spins, or points on the sphere): ‖x + y‖²/n = 4 − d², so it is min(d, √(4 − d²)). For a
+/// model with H(−x) = H(x), x and −x are one state, and this is how far an output moved.
+/// Returns d itself (the same bits) when it is the nearer.
+pub fn distance_modulo_flip(d: f64) -> f64 {
+    if d * d <= 2.0 {
+        d
+    } else {
+        (4.0 - d * d).max(0.0).sqrt()
+    }
+}
+
 /// Every pair (a < b) of replica outputs with its overlap, and every triple (a < b < c) with
 /// its three overlaps sorted increasingly.
 #[allow(clippy::type_complexity)]

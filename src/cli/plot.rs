@@ -194,6 +194,10 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     let cache = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
     let spec_hash = exp.spec_hash();
     let cells = crate::store::table::Cells::read(&table_path)?;
+    // Stability figures draw `distance_sym`, which is modulo the global flip for symmetric
+    // models (tables written before it existed give the raw distance).
+    let modulo_flip =
+        cells.distance_is_sym && exp.model.as_ref().is_some_and(|m| m.family.symmetric());
     let (order, energies, distances) = cells.groups();
     let figdir = dir.join("figures");
     let mut written: Vec<PathBuf> = Vec::new();
@@ -301,7 +305,15 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         let fig = StabilityFigure {
             title: format!("stability of {label}"),
             series,
-            caption: "Mean distance ‖σ − σ'‖/√n between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; slopes: least-squares fits of log distance against log ε.".into(),
+            caption: format!(
+                "Mean distance {} between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; slopes: least-squares fits of log distance against log ε.",
+                if modulo_flip {
+                    "min(‖σ − σ'‖, ‖σ + σ'‖)/√n (σ and −σ are one state of this model; column distance_sym)"
+                } else {
+                    "‖σ − σ'‖/√n"
+                }
+            ),
+            modulo_flip,
         };
         let base = figdir.join(format!("stability-{}", file_safe(label)));
         match write_all(&base, size, &csv, &fig) {

@@ -1,6 +1,7 @@
 //! The short text table `kiln run` prints: per algorithm and size, the mean energy per spin
 //! over seeds with its standard error, and the mean distance at each ε (after rounding, and
-//! before it for algorithms with a pre-rounding point).
+//! before it for algorithms with a pre-rounding point), modulo the global flip for models
+//! where σ and −σ are one state.
 
 use crate::cell::Key;
 use crate::spec::Spec;
@@ -24,8 +25,22 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
         "algorithm", "n", "energy/n ± se"
     );
     let points = records.values().any(|r| r.distance_point.is_some());
+    // Distances modulo the global flip where σ and −σ are one state (the `_sym` columns).
+    let flip = spec.model.family.symmetric();
+    let sym = |d: f64| {
+        if flip {
+            crate::measure::distance_modulo_flip(d)
+        } else {
+            d
+        }
+    };
+    let head = if flip {
+        "   distance mod ± at ε ="
+    } else {
+        "   distance at ε ="
+    };
     if !eps.is_empty() {
-        s += "   distance at ε =";
+        s += head;
         for e in &eps {
             s += &format!(" {e:>6}");
         }
@@ -70,11 +85,11 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
                         })
                         .collect()
                 };
-                s += &" ".repeat(18);
-                s += &means(&|r| Some(r.distance));
+                s += &" ".repeat(head.chars().count());
+                s += &means(&|r| Some(sym(r.distance)));
                 if points {
                     s += "  ";
-                    s += &means(&|r| r.distance_point);
+                    s += &means(&|r| r.distance_point.map(sym));
                 }
             }
             s += "\n";

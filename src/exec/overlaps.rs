@@ -52,8 +52,9 @@ pub fn encode_overlaps(
         }
     }
     let (p, t) = (dir.join("overlaps.parquet"), dir.join("triples.parquet"));
+    let sym = spec.model.family.symmetric();
     Ok(vec![
-        (p.clone(), pairs.encode(&p, &spec.name)?),
-        (t.clone(), triples.encode(&t, &spec.name)?),
+        (p.clone(), pairs.encode(&p, &spec.name, sym)?),
+        (t.clone(), triples.encode(&t, &spec.name, sym)?),
     ])
 }

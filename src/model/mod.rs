@@ -109,6 +109,12 @@ pub trait Family: std::fmt::Debug + Send + Sync + 'static {
     }
     /// Whether configurations are ±1 spins (every family but the sphere).
     fn spins(&self) -> bool;
+    /// Whether H(−σ) = H(σ) for every configuration (on the sphere H(−x) = H(x)): no field and
+    /// no odd-p term. Stability is then also reported modulo the global flip (the `_sym`
+    /// columns). The default, false, is always safe: the `_sym` columns equal the raw ones.
+    fn symmetric(&self) -> bool {
+        false
+    }
     /// The covariance ξ of a dense mean-field family (sk: q²/2); None for the others.
     fn mixture(&self) -> Option<&Mixture> {
         None

@@ -38,6 +38,8 @@ pub struct StabilityFigure {
     pub title: String,
     pub series: Vec<StabilitySeries>,
     pub caption: String,
+    /// Distances modulo the global flip (the model's σ and −σ are one state).
+    pub modulo_flip: bool,
 }
 
 /// One size's overlap histogram: bin edges on [−1, 1] and densities.
@@ -409,7 +411,11 @@ where
     house_mesh(
         &mut chart.configure_mesh(),
         "ε  (disorder correlation 1 − ε)",
-        "distance  ‖σ − σ'‖/√n",
+        if fig.modulo_flip {
+            "distance  min ‖σ ∓ σ'‖/√n"
+        } else {
+            "distance  ‖σ − σ'‖/√n"
+        },
         (4, 5),
     )
     .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))

@@ -13,20 +13,31 @@ use std::collections::BTreeMap;
 use std::path::Path;
 
 /// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added;
-/// 3: `distance_point`).
-pub const TABLE_FORMAT: &str = "kiln-cells/3";
+/// 3: `distance_point`; 4: `overlap_sym`, `distance_sym`, `distance_point_sym`).
+pub const TABLE_FORMAT: &str = "kiln-cells/4";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; relaxation = value per spin of the pre-rounding point or relaxation. SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation. SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
 
 /// One row: the experiment, the algorithm's label, and the cell's record.
 pub struct Row<'a> {
+    /// Whether the model has the global-flip symmetry (see [`crate::model::Family::symmetric`]).
+    pub symmetric: bool,
     pub experiment: &'a str,
     pub label: &'a str,
     pub record: &'a Record,
+}
+
+/// A distance modulo the global flip when the model has that symmetry.
+fn sym(r: &Row, d: f64) -> f64 {
+    if r.symmetric {
+        crate::measure::distance_modulo_flip(d)
+    } else {
+        d
+    }
 }
 
 /// Builds the table as a DataFrame (column order is part of the format).
@@ -57,6 +68,16 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("cut_fraction", |r: &Row| r.record.cut_fraction),
         col!("relaxation", |r: &Row| r.record.relaxation),
         col!("distance_point", |r: &Row| r.record.distance_point),
+        col!("overlap_sym", |r: &Row| if r.symmetric {
+            r.record.overlap.abs()
+        } else {
+            r.record.overlap
+        }),
+        col!("distance_sym", |r: &Row| sym(r, r.record.distance)),
+        col!("distance_point_sym", |r: &Row| r
+            .record
+            .distance_point
+            .map(|d| sym(r, d))),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),
@@ -297,12 +318,25 @@ impl Overlaps {
         self.overlap.push(q);
     }
 
-    pub fn encode(&self, path: &Path, experiment: &str) -> Result<Vec<u8>, StoreError> {
+    /// `symmetric`: the model's σ and −σ are one state, so `overlap_sym` = |overlap|
+    /// (otherwise it equals `overlap`).
+    pub fn encode(
+        &self,
+        path: &Path,
+        experiment: &str,
+        symmetric: bool,
+    ) -> Result<Vec<u8>, StoreError> {
         let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        let sym: Vec<f64> = self
+            .overlap
+            .iter()
+            .map(|&q| if symmetric { q.abs() } else { q })
+            .collect();
         cols.extend([
             Column::new("replica_a".into(), self.a.clone()),
             Column::new("replica_b".into(), self.b.clone()),
             Column::new("overlap".into(), self.overlap.clone()),
+            Column::new("overlap_sym".into(), sym),
         ]);
         encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
     }
@@ -329,8 +363,26 @@ impl Triples {
         }
     }
 
-    pub fn encode(&self, path: &Path, experiment: &str) -> Result<Vec<u8>, StoreError> {
+    /// `symmetric`: also the sorted |q| of each triple (`q_sym_min` ≤ `q_sym_mid` ≤
+    /// `q_sym_max`; otherwise they equal the raw ones).
+    pub fn encode(
+        &self,
+        path: &Path,
+        experiment: &str,
+        symmetric: bool,
+    ) -> Result<Vec<u8>, StoreError> {
         let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        let mut sym: [Vec<f64>; 3] = Default::default();
+        for i in 0..self.n.len() {
+            let mut q = [self.q[0][i], self.q[1][i], self.q[2][i]];
+            if symmetric {
+                q = q.map(f64::abs);
+                q.sort_by(f64::total_cmp);
+            }
+            for k in 0..3 {
+                sym[k].push(q[k]);
+            }
+        }
         cols.extend([
             Column::new("replica_a".into(), self.r[0].clone()),
             Column::new("replica_b".into(), self.r[1].clone()),
@@ -338,6 +390,12 @@ impl Triples {
             Column::new("q_min".into(), self.q[0].clone()),
             Column::new("q_mid".into(), self.q[1].clone()),
             Column::new("q_max".into(), self.q[2].clone()),
+        ]);
+        let [s0, s1, s2] = sym;
+        cols.extend([
+            Column::new("q_sym_min".into(), s0),
+            Column::new("q_sym_mid".into(), s1),
+            Column::new("q_sym_max".into(), s2),
         ]);
         encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
     }
@@ -373,12 +431,17 @@ pub struct Cells {
     pub epsilon: Vec<f64>,
     pub energy: Vec<f64>,
     pub energy_perturbed: Vec<f64>,
+    /// `distance_sym` (modulo the global flip where the model has it), or `distance` for a
+    /// table written before that column existed.
     pub distance: Vec<f64>,
+    /// Whether `distance` was read from `distance_sym`.
+    pub distance_is_sym: bool,
 }
 
 impl Cells {
     pub fn read(path: &Path) -> Result<Cells, StoreError> {
         let df = read(path)?;
+        let sym = df.column("distance_sym").is_ok();
         let bad = |c: &str, e: PolarsError| StoreError::Unusable {
             path: path.to_path_buf(),
             message: format!("column `{c}`: {e}"),
@@ -419,7 +482,8 @@ impl Cells {
             epsilon: f64s("epsilon")?,
             energy: f64s("energy")?,
             energy_perturbed: f64s("energy_perturbed")?,
-            distance: f64s("distance")?,
+            distance: f64s(if sym { "distance_sym" } else { "distance" })?,
+            distance_is_sym: sym,
         })
     }
 

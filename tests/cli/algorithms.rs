@@ -209,8 +209,8 @@ fn hessian_ascent_on_the_sphere() {
 /// Replica overlaps (`sweep.replicas = 3`): two extra independent runs per (instance,
 /// algorithm) at ε = 0; the main table keeps its rows and keys (adding replicas recomputes
 /// nothing already cached); `overlaps.parquet` holds every pair (values σ^a·σ^b/n: in [−1, 1]
-/// and multiples of 2/n); `triples.parquet` every triple with q_min ≤ q_mid ≤ q_max; and a
-/// rerun gives identical files.
+/// and multiples of 2/n; `overlap_sym` = |overlap| on SK); `triples.parquet` every triple with
+/// q_min ≤ q_mid ≤ q_max (and the sorted |q|); and a rerun gives identical files.
 #[test]
 fn replica_overlaps_and_sorted_triples() {
     use crate::util::{SMALL, Work, counts};
@@ -276,6 +276,21 @@ fn replica_overlaps_and_sorted_triples() {
     let (lo, mid, hi) = (col("q_min"), col("q_mid"), col("q_max"));
     for i in 0..12 {
         assert!(lo[i] <= mid[i] && mid[i] <= hi[i]);
+    }
+    // SK: σ and −σ are one state, so the `_sym` columns hold |q| (sorted within a triple).
+    let qsym: Vec<f64> = pairs
+        .column("overlap_sym")
+        .unwrap()
+        .f64()
+        .unwrap()
+        .into_no_null_iter()
+        .collect();
+    assert!(q.iter().zip(&qsym).all(|(a, b)| a.abs() == *b));
+    let (slo, smid, shi) = (col("q_sym_min"), col("q_sym_mid"), col("q_sym_max"));
+    for i in 0..12 {
+        let mut v = [lo[i].abs(), mid[i].abs(), hi[i].abs()];
+        v.sort_by(f64::total_cmp);
+        assert_eq!(v, [slo[i], smid[i], shi[i]]);
     }
     // `kiln plot` draws the histograms; each n's density integrates to 1.
     let o = w.kiln(&["plot", rep.to_str().unwrap()]);

@@ -478,3 +478,102 @@ kind = "gradient"
         .sum();
     assert_eq!(records, 2, "only the gradient cells have records");
 }
+
+/// A test kind whose output is ±σ₀ for a fixed pattern σ₀, the sign being that of H(σ₀) on
+/// the instance it is given: on a correlated copy the output is the same state or its global
+/// flip, nothing else.
+#[derive(Debug)]
+struct SignOfPattern;
+
+impl Algorithm for SignOfPattern {
+    fn kind(&self) -> &'static str {
+        SIGN.name
+    }
+    fn revision(&self) -> u32 {
+        1
+    }
+    fn canon(&self, c: Canon) -> Canon {
+        c
+    }
+    fn work_bytes(&self, n: u64) -> u128 {
+        n as u128
+    }
+    fn cost(&self, n: u64, _flip: f64) -> f64 {
+        n as f64
+    }
+    fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
+        (!m.family.spins()).then_some("it sets ±1 spins")
+    }
+    fn run(&self, inst: &Instance, _rng: &mut Stream) -> Result<Output, AlgoError> {
+        let pattern: Vec<i8> = (0..inst.n())
+            .map(|i| if i % 3 == 0 { -1 } else { 1 })
+            .collect();
+        let s = if inst.energy(&pattern) >= 0.0 { 1 } else { -1 };
+        Ok(Output {
+            spins: pattern.iter().map(|&x| s * x).collect(),
+            point: None,
+            info: Info::default(),
+        })
+    }
+    fn as_any(&self) -> &dyn std::any::Any {
+        self
+    }
+}
+
+const SIGN: Kind = Kind {
+    name: "toy-sign",
+    summary: "A test kind: a fixed pattern times the sign of its energy.",
+    keys: &[],
+    parse: |_| Ok(AlgoSpec::new(SignOfPattern)),
+};
+
+/// Stability modulo the symmetry: an output that only changes by a global flip on the
+/// correlated copy has `distance_sym` = 0 and `overlap_sym` = 1 on SK (σ and −σ are one
+/// state), while the raw columns show the flips (distance 2, overlap −1). On the pure 3-spin
+/// cube, where H(−σ) = −H(σ), the `_sym` columns are the raw ones.
+#[test]
+fn stability_is_measured_modulo_the_global_flip() {
+    static ONCE: std::sync::Once = std::sync::Once::new();
+    ONCE.call_once(|| kiln::algo::register(SIGN).expect("the name is free"));
+    for (model, symmetric) in [
+        ("family = \"sk\"", true),
+        ("family = \"cube\"\nxi = { 3 = 1.0 }", false),
+    ] {
+        let w = Work::new();
+        let spec = w.spec(
+            "s.toml",
+            &format!(
+                "[experiment]\nname = \"flip\"\n[model]\n{model}\n[sweep]\nsizes = [30]\nseeds = 24\nepsilons = [0.0, 0.9]\n[[algorithm]]\nkind = \"toy-sign\"\n"
+            ),
+        );
+        let results = run_in_process(&spec, &w);
+        let df = kiln::store::table::read(&results.join("flip/cells.parquet")).unwrap();
+        let col = |c: &str| -> Vec<f64> {
+            df.column(c)
+                .unwrap()
+                .f64()
+                .unwrap()
+                .into_no_null_iter()
+                .collect()
+        };
+        let (eps, d, dsym, q, qsym) = (
+            col("epsilon"),
+            col("distance"),
+            col("distance_sym"),
+            col("overlap"),
+            col("overlap_sym"),
+        );
+        let perturbed: Vec<usize> = (0..eps.len()).filter(|&i| eps[i] > 0.0).collect();
+        assert_eq!(perturbed.len(), 24);
+        let flips = perturbed.iter().filter(|&&i| d[i] == 2.0).count();
+        assert!(flips > 0, "{model}: no sign changed in 24 seeds");
+        assert!(perturbed.iter().all(|&i| d[i] == 0.0 || d[i] == 2.0));
+        for &i in &perturbed {
+            if symmetric {
+                assert_eq!((dsym[i], qsym[i]), (0.0, 1.0), "{model}: row {i}");
+            } else {
+                assert_eq!((dsym[i], qsym[i]), (d[i], q[i]), "{model}: row {i}");
+            }
+        }
+    }
+}

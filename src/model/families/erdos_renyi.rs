@@ -50,6 +50,10 @@ pub struct ErdosRenyi {
 }
 
 impl Family for ErdosRenyi {
+    /// Pairwise couplings and no field: H(−σ) = H(σ).
+    fn symmetric(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         ENTRY.name
     }

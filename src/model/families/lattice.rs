@@ -81,6 +81,10 @@ impl Lattice {
 }
 
 impl Family for Lattice {
+    /// Pairwise couplings and no field: H(−σ) = H(σ).
+    fn symmetric(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         ENTRY.name
     }

@@ -111,6 +111,10 @@ pub struct MixtureFamily<const SPHERE: bool> {
 }
 
 impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
+    /// Symmetric when every term of ξ has even p.
+    fn symmetric(&self) -> bool {
+        self.xi.terms.iter().all(|&(p, _)| p % 2 == 0)
+    }
     fn name(&self) -> &'static str {
         if SPHERE {
             sphere::ENTRY.name

@@ -57,6 +57,10 @@ pub struct Regular {
 }
 
 impl Family for Regular {
+    /// Pairwise couplings and no field: H(−σ) = H(σ).
+    fn symmetric(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         ENTRY.name
     }

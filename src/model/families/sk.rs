@@ -30,6 +30,10 @@ pub struct Sk;
 static XI: LazyLock<Mixture> = LazyLock::new(Mixture::sk);
 
 impl Family for Sk {
+    /// Pairwise couplings and no field: H(−σ) = H(σ).
+    fn symmetric(&self) -> bool {
+        true
+    }
     fn name(&self) -> &'static str {
         ENTRY.name
     }
