@@ -13,12 +13,35 @@ use std::process::ExitCode;
 pub struct CompareArgs {
     pub a: PathBuf,
     pub b: PathBuf,
+    /// Compare only the columns both tables have (say, a table from before a format added
+    /// columns); the others are listed.
+    #[arg(long)]
+    pub shared_columns: bool,
 }
 
 pub fn run(args: &CompareArgs) -> anyhow::Result<ExitCode> {
-    let a = table::read(&args.a)?.drop_many(PROVENANCE_COLUMNS);
-    let b = table::read(&args.b)?.drop_many(PROVENANCE_COLUMNS);
+    let mut a = table::read(&args.a)?.drop_many(PROVENANCE_COLUMNS);
+    let mut b = table::read(&args.b)?.drop_many(PROVENANCE_COLUMNS);
     let mut problems = Vec::new();
+    let mut note = String::new();
+    if args.shared_columns {
+        let names = |d: &DataFrame| -> Vec<String> {
+            d.get_column_names().iter().map(|c| c.to_string()).collect()
+        };
+        let (na, nb) = (names(&a), names(&b));
+        let only_a: Vec<&String> = na.iter().filter(|c| !nb.contains(c)).collect();
+        let only_b: Vec<&String> = nb.iter().filter(|c| !na.contains(c)).collect();
+        for (side, cols) in [("A", &only_a), ("B", &only_b)] {
+            if !cols.is_empty() {
+                note += &format!(
+                    "; only in {side}: {}",
+                    cols.iter().map(|c| c.as_str()).collect::<Vec<_>>().join(", ")
+                );
+            }
+        }
+        a = a.drop_many(only_a.iter().map(|c| c.as_str()).collect::<Vec<_>>());
+        b = b.drop_many(only_b.iter().map(|c| c.as_str()).collect::<Vec<_>>());
+    }
     if a.get_column_names() != b.get_column_names() {
         problems.push(format!(
             "columns differ: {:?} vs {:?}",
@@ -49,7 +72,7 @@ pub fn run(args: &CompareArgs) -> anyhow::Result<ExitCode> {
     }
     if problems.is_empty() {
         out(&format!(
-            "identical: {} rows, {} columns compared (provenance columns ignored)\n",
+            "identical: {} rows, {} columns compared (provenance columns ignored){note}\n",
             a.height(),
             a.width()
         ));
