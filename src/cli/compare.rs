@@ -35,7 +35,10 @@ pub fn run(args: &CompareArgs) -> anyhow::Result<ExitCode> {
             if !cols.is_empty() {
                 note += &format!(
                     "; only in {side}: {}",
-                    cols.iter().map(|c| c.as_str()).collect::<Vec<_>>().join(", ")
+                    cols.iter()
+                        .map(|c| c.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
                 );
             }
         }

@@ -50,20 +50,15 @@ fn reference_lines(
         return Ok(vec![]);
     };
     Ok(if m.family.spins() {
-        let full = crate::theory::cached::full_rsb(&crate::store::cache::Cache::new(cache), xi)?;
+        let (value, which) =
+            crate::theory::cached::parisi_best(&crate::store::cache::Cache::new(cache), xi)?;
         let mut caption = format!(
-            "Parisi value {:.6} computed by kiln: full-RSB minimisation of the Auffinger–Chen functional (arXiv:1606.05335) on {} q-intervals.",
-            full.value,
-            full.m.len()
+            "Parisi value {value:.6} computed by kiln: the least of its full-RSB and 1- and 2-step RSB minima of the Auffinger–Chen functional (arXiv:1606.05335), attained by {which}."
         );
         if *xi == crate::theory::Mixture::sk() {
             caption += " Published: 0.7631667 (Crisanti & Rizzo, Phys. Rev. E 65, 046137 (2002)); for SK the algorithmic threshold equals it (Montanari 2019, assuming no overlap gap).";
         }
-        vec![(
-            full.value,
-            format!("Parisi value {:.5}", full.value),
-            caption,
-        )]
+        vec![(value, format!("Parisi value {value:.5}"), caption)]
     } else {
         {
             let (gs, ..) = crate::theory::sphere::ground_state(xi);

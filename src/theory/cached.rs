@@ -85,3 +85,23 @@ pub fn k_rsb(
     crate::store::theory::write(cache, &hex_key, &v)?;
     Ok(sol)
 }
+
+/// The best (least) upper bound kiln has on the Parisi value of the cube: the full-RSB value
+/// or a k-step value (k = 1, 2), whichever is lower, with the name of the solution. Every one
+/// of them is an upper bound (the Parisi value is the infimum of the functional); a full-RSB
+/// value on its fixed q-grid can lie above the 2-step one when γ has a large jump.
+pub fn parisi_best(cache: &Cache, xi: &Mixture) -> Result<(f64, String), StoreError> {
+    let full = full_rsb(cache, xi)?;
+    let mut best = (
+        full.value,
+        format!("full RSB on {} q-intervals", full.m.len()),
+    );
+    let s = cube::Settings::default();
+    for k in 1..=2 {
+        let sol = k_rsb(cache, xi, k, &s)?;
+        if sol.value < best.0 {
+            best = (sol.value, format!("{k}-step RSB"));
+        }
+    }
+    Ok(best)
+}

@@ -316,6 +316,18 @@ fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f
     let q: Vec<f64> = (0..=k)
         .map(|j| 1.0 - (1.0 - j as f64 / k as f64).powf(power))
         .collect();
+    solve_grid(xi, q, s, m0, beta)
+}
+
+/// Minimises on the given q-grid (0 = q_0 < … < q_K = 1) from `m0` (one value per interval).
+fn solve_grid(
+    xi: &Mixture,
+    q: Vec<f64>,
+    s: &FullSettings,
+    m0: &[f64],
+    beta: Option<f64>,
+) -> FullRsb {
+    let k = q.len() - 1;
     let p = Problem::new(xi, &q, s, beta);
     // Starting point: m0 (one value per interval), made strictly increasing.
     assert_eq!(m0.len(), k);
@@ -420,6 +432,52 @@ pub fn full_rsb(xi: &Mixture, s: &FullSettings) -> FullRsb {
         })
         .collect();
     solve_on(xi, k, s, &start, None)
+}
+
+/// Full-RSB solution on a q-grid refined where γ jumps. Starting from [`full_rsb`]'s grid,
+/// each round bisects the intervals on both sides of the `split` largest relative jumps
+/// (m_j − m_{j−1})/m_j of γ, and the last interval (where γ diverges), then minimises again
+/// from the previous γ. A step γ can only jump at grid points, so a fixed grid cannot place
+/// the large jump of a one-step-like order parameter (pure p ≥ 3, where the value on 16 fixed
+/// intervals lies above the 2-step value); refining there lets the breakpoints move towards
+/// it. Rounds stop when the value no longer falls by more than 1e-9. The refined grids nest,
+/// so each round's minimum is at most the previous one.
+pub fn full_rsb_adaptive(xi: &Mixture, s: &FullSettings, rounds: usize, split: usize) -> FullRsb {
+    let mut sol = full_rsb(xi, s);
+    for _ in 0..rounds {
+        let k = sol.m.len();
+        let mut jumps: Vec<(f64, usize)> = (1..k)
+            .map(|j| ((sol.m[j] - sol.m[j - 1]) / sol.m[j].max(1e-300), j))
+            .collect();
+        jumps.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        let mut halve = std::collections::BTreeSet::from([k - 1]);
+        for &(_, j) in jumps.iter().take(split) {
+            halve.insert(j - 1);
+            halve.insert(j);
+        }
+        let (mut q, mut m0) = (Vec::new(), Vec::new());
+        for i in 0..k {
+            q.push(sol.q[i]);
+            m0.push(sol.m[i]);
+            if halve.contains(&i) {
+                q.push(0.5 * (sol.q[i] + sol.q[i + 1]));
+                m0.push(sol.m[i]);
+            }
+        }
+        q.push(1.0);
+        let next = solve_grid(xi, q, s, &m0, None);
+        let gain = sol.value - next.value;
+        if next.value < sol.value {
+            sol = FullRsb {
+                iterations: sol.iterations + next.iterations,
+                ..next
+            };
+        }
+        if gain <= 1e-9 {
+            break;
+        }
+    }
+    sol
 }
 
 /// The Parisi field of a zero-temperature solution at given times: Φ(t, ·) on a uniform grid,
@@ -543,5 +601,32 @@ mod tests {
             let gs = 0.7631667;
             assert!(f.value / beta > gs && f.value / beta < gs + LN_2 / beta);
         }
+    }
+
+    /// Refining the q-grid where γ jumps never raises the minimum (the refined grids nest), and
+    /// on the pure 4-spin cube (ξ = q⁴), whose order parameter is nearly one-step, it moves the
+    /// jump and lowers the value well below the fixed grid's (measured at default settings:
+    /// 1.1673928 → 1.1673350 in two rounds, below the 1-step 1.1673916). Coarse settings here
+    /// to keep the suite fast.
+    #[test]
+    fn refining_where_gamma_jumps_lowers_the_value() {
+        let xi = Mixture::pure(4);
+        let s = FullSettings {
+            levels: 8,
+            grid: 401,
+            nodes: 20,
+            ..FullSettings::default()
+        };
+        let fixed = full_rsb(&xi, &s);
+        let refined = full_rsb_adaptive(&xi, &s, 2, 2);
+        assert!(refined.m.len() > fixed.m.len());
+        assert!(
+            refined.value < fixed.value - 1e-5,
+            "{} vs {}",
+            refined.value,
+            fixed.value
+        );
+        assert!(refined.q.windows(2).all(|w| w[0] < w[1]));
+        assert!(refined.m.windows(2).all(|w| w[0] <= w[1]));
     }
 }

@@ -170,3 +170,31 @@ fn theory_refusals_write_nothing() {
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(!w.path().join("results").exists(), "a refusal wrote files");
 }
+
+/// Every printed value is an upper bound on the Parisi value, so kiln reports the least as the
+/// best. On the pure 3-spin cube (ξ = q³/2) the full-RSB minimum on 16 fixed q-intervals lies
+/// above the 2-step minimum (γ has a large jump near q ≈ 0.97 that the fixed grid cannot
+/// place; measured 0.8133434 against 0.8132537): the best is the 2-step value, named, with the
+/// reason printed. Both lie above ≈ 0.8132 less 1e-3, the value usually quoted for this model
+/// in this normalisation (recalled from the literature, not read).
+#[test]
+fn the_best_bound_is_printed_when_full_rsb_lies_above_a_k_step_value() {
+    let w = Work::new();
+    let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let full = v["cube"]["full_rsb"]["value"].as_f64().unwrap();
+    let two = v["cube"]["rsb"][1]["value"].as_f64().unwrap();
+    let best = v["cube"]["best"]["value"].as_f64().unwrap();
+    assert!(two < full, "2-step {two} vs full {full}");
+    assert_eq!(best, two);
+    assert_eq!(v["cube"]["best"]["solution"], "2-step RSB");
+    assert!((best - 0.8132).abs() < 1e-3, "{best}");
+    let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        text.contains("attained by the 2-step RSB solution")
+            && text.contains("cannot place γ's jump"),
+        "{text}"
+    );
+}
