@@ -39,6 +39,9 @@ pub struct PlotArgs {
     pub json: bool,
 }
 
+/// q-intervals of the spherical ground-state solver used for figures and `kiln theory`.
+pub const SPHERE_INTERVALS: usize = 64;
+
 /// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
 /// cube (and SK) the full-RSB Parisi value; on the sphere the ground state and the algorithmic
 /// value. Graph and lattice families have no line.
@@ -61,13 +64,15 @@ fn reference_lines(
         vec![(value, format!("Parisi value {value:.5}"), caption)]
     } else {
         {
-            let (gs, ..) = crate::theory::sphere::ground_state(xi);
+            let full = crate::theory::sphere::ground_state_full(xi, SPHERE_INTERVALS);
+            let gs = full.value;
             let (alg, equal) = crate::theory::sphere::algorithmic(xi);
             let mut v = vec![(
                 gs,
                 format!("ground state {gs:.4}"),
                 format!(
-                    "Ground state {gs:.6} from kiln's one-step Crisanti–Sommers solution (Crisanti & Sommers 1992; Chen & Sen 2017)."
+                    "Ground state {gs:.6} from kiln's zero-temperature Crisanti–Sommers solution over step order parameters on {SPHERE_INTERVALS} q-intervals ({}; Crisanti & Sommers 1992; Chen & Sen 2017).",
+                    full.structure()
                 ),
             )];
             if !equal || (alg - gs).abs() > 1e-6 {

@@ -170,6 +170,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     };
     crate::store::write_atomic(&csv_path, csv.as_bytes())?;
     let (gs, l, m, q0) = sphere::ground_state(&xi);
+    let full_cs = sphere::ground_state_full(&xi, super::plot::SPHERE_INTERVALS);
     let (alg, condition) = sphere::algorithmic(&xi);
     let fs = crate::theory::full::FullSettings::default();
     let temps: Vec<(f64, f64, f64, crate::theory::full::FullRsb)> = a
@@ -204,6 +205,8 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             "temperature": temps.iter().map(|(b, _, _, f)| serde_json::json!({"beta": b, "free_energy": f.value, "q": f.q, "x": f.m})).collect::<Vec<_>>(),
             "sphere": {
                 "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
+                "ground_state": {"value": full_cs.value, "structure": full_cs.structure(),
+                    "intervals": full_cs.m.len(), "B": full_cs.b, "q": full_cs.q, "m": full_cs.m},
                 "algorithmic": alg, "algorithmic_equals_ground_state": condition,
             },
         });
@@ -268,11 +271,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             "\nsphere, zero temperature\n  ground state (one-step Crisanti–Sommers)   {gs:.7}   L = {l:.4}, m = {m:.4}, q₀ = {q0:.4}\n"
         );
         o += &format!(
+            "  ground state (full Crisanti–Sommers)      {:.7}   {} q-intervals: {}\n",
+            full_cs.value,
+            full_cs.m.len(),
+            full_cs.structure()
+        );
+        o += &format!(
             "  algorithmic value ∫₀¹ √ξ''                {alg:.7}   {}\n",
             if condition {
                 "= ground state (ξ''^-1/2 is concave: Subag 2018)"
             } else {
-                "below the ground state (ξ''^-1/2 is not concave on (0, 1])"
+                "a lower bound (ξ''^-1/2 is not concave on (0, 1])"
             }
         );
         o += &format!("\norder parameters: {}\n", csv_path.display());

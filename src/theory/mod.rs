@@ -82,6 +82,89 @@ pub fn golden_section<F: Fn(f64) -> f64>(f: F, mut lo: f64, mut hi: f64, iters: 
     0.5 * (lo + hi)
 }
 
+/// L-BFGS minimisation (Nocedal & Wright, Numerical Optimization, Algorithm 7.4, memory 12)
+/// with a backtracking Armijo line search, of `f` returning (value, gradient), from `x0`.
+/// Stops after `iters` iterations, when the largest gradient entry is below `gtol`, or when no
+/// step decreases f. Returns (point, value, iterations).
+pub fn lbfgs<F: Fn(&[f64]) -> (f64, Vec<f64>)>(
+    f: F,
+    x0: &[f64],
+    iters: usize,
+    gtol: f64,
+) -> (Vec<f64>, f64, usize) {
+    let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
+    let mut x = x0.to_vec();
+    let (mut fx, mut g) = f(&x);
+    let mut hist: std::collections::VecDeque<(Vec<f64>, Vec<f64>, f64)> = Default::default();
+    let mut it = 0;
+    while it < iters {
+        it += 1;
+        if g.iter().fold(0.0f64, |a, b| a.max(b.abs())) < gtol {
+            break;
+        }
+        let mut d: Vec<f64> = g.iter().map(|v| -v).collect();
+        let mut alphas = Vec::with_capacity(hist.len());
+        for (sv, yv, rho) in hist.iter().rev() {
+            let a = rho * dot(sv, &d);
+            d.iter_mut().zip(yv).for_each(|(x, y)| *x -= a * y);
+            alphas.push(a);
+        }
+        match hist.back() {
+            Some((sv, yv, _)) => {
+                let scale = dot(sv, yv) / dot(yv, yv);
+                d.iter_mut().for_each(|x| *x *= scale);
+            }
+            None => {
+                let gn = dot(&g, &g).sqrt().max(1e-300);
+                d.iter_mut().for_each(|x| *x *= 0.1 / gn);
+            }
+        }
+        for ((sv, yv, rho), a) in hist.iter().zip(alphas.iter().rev()) {
+            let b = rho * dot(yv, &d);
+            d.iter_mut().zip(sv).for_each(|(x, s)| *x += (a - b) * s);
+        }
+        let slope = dot(&g, &d);
+        if slope >= 0.0 {
+            if hist.is_empty() {
+                break;
+            }
+            hist.clear();
+            continue;
+        }
+        let mut step = 1.0;
+        let mut next = None;
+        for _ in 0..60 {
+            let xn: Vec<f64> = x.iter().zip(&d).map(|(a, b)| a + step * b).collect();
+            let (fnew, gnew) = f(&xn);
+            if fnew.is_finite() && fnew <= fx + 1e-4 * step * slope {
+                next = Some((xn, fnew, gnew));
+                break;
+            }
+            step *= 0.5;
+        }
+        let Some((xn, fnew, gnew)) = next else {
+            if hist.is_empty() {
+                break;
+            }
+            hist.clear();
+            continue;
+        };
+        let sv: Vec<f64> = xn.iter().zip(&x).map(|(a, b)| a - b).collect();
+        let yv: Vec<f64> = gnew.iter().zip(&g).map(|(a, b)| a - b).collect();
+        let sy = dot(&sv, &yv);
+        if sy > 1e-300 {
+            hist.push_back((sv, yv, 1.0 / sy));
+            if hist.len() > 12 {
+                hist.pop_front();
+            }
+        }
+        x = xn;
+        fx = fnew;
+        g = gnew;
+    }
+    (x, fx, it)
+}
+
 /// Nelder–Mead minimisation (Nelder & Mead 1965) of `f` from `x0` with initial step `step`.
 /// Returns the best point and value after `iters` iterations or when the simplex's values
 /// agree to `tol`.

@@ -64,6 +64,151 @@ pub fn ground_state(xi: &Mixture) -> (f64, f64, f64, f64) {
     (best.1, l, m, q0)
 }
 
+/// The zero-temperature Crisanti–Sommers functional for a step γ = m_j on [q_j, q_{j+1}),
+/// m nondecreasing, in closed form. With B = L − α(1) > 0 and D_j = L − α(q_j) = B +
+/// Σ_{i≥j} m_i Δq_i (so D_K = B), integrating by parts ∫₀¹ ξ''α = ξ'(1)α(1) − Σ m_j Δξ_j, and on
+/// each interval ∫ dq/(L − α) = ln(D_j/D_{j+1})/m_j; hence
+///
+/// F = ½ [ ξ'(1) B + Σ_j m_j Δξ_j + Σ_j ln(1 + m_j Δq_j / D_{j+1}) / m_j ].
+///
+/// Returns F and its gradient in (B, m_0, …, m_{K−1}).
+fn cs_steps(xi: &Mixture, q: &[f64], b: f64, m: &[f64]) -> (f64, Vec<f64>) {
+    let k = m.len();
+    // D_{j+1} for j = K−1 down to 0.
+    let mut d_next = vec![0.0; k];
+    let mut d = b;
+    for j in (0..k).rev() {
+        d_next[j] = d;
+        d += m[j] * (q[j + 1] - q[j]);
+    }
+    let mut value = xi.d1(1.0) * b;
+    let mut grad = vec![0.0; k + 1];
+    grad[0] = xi.d1(1.0);
+    // Σ_{i<j} ∂h_i/∂D_{i+1}, accumulated upwards in j.
+    let mut below = 0.0;
+    for j in 0..k {
+        let dq = q[j + 1] - q[j];
+        let dxi = xi.xi(q[j + 1]) - xi.xi(q[j]);
+        let dn = d_next[j];
+        let x = m[j] * dq / dn;
+        // h = ln(1 + x)/m, ∂h/∂m at fixed D, ∂h/∂D; series for small x (m → 0: h → Δq/D).
+        let (h, dh_dm) = if x < 1e-5 {
+            let r = dq / dn;
+            (
+                r * (1.0 - x / 2.0 + x * x / 3.0),
+                r * r * (-0.5 + 2.0 * x / 3.0 - 0.75 * x * x),
+            )
+        } else {
+            let l = x.ln_1p();
+            (l / m[j], (x / (1.0 + x) - l) / (m[j] * m[j]))
+        };
+        let dh_dd = -dq / (dn * (dn + m[j] * dq));
+        value += m[j] * dxi + h;
+        grad[1 + j] = dxi + dh_dm + dq * below;
+        grad[0] += dh_dd;
+        below += dh_dd;
+    }
+    (0.5 * value, grad.iter().map(|g| 0.5 * g).collect())
+}
+
+/// A zero-temperature Crisanti–Sommers solution over step order parameters.
+#[derive(Clone, Debug)]
+pub struct FullCs {
+    pub value: f64,
+    /// B = L − α(1).
+    pub b: f64,
+    pub q: Vec<f64>,
+    pub m: Vec<f64>,
+}
+
+impl FullCs {
+    /// The structure of the minimiser: "one-step" if γ takes one positive value (after a
+    /// possible zero part), else "full RSB part on [a, b]" over the q where γ still grows.
+    pub fn structure(&self) -> String {
+        let alpha1: f64 = (0..self.m.len())
+            .map(|j| self.m[j] * (self.q[j + 1] - self.q[j]))
+            .sum();
+        if alpha1 < 1e-6 * self.b {
+            return "γ ≈ 0 (replica symmetric)".into();
+        }
+        let top = self.m.iter().copied().fold(0.0f64, f64::max);
+        let tol = 1e-4 * top.max(1e-12);
+        let grows: Vec<usize> = (1..self.m.len())
+            .filter(|&j| self.m[j] - self.m[j - 1] > tol && self.m[j - 1] > tol)
+            .collect();
+        match (grows.first(), grows.last()) {
+            (Some(&a), Some(&b)) => format!(
+                "γ grows continuously on [{:.3}, {:.3}] (a full-RSB part)",
+                self.q[a], self.q[b]
+            ),
+            _ => "one step (γ constant where positive)".into(),
+        }
+    }
+}
+
+/// Ground state of the spherical model from the zero-temperature Crisanti–Sommers functional
+/// over step order parameters on `k` q-intervals (uniform in q), γ nondecreasing: the
+/// parametrisation m_j = Σ_{i≤j} e^{u_i}, B = e^{u_B}, minimised by L-BFGS with the exact
+/// gradient, started from the one-step solution. A one-step γ with q₀ = 0 (pure p) is on every
+/// grid, so the value then equals the one-step value; where the minimiser has a full-RSB part
+/// the grid approximates it, from above.
+pub fn ground_state_full(xi: &Mixture, k: usize) -> FullCs {
+    let q: Vec<f64> = (0..=k).map(|j| j as f64 / k as f64).collect();
+    let (_, l1, m1, q01) = ground_state(xi);
+    let decode = |u: &[f64]| -> (f64, Vec<f64>) {
+        let mut acc = 0.0;
+        let m = u[1..]
+            .iter()
+            .map(|&v| {
+                acc += v.exp();
+                acc
+            })
+            .collect();
+        (u[0].exp(), m)
+    };
+    let f = |u: &[f64]| -> (f64, Vec<f64>) {
+        let (b, m) = decode(u);
+        let (v, g) = cs_steps(xi, &q, b, &m);
+        // Chain rule: ∂/∂u_B = B ∂/∂B; ∂/∂u_i = e^{u_i} Σ_{j≥i} ∂/∂m_j.
+        let mut gu = vec![0.0; u.len()];
+        gu[0] = b * g[0];
+        let mut tail = 0.0;
+        for i in (0..k).rev() {
+            tail += g[1 + i];
+            gu[1 + i] = u[1 + i].exp() * tail;
+        }
+        (v, gu)
+    };
+    // Start: the one-step γ (m₁ on [q₀, 1)) with small increments, B = L − α(1).
+    let b1 = (l1 - m1 * (1.0 - q01)).max(1e-6);
+    let mut u = vec![b1.ln()];
+    let mut prev = 0.0;
+    for j in 0..k {
+        let mid = 0.5 * (q[j] + q[j + 1]);
+        let target: f64 = if mid >= q01 { m1 } else { 0.0 };
+        let inc = (target - prev).max(1e-8 * (1.0 + m1));
+        u.push(inc.ln());
+        prev += inc;
+    }
+    // The functional is convex in (B, γ) (1/(L − α) is convex, the rest linear), but in u an
+    // increment near zero has a vanishing gradient, so the one-step start cannot grow a
+    // full-RSB part: a second, smooth start γ(q) ∝ q can. The lower end wins.
+    let mut smooth = vec![0.0f64];
+    for _ in 0..k {
+        smooth.push((m1.max(0.1) / k as f64).ln());
+    }
+    let (mut best, mut value) = (Vec::new(), f64::INFINITY);
+    for u0 in [u, smooth] {
+        let (x, v, _) = super::lbfgs(f, &u0, 20_000, 1e-13);
+        if v < value {
+            (best, value) = (x, v);
+        }
+    }
+    let u = best;
+    let (b, m) = decode(&u);
+    FullCs { value, b, q, m }
+}
+
 /// ALG = ∫₀¹ √ξ''(q) dq and whether Subag's condition (ξ''^{-1/2} concave on (0, 1]) holds,
 /// so that ALG is also the ground state.
 pub fn algorithmic(xi: &Mixture) -> (f64, bool) {
@@ -106,5 +251,73 @@ mod tests {
         // SK-normalised p = 2: ξ'' = 1, ALG = 1 = the ground state; the condition holds.
         let (alg, cond) = algorithmic(&Mixture::sk());
         assert!((alg - 1.0).abs() < 1e-9 && cond);
+    }
+
+    /// The closed-form gradient of the step functional agrees with central differences.
+    #[test]
+    fn cs_gradient_matches_finite_differences() {
+        let xi = Mixture {
+            terms: vec![(2, 0.5), (4, 1.0 / 12.0)],
+        };
+        let k = 6;
+        let q: Vec<f64> = (0..=k).map(|j| j as f64 / k as f64).collect();
+        let m = vec![0.0, 1e-7, 0.3, 0.3, 0.9, 2.0];
+        let b = 0.7;
+        let (_, g) = cs_steps(&xi, &q, b, &m);
+        let h = 1e-6;
+        for (i, gi) in g.iter().enumerate() {
+            let (mut up, mut dn) = ((b, m.clone()), (b, m.clone()));
+            if i == 0 {
+                up.0 += h;
+                dn.0 -= h;
+            } else {
+                up.1[i - 1] += h;
+                dn.1[i - 1] -= h;
+            }
+            let fd =
+                (cs_steps(&xi, &q, up.0, &up.1).0 - cs_steps(&xi, &q, dn.0, &dn.1).0) / (2.0 * h);
+            assert!((fd - gi).abs() < 1e-7, "{i}: {fd} vs {gi}");
+        }
+    }
+
+    /// The full zero-temperature Crisanti–Sommers solution (64 q-intervals):
+    /// - pure p = 3: the one-step value to 1e-9 (the minimiser is one-step with q₀ = 0, on
+    ///   every grid; Crisanti & Sommers 1992);
+    /// - SK-normalised p = 2: 1 (Füredi & Komlós 1981);
+    /// - ξ = q²/2 + q⁴/48, where ξ''^{-1/2} = (1 + q²/4)^{-1/2} is concave on (0, 1]: the
+    ///   ground state equals ∫₀¹ √ξ'' (Subag 2018, arXiv:1812.04588, Theorem 4; Chen & Sen
+    ///   2017, Commun. Math. Phys., arXiv:1512.08492, full-RSB case) to 1e-7, with a full-RSB
+    ///   part;
+    /// - ξ = q²/2 + q⁴/12 (concave on part of (0, 1] only): ∫₀¹ √ξ'' ≤ ground state ≤ one-step
+    ///   (a lower bound by the algorithmic threshold, an upper bound by a restriction of γ).
+    #[test]
+    fn full_crisanti_sommers_ground_states() {
+        let p3 = Mixture::pure(3);
+        let f = ground_state_full(&p3, 64);
+        assert!((f.value - ground_state(&p3).0).abs() < 1e-9, "{}", f.value);
+        assert!(f.structure().starts_with("one step"), "{}", f.structure());
+        let sk = ground_state_full(&Mixture::sk(), 64);
+        assert!((sk.value - 1.0).abs() < 1e-9, "{}", sk.value);
+        let concave = Mixture {
+            terms: vec![(2, 0.5), (4, 1.0 / 48.0)],
+        };
+        let (alg, cond) = algorithmic(&concave);
+        assert!(cond);
+        let f = ground_state_full(&concave, 64);
+        assert!((f.value - alg).abs() < 1e-7, "{} vs {alg}", f.value);
+        assert!(f.structure().contains("full-RSB"), "{}", f.structure());
+        let part = Mixture {
+            terms: vec![(2, 0.5), (4, 1.0 / 12.0)],
+        };
+        let (alg, cond) = algorithmic(&part);
+        assert!(!cond);
+        let f = ground_state_full(&part, 64);
+        let one = ground_state(&part).0;
+        assert!(
+            alg <= f.value && f.value <= one,
+            "{alg} ≤ {} ≤ {one}",
+            f.value
+        );
+        assert!(one - f.value > 1e-5, "{} vs one-step {one}", f.value);
     }
 }

@@ -23,6 +23,19 @@ fn theory_for_the_default_model() {
         "full RSB {full:.7} in {:.1} s",
         v["cube"]["full_rsb"]["seconds"].as_f64().unwrap()
     );
+    // Sphere, SK normalisation: the full zero-temperature Crisanti–Sommers ground state is 1,
+    // half the semicircle edge (Füredi & Komlós 1981), with γ ≈ 0.
+    let sphere = &v["sphere"]["ground_state"];
+    assert!(
+        (sphere["value"].as_f64().unwrap() - 1.0).abs() < 1e-9,
+        "{sphere}"
+    );
+    assert!(
+        sphere["structure"]
+            .as_str()
+            .unwrap()
+            .contains("replica symmetric")
+    );
     // High temperature: log 2 + β²/4 (Aizenman, Lebowitz & Ruelle 1987; from memory).
     let p = v["temperature_rs"][0]["free_energy"].as_f64().unwrap();
     assert!((p - (std::f64::consts::LN_2 + 0.0625)).abs() < 1e-10);
