@@ -308,8 +308,6 @@ fn objective(p: &Problem, u: &[f64]) -> (f64, Vec<f64>) {
     (v, gu)
 }
 
-use crate::kernels::dot_sequential as dot;
-
 /// Minimises on the grid of K intervals from `m0` (one value per interval).
 fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f64>) -> FullRsb {
     let power = if beta.is_some() { 1.0 } else { s.power };
@@ -344,71 +342,7 @@ fn solve_grid(
         // Slack: 1 − m_{K−1} (m0 must then lie in (0, 1)).
         u.push((1.0 - m[k - 1]).max(1e-9).ln());
     }
-    let (mut f, mut g) = objective(&p, &u);
-    let mut hist: Vec<(Vec<f64>, Vec<f64>, f64)> = Vec::new();
-    let mut it = 0;
-    while it < s.max_iterations {
-        it += 1;
-        // Two-loop recursion.
-        let mut d: Vec<f64> = g.iter().map(|x| -x).collect();
-        let mut alphas = Vec::with_capacity(hist.len());
-        for (sv, yv, rho) in hist.iter().rev() {
-            let a = rho * dot(sv, &d);
-            d.iter_mut().zip(yv).for_each(|(x, y)| *x -= a * y);
-            alphas.push(a);
-        }
-        if let Some((sv, yv, _)) = hist.last() {
-            let gamma = dot(sv, yv) / dot(yv, yv);
-            d.iter_mut().for_each(|x| *x *= gamma);
-        } else {
-            let gn = dot(&g, &g).sqrt().max(1e-12);
-            d.iter_mut().for_each(|x| *x *= 0.1 / gn);
-        }
-        for ((sv, yv, rho), a) in hist.iter().zip(alphas.iter().rev()) {
-            let b = rho * dot(yv, &d);
-            d.iter_mut().zip(sv).for_each(|(x, s)| *x += (a - b) * s);
-        }
-        let slope = dot(&g, &d);
-        if slope >= 0.0 {
-            hist.clear();
-            continue;
-        }
-        let mut step = 1.0;
-        let mut accepted = None;
-        for _ in 0..40 {
-            let un: Vec<f64> = u.iter().zip(&d).map(|(a, b)| a + step * b).collect();
-            let (fn_, gn) = objective(&p, &un);
-            if fn_ <= f + 1e-4 * step * slope {
-                accepted = Some((un, fn_, gn));
-                break;
-            }
-            step *= 0.5;
-        }
-        let Some((un, fn_, gn)) = accepted else {
-            if hist.is_empty() {
-                break;
-            }
-            hist.clear();
-            continue;
-        };
-        let sv: Vec<f64> = un.iter().zip(&u).map(|(a, b)| a - b).collect();
-        let yv: Vec<f64> = gn.iter().zip(&g).map(|(a, b)| a - b).collect();
-        let sy = dot(&sv, &yv);
-        if sy > 1e-18 {
-            hist.push((sv, yv, 1.0 / sy));
-            if hist.len() > 12 {
-                hist.remove(0);
-            }
-        }
-        let change = f - fn_;
-        u = un;
-        f = fn_;
-        g = gn;
-        let gmax = g.iter().fold(0.0f64, |a, b| a.max(b.abs()));
-        if gmax < 1e-9 || (change.abs() < 1e-15 && hist.is_empty()) {
-            break;
-        }
-    }
+    let (u, f, g, it) = super::lbfgs(|u| objective(&p, u), &u, s.max_iterations, 1e-9);
     FullRsb {
         value: f,
         q,

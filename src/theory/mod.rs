@@ -82,26 +82,26 @@ pub fn golden_section<F: Fn(f64) -> f64>(f: F, mut lo: f64, mut hi: f64, iters: 
     0.5 * (lo + hi)
 }
 
-/// L-BFGS minimisation (Nocedal & Wright, Numerical Optimization, Algorithm 7.4, memory 12)
-/// with a backtracking Armijo line search, of `f` returning (value, gradient), from `x0`.
-/// Stops after `iters` iterations, when the largest gradient entry is below `gtol`, or when no
-/// step decreases f. Returns (point, value, iterations).
+/// L-BFGS minimisation (Nocedal & Wright, Numerical Optimization, Algorithm 7.4; memory 12)
+/// with a backtracking Armijo line search (at most 40 halvings), of `f` returning (value,
+/// gradient; an infeasible point returns +∞), from `x0`. A direction that does not descend,
+/// or a failed line search, restarts from steepest descent. Stops after `iters` iterations,
+/// when the largest gradient entry is below `gtol`, or when steepest descent no longer moves
+/// f. Returns (point, value, gradient, iterations).
 pub fn lbfgs<F: Fn(&[f64]) -> (f64, Vec<f64>)>(
     f: F,
     x0: &[f64],
     iters: usize,
     gtol: f64,
-) -> (Vec<f64>, f64, usize) {
-    let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
+) -> (Vec<f64>, f64, Vec<f64>, usize) {
+    use crate::kernels::dot_sequential as dot;
     let mut x = x0.to_vec();
     let (mut fx, mut g) = f(&x);
-    let mut hist: std::collections::VecDeque<(Vec<f64>, Vec<f64>, f64)> = Default::default();
+    let mut hist: Vec<(Vec<f64>, Vec<f64>, f64)> = Vec::new();
     let mut it = 0;
     while it < iters {
         it += 1;
-        if g.iter().fold(0.0f64, |a, b| a.max(b.abs())) < gtol {
-            break;
-        }
+        // Two-loop recursion.
         let mut d: Vec<f64> = g.iter().map(|v| -v).collect();
         let mut alphas = Vec::with_capacity(hist.len());
         for (sv, yv, rho) in hist.iter().rev() {
@@ -109,15 +109,12 @@ pub fn lbfgs<F: Fn(&[f64]) -> (f64, Vec<f64>)>(
             d.iter_mut().zip(yv).for_each(|(x, y)| *x -= a * y);
             alphas.push(a);
         }
-        match hist.back() {
-            Some((sv, yv, _)) => {
-                let scale = dot(sv, yv) / dot(yv, yv);
-                d.iter_mut().for_each(|x| *x *= scale);
-            }
-            None => {
-                let gn = dot(&g, &g).sqrt().max(1e-300);
-                d.iter_mut().for_each(|x| *x *= 0.1 / gn);
-            }
+        if let Some((sv, yv, _)) = hist.last() {
+            let scale = dot(sv, yv) / dot(yv, yv);
+            d.iter_mut().for_each(|x| *x *= scale);
+        } else {
+            let gn = dot(&g, &g).sqrt().max(1e-12);
+            d.iter_mut().for_each(|x| *x *= 0.1 / gn);
         }
         for ((sv, yv, rho), a) in hist.iter().zip(alphas.iter().rev()) {
             let b = rho * dot(yv, &d);
@@ -125,24 +122,21 @@ pub fn lbfgs<F: Fn(&[f64]) -> (f64, Vec<f64>)>(
         }
         let slope = dot(&g, &d);
         if slope >= 0.0 {
-            if hist.is_empty() {
-                break;
-            }
             hist.clear();
             continue;
         }
         let mut step = 1.0;
-        let mut next = None;
-        for _ in 0..60 {
+        let mut accepted = None;
+        for _ in 0..40 {
             let xn: Vec<f64> = x.iter().zip(&d).map(|(a, b)| a + step * b).collect();
             let (fnew, gnew) = f(&xn);
-            if fnew.is_finite() && fnew <= fx + 1e-4 * step * slope {
-                next = Some((xn, fnew, gnew));
+            if fnew <= fx + 1e-4 * step * slope {
+                accepted = Some((xn, fnew, gnew));
                 break;
             }
             step *= 0.5;
         }
-        let Some((xn, fnew, gnew)) = next else {
+        let Some((xn, fnew, gnew)) = accepted else {
             if hist.is_empty() {
                 break;
             }
@@ -152,17 +146,22 @@ pub fn lbfgs<F: Fn(&[f64]) -> (f64, Vec<f64>)>(
         let sv: Vec<f64> = xn.iter().zip(&x).map(|(a, b)| a - b).collect();
         let yv: Vec<f64> = gnew.iter().zip(&g).map(|(a, b)| a - b).collect();
         let sy = dot(&sv, &yv);
-        if sy > 1e-300 {
-            hist.push_back((sv, yv, 1.0 / sy));
+        if sy > 1e-18 {
+            hist.push((sv, yv, 1.0 / sy));
             if hist.len() > 12 {
-                hist.pop_front();
+                hist.remove(0);
             }
         }
+        let change = fx - fnew;
         x = xn;
         fx = fnew;
         g = gnew;
+        let gmax = g.iter().fold(0.0f64, |a, b| a.max(b.abs()));
+        if gmax < gtol || (change.abs() < 1e-15 && hist.is_empty()) {
+            break;
+        }
     }
-    (x, fx, it)
+    (x, fx, g, it)
 }
 
 /// Nelder–Mead minimisation (Nelder & Mead 1965) of `f` from `x0` with initial step `step`.

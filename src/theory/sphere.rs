@@ -199,7 +199,7 @@ pub fn ground_state_full(xi: &Mixture, k: usize) -> FullCs {
     }
     let (mut best, mut value) = (Vec::new(), f64::INFINITY);
     for u0 in [u, smooth] {
-        let (x, v, _) = super::lbfgs(f, &u0, 20_000, 1e-13);
+        let (x, v, _, _) = super::lbfgs(f, &u0, 20_000, 1e-13);
         if v < value {
             (best, value) = (x, v);
         }
