@@ -1,6 +1,6 @@
 //! Damaged tables: refused with the file named, never a panic, never numbers that changed.
 
-use crate::util::{Work, stderr};
+use crate::util::{Lcg, Work, stderr};
 use kiln::store::table;
 use std::path::Path;
 
@@ -18,18 +18,6 @@ kind = "descent"
 kind = "anneal"
 sweeps = 30
 "#;
-
-/// A small deterministic generator for test choices (not for results).
-struct Lcg(u64);
-impl Lcg {
-    fn next(&mut self, n: u64) -> u64 {
-        self.0 = self
-            .0
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (self.0 >> 33) % n.max(1)
-    }
-}
 
 /// One random mutation of a file: a flipped bit in the footer (the last 1 KiB, where the
 /// Parquet metadata lives), a flipped bit anywhere, a changed byte anywhere, or a truncation.

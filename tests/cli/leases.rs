@@ -1,38 +1,18 @@
 //! Claims as leases: PID reuse, claims naming the runner itself, other hosts' leases, stopped
 //! runners, racing takeovers after kill -9, and SIGTERM.
 
-use crate::util::{Work, counts, stderr};
-use kiln::store::table::{self, PROVENANCE_COLUMNS};
-use polars::prelude::*;
+use crate::util::{Work, counts, numbers, stderr};
+use kiln::store::table;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
 use std::time::{Duration, Instant};
 
-/// 144 cells, about 1.5 s of work on two cores.
-const SLOW: &str = r#"[experiment]
-name = "lease"
-[model]
-family = "sk"
-[sweep]
-sizes = [150, 250, 350]
-seeds = 8
-epsilons = [0.0, 0.05, 0.3]
-[[algorithm]]
-kind = "descent"
-[[algorithm]]
-kind = "anneal"
-sweeps = 2500
-"#;
-
-fn quick() -> String {
-    SLOW.replace("sweeps = 2500", "sweeps = 50")
+fn slow() -> String {
+    crate::util::slow_spec("lease")
 }
 
-fn numbers(path: &Path) -> Vec<u8> {
-    let mut df = table::read(path).unwrap().drop_many(PROVENANCE_COLUMNS);
-    let mut buf = Vec::new();
-    ParquetWriter::new(&mut buf).finish(&mut df).unwrap();
-    buf
+fn quick() -> String {
+    slow().replace("sweeps = 2500", "sweeps = 50")
 }
 
 fn reference(w: &Work, spec: &Path) -> Vec<u8> {
@@ -259,7 +239,7 @@ fn leases_of_other_hosts_expire() {
 #[test]
 fn a_stopped_runner_loses_its_claims() {
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let want = reference(&w, &spec);
     let a = spawn_run(
         &w,
@@ -304,7 +284,7 @@ fn four_runners_resuming_after_kill_9_compute_each_cell_once() {
         .and_then(|v| v.parse().ok())
         .unwrap_or(4);
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let want = reference(&w, &spec);
     let mut stale_seen = 0;
     for rep in 0..reps {
@@ -351,7 +331,7 @@ fn four_runners_resuming_after_kill_9_compute_each_cell_once() {
 #[test]
 fn sigterm_writes_what_is_done_and_resumes() {
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let want = reference(&w, &spec);
     let child = spawn_run(&w, &spec, &[]);
     std::thread::sleep(Duration::from_millis(400));

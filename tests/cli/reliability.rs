@@ -1,47 +1,13 @@
 //! Crash safety, verified cache, concurrent runners and refusals.
 
-use crate::util::{Work, counts, stderr};
-use kiln::store::table::{self, PROVENANCE_COLUMNS};
-use polars::prelude::*;
+use crate::util::{Lcg, Work, counts, numbers, stderr};
+use kiln::store::table;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::Duration;
 
-/// About 1.5 s of work on two cores: 144 cells of a few to 40 ms each.
-const SLOW: &str = r#"[experiment]
-name = "rel"
-[model]
-family = "sk"
-[sweep]
-sizes = [150, 250, 350]
-seeds = 8
-epsilons = [0.0, 0.05, 0.3]
-[[algorithm]]
-kind = "descent"
-[[algorithm]]
-kind = "anneal"
-sweeps = 2500
-"#;
-
-/// The table's numbers (provenance columns dropped), serialised for a bitwise comparison.
-fn numbers(path: &Path) -> Vec<u8> {
-    let df = table::read(path).unwrap();
-    let mut df = df.drop_many(PROVENANCE_COLUMNS);
-    let mut buf = Vec::new();
-    ParquetWriter::new(&mut buf).finish(&mut df).unwrap();
-    buf
-}
-
-/// A small deterministic generator for test choices (not for results).
-struct Lcg(u64);
-impl Lcg {
-    fn next(&mut self, n: u64) -> u64 {
-        self.0 = self
-            .0
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (self.0 >> 33) % n
-    }
+fn slow() -> String {
+    crate::util::slow_spec("rel")
 }
 
 fn files_under(dir: &Path) -> Vec<PathBuf> {
@@ -71,7 +37,7 @@ fn reference_table(w: &Work, spec: &Path) -> Vec<u8> {
 #[test]
 fn kill_9_and_resume_twenty_times() {
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let want = reference_table(&w, &spec);
     let mut rng = Lcg(20261202);
     let mut landed = 0;
@@ -114,7 +80,7 @@ fn kill_9_and_resume_twenty_times() {
 #[test]
 fn sigint_writes_what_is_done_and_resumes() {
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let want = reference_table(&w, &spec);
     let child = Command::new(env!("CARGO_BIN_EXE_kiln"))
         .args(["run", spec.to_str().unwrap(), "--json"])
@@ -153,7 +119,7 @@ fn sigint_writes_what_is_done_and_resumes() {
 #[test]
 fn corruption_is_detected_and_repaired() {
     let w = Work::new();
-    let spec = w.spec("s.toml", &SLOW.replace("sweeps = 2500", "sweeps = 50"));
+    let spec = w.spec("s.toml", &slow().replace("sweeps = 2500", "sweeps = 50"));
     let first = w.run_json(&spec, &[]);
     let total = first["cells"]["total"].as_u64().unwrap();
     let want = numbers(&w.path().join("results/rel/cells.parquet"));
@@ -216,7 +182,7 @@ fn corruption_is_detected_and_repaired() {
 #[test]
 fn concurrent_runners_compute_each_cell_once() {
     let w = Work::new();
-    let spec = w.spec("s.toml", SLOW);
+    let spec = w.spec("s.toml", &slow());
     let spawn = |results: &str| {
         Command::new(env!("CARGO_BIN_EXE_kiln"))
             .args(["run", spec.to_str().unwrap(), "--json", "--jobs", "1"])
@@ -269,7 +235,7 @@ fn concurrent_runners_compute_each_cell_once() {
 #[test]
 fn unwritable_cache_names_the_path() {
     let w = Work::new();
-    let spec = w.spec("s.toml", &SLOW.replace("sweeps = 2500", "sweeps = 5"));
+    let spec = w.spec("s.toml", &slow().replace("sweeps = 2500", "sweeps = 5"));
     std::fs::write(
         w.path().join("blocked"),
         b"a file where the cache should be",
@@ -295,7 +261,7 @@ fn unwritable_cache_names_the_path() {
 #[test]
 fn failed_record_write_stops_the_run() {
     let w = Work::new();
-    let spec = w.spec("s.toml", &SLOW.replace("sweeps = 2500", "sweeps = 5"));
+    let spec = w.spec("s.toml", &slow().replace("sweeps = 2500", "sweeps = 5"));
     let records = w.path().join("cache/records");
     std::fs::create_dir_all(&records).unwrap();
     for b in 0..=255u8 {

@@ -118,3 +118,46 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
         .cloned()
         .fold(f64::MIN, f64::max)
 }
+
+/// About 1.5 s of work on two cores: 144 cells of a few to 40 ms each (crash-safety and claim
+/// tests interrupt it), under the experiment name given.
+pub fn slow_spec(name: &str) -> String {
+    format!(
+        r#"[experiment]
+name = "{name}"
+[model]
+family = "sk"
+[sweep]
+sizes = [150, 250, 350]
+seeds = 8
+epsilons = [0.0, 0.05, 0.3]
+[[algorithm]]
+kind = "descent"
+[[algorithm]]
+kind = "anneal"
+sweeps = 2500
+"#
+    )
+}
+
+/// A table's numbers (provenance columns dropped), serialised for a bitwise comparison.
+pub fn numbers(path: &Path) -> Vec<u8> {
+    use polars::prelude::*;
+    let df = kiln::store::table::read(path).unwrap();
+    let mut df = df.drop_many(kiln::store::table::PROVENANCE_COLUMNS);
+    let mut buf = Vec::new();
+    ParquetWriter::new(&mut buf).finish(&mut df).unwrap();
+    buf
+}
+
+/// A small deterministic generator for test choices (not for results).
+pub struct Lcg(pub u64);
+impl Lcg {
+    pub fn next(&mut self, n: u64) -> u64 {
+        self.0 = self
+            .0
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (self.0 >> 33) % n.max(1)
+    }
+}
