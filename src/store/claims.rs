@@ -583,3 +583,89 @@ mod heartbeat {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cell::Canon;
+
+    fn key(i: i64) -> Key {
+        Key(Canon::Int(i).hash("claims-test"))
+    }
+
+    fn holder(host: &str, pid: u32, start: Option<u64>, nonce: &str, lease: f64) -> Holder {
+        Holder {
+            id: Identity {
+                host: host.into(),
+                pid,
+                start,
+                boot: me().boot.clone(),
+                nonce: nonce.into(),
+            },
+            lease: Duration::from_secs_f64(lease),
+            owner: "t".into(),
+        }
+    }
+
+    /// The verdicts, case by case (the end-to-end cases are in tests/cli/leases.rs).
+    #[test]
+    fn judge_cases() {
+        let me = me();
+        let young = Duration::from_secs(1);
+        // This process's own claim: live.
+        let own = holder(&me.host, me.pid, me.start, &me.nonce, 60.0);
+        assert!(matches!(judge(Some(&own), young, me), Verdict::Live(_)));
+        // Its PID and start time but another nonce: written before an exec.
+        let exec = holder(&me.host, me.pid, me.start, "other", 60.0);
+        assert!(matches!(judge(Some(&exec), young, me), Verdict::Stale(_)));
+        // Another host: live until its lease runs out, then stale.
+        let far = holder("elsewhere", 1, Some(1), "x", 10.0);
+        assert!(matches!(judge(Some(&far), young, me), Verdict::Live(_)));
+        assert!(matches!(
+            judge(Some(&far), Duration::from_secs(11), me),
+            Verdict::Stale(_)
+        ));
+        // Unreadable: live for a moment (being written), stale after the grace.
+        assert!(matches!(judge(None, young, me), Verdict::Live(_)));
+        assert!(matches!(
+            judge(None, UNREADABLE_GRACE + young, me),
+            Verdict::Stale(_)
+        ));
+        // The line round-trips, and the legacy form parses with the reader's lease.
+        let parsed = Holder::parse(&own.line(), Duration::from_secs(5)).unwrap();
+        assert_eq!(parsed, own);
+        let legacy = Holder::parse("h 42 h:42:t\n", Duration::from_secs(7)).unwrap();
+        assert_eq!((legacy.id.pid, legacy.lease), (42, Duration::from_secs(7)));
+    }
+
+    /// Only a claim that is stale when it is taken over counts as cleared: no claim (say one
+    /// released while `kiln verify` ran) and a live claim count as nothing; a stale one is
+    /// replaced by a higher generation, then released, leaving no file.
+    #[test]
+    fn only_stale_claims_count_as_cleared() {
+        let d = tempfile::tempdir().unwrap();
+        let lease = Duration::from_secs(60);
+        assert!(!clear_if_stale(d.path(), &key(1), lease).unwrap());
+        let Claim::Acquired { guard, took_over } = claim(d.path(), &key(2), lease, "t").unwrap()
+        else {
+            panic!("a free cell is claimed");
+        };
+        assert!(took_over.is_none());
+        assert!(!clear_if_stale(d.path(), &key(2), lease).unwrap());
+        assert!(guard.path().is_file());
+        drop(guard);
+        assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 0);
+        let stale = holder("elsewhere", 1, Some(1), "x", 1.0);
+        let path = claim_file(d.path(), &key(3), 4);
+        std::fs::write(&path, stale.line()).unwrap();
+        let old = SystemTime::now() - Duration::from_secs(30);
+        File::options()
+            .write(true)
+            .open(&path)
+            .unwrap()
+            .set_modified(old)
+            .unwrap();
+        assert!(clear_if_stale(d.path(), &key(3), lease).unwrap());
+        assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 0);
+    }
+}
