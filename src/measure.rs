@@ -27,6 +27,22 @@ pub fn distance_points(a: &[f64], b: &[f64]) -> f64 {
     (a.iter().zip(b).map(|(x, y)| (x - y).powi(2)).sum::<f64>() / a.len() as f64).sqrt()
 }
 
+/// A distance as the `_sym` columns report it: modulo the global flip when the model has that
+/// symmetry ([`distance_modulo_flip`]), else unchanged.
+pub fn distance_sym(d: f64, symmetric: bool) -> f64 {
+    if symmetric {
+        distance_modulo_flip(d)
+    } else {
+        d
+    }
+}
+
+/// An overlap as the `_sym` columns report it: |q| when the model has the global-flip
+/// symmetry, else unchanged.
+pub fn overlap_sym(q: f64, symmetric: bool) -> f64 {
+    if symmetric { q.abs() } else { q }
+}
+
 /// The distance to the nearer of y and −y, given d = ‖x − y‖/√n for two points of norm √n
 /// (±1 spins, or points on the sphere): ‖x + y‖²/n = 4 − d², so it is min(d, √(4 − d²)). For a
 /// model with H(−x) = H(x), x and −x are one state, and this is how far an output moved.

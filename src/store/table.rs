@@ -7,6 +7,7 @@
 
 use super::cache::Record;
 use super::{StoreError, write_atomic};
+use crate::measure::{distance_sym, overlap_sym};
 use polars::prelude::*;
 use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
@@ -29,15 +30,6 @@ pub struct Row<'a> {
     pub experiment: &'a str,
     pub label: &'a str,
     pub record: &'a Record,
-}
-
-/// A distance modulo the global flip when the model has that symmetry.
-fn sym(r: &Row, d: f64) -> f64 {
-    if r.symmetric {
-        crate::measure::distance_modulo_flip(d)
-    } else {
-        d
-    }
 }
 
 /// Builds the table as a DataFrame (column order is part of the format).
@@ -68,16 +60,18 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("cut_fraction", |r: &Row| r.record.cut_fraction),
         col!("relaxation", |r: &Row| r.record.relaxation),
         col!("distance_point", |r: &Row| r.record.distance_point),
-        col!("overlap_sym", |r: &Row| if r.symmetric {
-            r.record.overlap.abs()
-        } else {
-            r.record.overlap
-        }),
-        col!("distance_sym", |r: &Row| sym(r, r.record.distance)),
+        col!("overlap_sym", |r: &Row| overlap_sym(
+            r.record.overlap,
+            r.symmetric
+        )),
+        col!("distance_sym", |r: &Row| distance_sym(
+            r.record.distance,
+            r.symmetric
+        )),
         col!("distance_point_sym", |r: &Row| r
             .record
             .distance_point
-            .map(|d| sym(r, d))),
+            .map(|d| distance_sym(d, r.symmetric))),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),
@@ -330,7 +324,7 @@ impl Overlaps {
         let sym: Vec<f64> = self
             .overlap
             .iter()
-            .map(|&q| if symmetric { q.abs() } else { q })
+            .map(|&q| overlap_sym(q, symmetric))
             .collect();
         cols.extend([
             Column::new("replica_a".into(), self.a.clone()),
@@ -374,11 +368,10 @@ impl Triples {
         let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
         let mut sym: [Vec<f64>; 3] = Default::default();
         for i in 0..self.n.len() {
-            let mut q = [self.q[0][i], self.q[1][i], self.q[2][i]];
-            if symmetric {
-                q = q.map(f64::abs);
-                q.sort_by(f64::total_cmp);
-            }
+            // The raw triple is sorted already, so sorting changes nothing without the symmetry.
+            let mut q =
+                [self.q[0][i], self.q[1][i], self.q[2][i]].map(|q| overlap_sym(q, symmetric));
+            q.sort_by(f64::total_cmp);
             for k in 0..3 {
                 sym[k].push(q[k]);
             }
