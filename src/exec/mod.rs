@@ -140,22 +140,12 @@ pub fn lookup(
     Ok((records, missing))
 }
 
-fn describe_damage(
-    path: &std::path::Path,
-    reason: &str,
-    moved_to: &Option<std::path::PathBuf>,
-) -> String {
-    match moved_to {
-        Some(m) => format!(
-            "damaged cache entry {} ({reason}); moved to {}; recomputing",
-            path.display(),
-            m.display()
-        ),
-        None => format!(
-            "damaged cache entry {} ({reason}); could not move it aside; recomputing",
-            path.display()
-        ),
-    }
+fn describe_damage(path: &std::path::Path, reason: &str, moved_to: &std::path::Path) -> String {
+    format!(
+        "damaged cache entry {} ({reason}); moved to {}; recomputing",
+        path.display(),
+        moved_to.display()
+    )
 }
 
 /// Runs every missing cell of the plan and returns the records of all cells.

@@ -140,31 +140,13 @@ mod nonfinite_opt {
 pub enum Lookup<T> {
     Hit(T),
     Missing,
-    /// The entry existed but failed verification; it was moved to `moved_to`.
+    /// The entry existed but failed verification; it was moved to `moved_to` (an entry that
+    /// cannot be moved aside is an error, never overwritten).
     Damaged {
         path: PathBuf,
         reason: String,
-        moved_to: Option<PathBuf>,
+        moved_to: PathBuf,
     },
-}
-
-impl<T> Lookup<T> {
-    /// Forgets the payload of a hit (for callers that only count).
-    pub fn map_hit(self) -> Lookup<()> {
-        match self {
-            Lookup::Hit(_) => Lookup::Hit(()),
-            Lookup::Missing => Lookup::Missing,
-            Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            } => Lookup::Damaged {
-                path,
-                reason,
-                moved_to,
-            },
-        }
-    }
 }
 
 /// A cache rooted at a folder (created on first write).
@@ -369,7 +351,7 @@ impl Cache {
         Ok(Lookup::Damaged {
             path,
             reason,
-            moved_to: Some(target),
+            moved_to: target,
         })
     }
 }
@@ -571,7 +553,7 @@ mod tests {
             std::fs::write(&p, b).unwrap();
             match c.read_record(&k).unwrap() {
                 Lookup::Damaged { moved_to, .. } => {
-                    assert!(moved_to.unwrap().is_file());
+                    assert!(moved_to.is_file());
                     assert!(!p.exists());
                 }
                 other => panic!("{damage}: {other:?}"),

@@ -63,9 +63,9 @@ fn note<T>(lookup: Lookup<T>, report: &mut Report) {
     } = lookup
     {
         report.damaged.push(format!(
-            "{} ({reason}){}",
+            "{} ({reason}) → {}",
             path.display(),
-            moved_to.map_or(String::new(), |m| format!(" → {}", m.display()))
+            moved_to.display()
         ));
     }
 }
