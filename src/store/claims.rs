@@ -270,14 +270,7 @@ fn clock_offset(dir: &Path) -> f64 {
     {
         return off;
     }
-    static COUNTER: AtomicU64 = AtomicU64::new(0);
-    // Named like a temporary file, so `kiln verify` removes it if this process dies here.
-    let probe = dir.join(format!(
-        ".clock.tmp-{}-{}-{}",
-        super::this_host(),
-        std::process::id(),
-        COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
+    let probe = super::temp_path(dir, "clock");
     let measured = (|| {
         let mut f = File::create(&probe).ok()?;
         f.write_all(b"t").ok()?;
@@ -406,15 +399,8 @@ pub fn claim(dir: &Path, key: &Key, lease: Duration, owner: &str) -> Result<Clai
 /// `path` (where the file system cannot link, create-new and write). Returns the file opened
 /// for writing (for the heartbeat).
 fn create_with(path: &Path, line: &str) -> std::io::Result<File> {
-    static COUNTER: AtomicU64 = AtomicU64::new(0);
     let dir = path.parent().unwrap_or(Path::new("."));
-    // Named like a temporary file, so `kiln verify` removes it if this process dies here.
-    let tmp = dir.join(format!(
-        ".claim.tmp-{}-{}-{}",
-        super::this_host(),
-        std::process::id(),
-        COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
+    let tmp = super::temp_path(dir, "claim");
     std::fs::write(&tmp, line)?;
     let linked = std::fs::hard_link(&tmp, path);
     let _ = std::fs::remove_file(&tmp);
@@ -435,23 +421,12 @@ fn create_with(path: &Path, line: &str) -> std::io::Result<File> {
 
 /// Removes a cell's claim if it is stale (takes it over, then releases it). True if it was.
 pub fn clear_if_stale(dir: &Path, key: &Key, lease: Duration) -> Result<bool, StoreError> {
-    match state(dir, key, lease)? {
-        State::Held(Verdict::Stale(_)) => match claim(dir, key, lease, "verify")? {
-            Claim::Acquired {
-                guard,
-                took_over: Some(_),
-            } => {
-                drop(guard);
-                Ok(true)
-            }
-            Claim::Acquired { guard, .. } => {
-                drop(guard);
-                Ok(false)
-            }
-            Claim::HeldByOther(_) => Ok(false),
-        },
-        _ => Ok(false),
-    }
+    // Claiming judges the claim: a live one is left alone, a stale one is taken over (and
+    // counts), and a cell whose claim was released meanwhile is claimed afresh (and does not).
+    Ok(match claim(dir, key, lease, "sweep")? {
+        Claim::Acquired { took_over, .. } => took_over.is_some(),
+        Claim::HeldByOther(_) => false,
+    })
 }
 
 /// Removes every stale claim under a cache's `claims/` folder (a killed runner's claims on

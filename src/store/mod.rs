@@ -84,6 +84,18 @@ pub fn temp_is_orphan(file_name: &str) -> bool {
 
 static TMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 
+/// A unique temporary name in `dir` for a file about to become `name`:
+/// `.{name}.tmp-{host}-{pid}-{counter}`, the form [`temp_is_orphan`] recognises, so `kiln
+/// verify` removes it if its writer dies before renaming or removing it.
+pub(crate) fn temp_path(dir: &Path, name: &str) -> PathBuf {
+    dir.join(format!(
+        ".{name}.tmp-{}-{}-{}",
+        this_host(),
+        std::process::id(),
+        TMP_COUNTER.fetch_add(1, Ordering::Relaxed)
+    ))
+}
+
 /// A temporary file beside `path`, written and synced, waiting to be renamed over it.
 struct Staged {
     tmp: PathBuf,
@@ -98,12 +110,7 @@ fn stage(path: &Path, bytes: &[u8]) -> Result<Staged, StoreError> {
     let dir = path.parent().unwrap_or(Path::new("."));
     std::fs::create_dir_all(dir).map_err(err)?;
     let name = path.file_name().and_then(|s| s.to_str()).unwrap_or("file");
-    let tmp = dir.join(format!(
-        ".{name}.tmp-{}-{}-{}",
-        this_host(),
-        std::process::id(),
-        TMP_COUNTER.fetch_add(1, Ordering::Relaxed)
-    ));
+    let tmp = temp_path(dir, name);
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
         f.write_all(bytes)?;
