@@ -117,20 +117,19 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     });
     // Every line is an upper bound on the Parisi value (the infimum of the functional); the
     // best kiln has is the least of them, and it names the solution that attains it.
-    let mut best = ("full RSB".to_string(), full.value);
-    if let Some((r, _)) = &refined
-        && r.value < best.1
-    {
-        best = (
-            format!("refined full RSB ({} q-intervals)", r.m.len()),
-            r.value,
-        );
-    }
-    for (k, sol, _) in &ks {
-        if sol.value < best.1 {
-            best = (format!("{k}-step RSB"), sol.value);
-        }
-    }
+    let best = crate::theory::cached::least(
+        std::iter::once((full.value, "full RSB".to_string()))
+            .chain(refined.iter().map(|(r, _)| {
+                (
+                    r.value,
+                    format!("refined full RSB ({} q-intervals)", r.m.len()),
+                )
+            }))
+            .chain(
+                ks.iter()
+                    .map(|(k, sol, _)| (sol.value, format!("{k}-step RSB"))),
+            ),
+    );
     // The order parameters, for incremental AMP and for plots.
     let mut csv = format!(
         "# kiln theory: zero-temperature step order parameters gamma = m on [q_start, q_end); xi(q) = {}\nsolution,k,value,q_start,q_end,m\n",
@@ -198,7 +197,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 })).collect::<Vec<_>>(),
                 "full_rsb": {"value": full.value, "intervals": full.m.len(), "q": full.q, "m": full.m, "seconds": full_secs},
                 "full_rsb_refined": refined.as_ref().map(|(r, secs)| serde_json::json!({"value": r.value, "intervals": r.m.len(), "q": r.q, "m": r.m, "seconds": secs})),
-                "best": {"value": best.1, "solution": best.0},
+                "best": {"value": best.0, "solution": best.1},
             },
             "order_parameters": csv_path.display().to_string(),
             "temperature_rs": temps.iter().map(|(b, p, q, _)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
@@ -245,15 +244,14 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 a.refine
             );
         }
-        if best.0.contains("step") && full.value > best.1 {
+        let (best_value, best_name) = &best;
+        if best_name.contains("step") && full.value > *best_value {
             o += &format!(
-                "  (the full-RSB grid cannot place γ's jump as well as the {} solution, which is lower)\n",
-                best.0
+                "  (the full-RSB grid cannot place γ's jump as well as the {best_name} solution, which is lower)\n"
             );
         }
         o += &format!(
-            "  best upper bound         {:.7}   attained by the {} solution\n",
-            best.1, best.0
+            "  best upper bound         {best_value:.7}   attained by the {best_name} solution\n"
         );
         if xi == Mixture::sk() {
             o += "  (published full-RSB value for SK: 0.7631667, Crisanti & Rizzo 2002)\n";

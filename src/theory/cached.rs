@@ -92,16 +92,21 @@ pub fn k_rsb(
 /// value on its fixed q-grid can lie above the 2-step one when γ has a large jump.
 pub fn parisi_best(cache: &Cache, xi: &Mixture) -> Result<(f64, String), StoreError> {
     let full = full_rsb(cache, xi)?;
-    let mut best = (
+    let s = cube::Settings::default();
+    let mut bounds = vec![(
         full.value,
         format!("full RSB on {} q-intervals", full.m.len()),
-    );
-    let s = cube::Settings::default();
+    )];
     for k in 1..=2 {
-        let sol = k_rsb(cache, xi, k, &s)?;
-        if sol.value < best.0 {
-            best = (sol.value, format!("{k}-step RSB"));
-        }
+        bounds.push((k_rsb(cache, xi, k, &s)?.value, format!("{k}-step RSB")));
     }
-    Ok(best)
+    Ok(least(bounds))
+}
+
+/// The least of several upper bounds on the Parisi value, with its name (the first of equals).
+pub fn least(bounds: impl IntoIterator<Item = (f64, String)>) -> (f64, String) {
+    bounds
+        .into_iter()
+        .reduce(|a, b| if b.0 < a.0 { b } else { a })
+        .expect("at least one bound")
 }
