@@ -73,8 +73,12 @@ fn parse_toy(s: &Settings<'_>) -> Result<AlgoSpec, SpecError> {
 }
 
 /// Runs `kiln run <spec> --quiet` in this process (where the toys are registered), with the
-/// results under the workspace; returns the results folder.
-fn run_in_process(spec: &std::path::Path, w: &Work) -> std::path::PathBuf {
+/// results under the workspace; asserts its exit status; returns the results folder.
+fn run_in_process_expecting(
+    spec: &std::path::Path,
+    w: &Work,
+    status: std::process::ExitCode,
+) -> std::path::PathBuf {
     let results = w.path().join("results");
     let code = kiln::cli::main_from([
         "kiln",
@@ -84,11 +88,13 @@ fn run_in_process(spec: &std::path::Path, w: &Work) -> std::path::PathBuf {
         results.to_str().unwrap(),
         "--quiet",
     ]);
-    assert_eq!(
-        format!("{code:?}"),
-        format!("{:?}", std::process::ExitCode::SUCCESS)
-    );
+    assert_eq!(format!("{code:?}"), format!("{status:?}"));
     results
+}
+
+/// [`run_in_process_expecting`] success.
+fn run_in_process(spec: &std::path::Path, w: &Work) -> std::path::PathBuf {
+    run_in_process_expecting(spec, w, std::process::ExitCode::SUCCESS)
 }
 
 fn register_toy() {
@@ -377,26 +383,36 @@ fn a_family_registered_from_outside_runs_end_to_end() {
     assert!(kiln::spec::listing(&fams, &algs).contains("toy-field-magnet"));
 }
 
+/// What a settings-free test kind implements the same way whatever it computes.
+macro_rules! settings_free_toy {
+    ($kind:expr) => {
+        fn kind(&self) -> &'static str {
+            $kind.name
+        }
+        fn revision(&self) -> u32 {
+            1
+        }
+        fn canon(&self, c: Canon) -> Canon {
+            c
+        }
+        fn work_bytes(&self, n: u64) -> u128 {
+            8 * n as u128
+        }
+        fn cost(&self, n: u64, _flip: f64) -> f64 {
+            n as f64
+        }
+        fn as_any(&self) -> &dyn std::any::Any {
+            self
+        }
+    };
+}
+
 /// A test kind for the sphere that returns a point of NaNs: the energy per spin is not a number.
 #[derive(Debug)]
 struct NanPoint;
 
 impl Algorithm for NanPoint {
-    fn kind(&self) -> &'static str {
-        NAN.name
-    }
-    fn revision(&self) -> u32 {
-        1
-    }
-    fn canon(&self, c: Canon) -> Canon {
-        c
-    }
-    fn work_bytes(&self, n: u64) -> u128 {
-        8 * n as u128
-    }
-    fn cost(&self, n: u64, _flip: f64) -> f64 {
-        n as f64
-    }
+    settings_free_toy!(NAN);
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         m.family
             .spins()
@@ -409,9 +425,6 @@ impl Algorithm for NanPoint {
             point: Some(vec![f64::NAN; n]),
             info: Info::default(),
         })
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 
@@ -446,19 +459,7 @@ kind = "toy-nan"
 kind = "gradient"
 "#,
     );
-    let results = w.path().join("results");
-    let code = kiln::cli::main_from([
-        "kiln",
-        "run",
-        spec.to_str().unwrap(),
-        "--results",
-        results.to_str().unwrap(),
-        "--quiet",
-    ]);
-    assert_eq!(
-        format!("{code:?}"),
-        format!("{:?}", std::process::ExitCode::from(1))
-    );
+    let results = run_in_process_expecting(&spec, &w, std::process::ExitCode::from(1));
     let df = kiln::store::table::read(&results.join("nan/cells.parquet")).unwrap();
     assert_eq!(df.height(), 2, "the gradient cells are tabled");
     let mut notes = Vec::new();
@@ -486,21 +487,7 @@ kind = "gradient"
 struct SignOfPattern;
 
 impl Algorithm for SignOfPattern {
-    fn kind(&self) -> &'static str {
-        SIGN.name
-    }
-    fn revision(&self) -> u32 {
-        1
-    }
-    fn canon(&self, c: Canon) -> Canon {
-        c
-    }
-    fn work_bytes(&self, n: u64) -> u128 {
-        n as u128
-    }
-    fn cost(&self, n: u64, _flip: f64) -> f64 {
-        n as f64
-    }
+    settings_free_toy!(SIGN);
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         (!m.family.spins()).then_some("it sets ±1 spins")
     }
@@ -514,9 +501,6 @@ impl Algorithm for SignOfPattern {
             point: None,
             info: Info::default(),
         })
-    }
-    fn as_any(&self) -> &dyn std::any::Any {
-        self
     }
 }
 
