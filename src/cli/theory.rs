@@ -18,9 +18,9 @@ pub struct TheoryArgs {
     /// Largest number of RSB steps on the cube.
     #[arg(long, value_name = "K", default_value_t = 3)]
     pub k: usize,
-    /// Also minimise full RSB on q-grids refined where γ jumps, this many rounds (each bisects
-    /// the intervals around the two largest jumps and the last one; slower: tens of seconds
-    /// per round). 0: the fixed grid only.
+    /// Also solve full RSB at finer settings, this many rounds (each doubles the x-grid and
+    /// adds 8 q-intervals; each round takes several times the previous one): the sequence
+    /// shows how far the printed value is from converged. 0 to 3.
     #[arg(long, value_name = "ROUNDS", default_value_t = 0)]
     pub refine: usize,
     /// Also the Parisi free energy (and the replica-symmetric bound) at these inverse
@@ -102,32 +102,50 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         let sol = crate::theory::cached::k_rsb(&cache, &xi, k, &s)?;
         ks.push((k, sol, t.elapsed().as_secs_f64()));
     }
-    if a.refine > 12 {
-        return Err(InputError(format!("--refine {}: give 0 to 12 rounds", a.refine)).into());
+    if a.refine > 3 {
+        return Err(InputError(format!("--refine {}: give 0 to 3 rounds", a.refine)).into());
     }
-    let refined = (a.refine > 0).then(|| {
-        let t = std::time::Instant::now();
-        let sol = crate::theory::full::full_rsb_adaptive(
-            &xi,
-            &crate::theory::full::FullSettings::default(),
-            a.refine,
-            2,
-        );
-        (sol, t.elapsed().as_secs_f64())
-    });
+    let refined: Vec<(
+        crate::theory::full::FullSettings,
+        crate::theory::full::FullRsb,
+        f64,
+    )> = (1..=a.refine)
+        .map(|r| {
+            let d = crate::theory::full::FullSettings::default();
+            let fs = crate::theory::full::FullSettings {
+                grid: (d.grid - 1) * (1 << r) + 1,
+                levels: d.levels + 8 * r,
+                ..d
+            };
+            let t = std::time::Instant::now();
+            let sol = crate::theory::cached::full_rsb_at(&cache, &xi, &fs)?;
+            Ok((fs, sol, t.elapsed().as_secs_f64()))
+        })
+        .collect::<Result<_, crate::store::StoreError>>()?;
+    // k-step values as printed: re-evaluated on the full-RSB lattice (None: not resolved).
+    let k_values: Vec<Option<f64>> = ks
+        .iter()
+        .map(|(_, sol, _)| crate::theory::cached::k_step_value(&xi, sol))
+        .collect();
+    let alg_t = std::time::Instant::now();
+    let (calg, alg_starts) = crate::theory::cached::algorithmic(&cache, &xi)?;
+    let alg_secs = alg_t.elapsed().as_secs_f64();
+    let alg_diag =
+        crate::theory::full::diagnostic(&xi, &crate::theory::full::FullSettings::default(), &calg);
     // Every line is an upper bound on the Parisi value (the infimum of the functional); the
     // best kiln has is the least of them, and it names the solution that attains it.
     let best = crate::theory::cached::least(
         std::iter::once((full.value, "full RSB".to_string()))
-            .chain(refined.iter().map(|(r, _)| {
+            .chain(refined.iter().map(|(fs, r, _)| {
                 (
                     r.value,
-                    format!("refined full RSB ({} q-intervals)", r.m.len()),
+                    format!("full RSB (x-grid {}, {} q-intervals)", fs.grid, r.m.len()),
                 )
             }))
             .chain(
                 ks.iter()
-                    .map(|(k, sol, _)| (sol.value, format!("{k}-step RSB"))),
+                    .zip(&k_values)
+                    .filter_map(|((k, _, _), v)| v.map(|v| (v, format!("{k}-step RSB")))),
             ),
     );
     // The order parameters, for incremental AMP and for plots.
@@ -192,11 +210,13 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             "cube": {
                 "replica_symmetric": rs,
                 "constant_gamma": {"value": cg.value, "m": cg.steps.m[0]},
-                "rsb": ks.iter().map(|(k, sol, secs)| serde_json::json!({
-                    "k": k, "value": sol.value, "q": sol.steps.q, "m": sol.steps.m, "seconds": secs,
+                "rsb": ks.iter().zip(&k_values).map(|((k, sol, secs), v)| serde_json::json!({
+                    "k": k, "value": v, "value_quadrature": sol.value, "q": sol.steps.q, "m": sol.steps.m, "seconds": secs,
                 })).collect::<Vec<_>>(),
                 "full_rsb": {"value": full.value, "intervals": full.m.len(), "q": full.q, "m": full.m, "seconds": full_secs},
-                "full_rsb_refined": refined.as_ref().map(|(r, secs)| serde_json::json!({"value": r.value, "intervals": r.m.len(), "q": r.q, "m": r.m, "seconds": secs})),
+                "full_rsb_refined": refined.iter().map(|(fs, r, secs)| serde_json::json!({"value": r.value, "grid": fs.grid, "intervals": r.m.len(), "q": r.q, "m": r.m, "seconds": secs})).collect::<Vec<_>>(),
+                "algorithmic": {"value": calg.value, "q": calg.q, "m": calg.m, "starts": alg_starts,
+                    "structure": crate::theory::full::describe_runs(&calg), "diagnostic": alg_diag, "seconds": alg_secs},
                 "best": {"value": best.0, "solution": best.1},
             },
             "order_parameters": csv_path.display().to_string(),
@@ -219,36 +239,40 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             "  constant γ (q₀ = 0)      {:.7}   m = {:.4}\n",
             cg.value, cg.steps.m[0]
         );
-        for (k, sol, secs) in &ks {
+        for ((k, sol, secs), v) in ks.iter().zip(&k_values) {
             let q: Vec<String> = sol.steps.q[1..].iter().map(|x| format!("{x:.4}")).collect();
             let m: Vec<String> = sol.steps.m[1..].iter().map(|x| format!("{x:.4}")).collect();
+            let value = match v {
+                Some(v) => format!("{v:.7}"),
+                None => format!("({:.7})", sol.value),
+            };
             o += &format!(
-                "  {k}-step RSB               {:.7}   q = [{}]  m = [{}]  ({secs:.1} s)\n",
-                sol.value,
+                "  {k}-step RSB               {value:<9}   q = [{}]  m = [{}]  ({secs:.1} s)\n",
                 q.join(", "),
                 m.join(", ")
             );
         }
+        if k_values.iter().any(|v| v.is_none()) {
+            o += "  (in parentheses: a step narrower than the x-grid; the quadrature value is not trusted and not used as a bound)\n";
+        }
         o += &format!(
-            "  full RSB                 {:.7}   γ on {} q-intervals, γ(0+) = {:.4}, γ(1−) = {:.3}  ({full_secs:.1} s)\n",
+            "  full RSB                 {:.7}   γ on {} free q-intervals, γ(0+) = {:.4}, γ(1−) = {:.3}  ({full_secs:.1} s)\n",
             full.value,
             full.m.len(),
             full.m[0],
             full.m[full.m.len() - 1]
         );
-        if let Some((r, secs)) = &refined {
+        for (fs, r, secs) in &refined {
             o += &format!(
-                "  full RSB, refined        {:.7}   γ on {} q-intervals refined where it jumps ({} rounds; {secs:.1} s)\n",
+                "  full RSB, finer          {:.7}   x-grid {}, {} q-intervals  ({secs:.1} s)\n",
                 r.value,
-                r.m.len(),
-                a.refine
+                fs.grid,
+                r.m.len()
             );
         }
         let (best_value, best_name) = &best;
         if best_name.contains("step") && full.value > *best_value {
-            o += &format!(
-                "  (the full-RSB grid cannot place γ's jump as well as the {best_name} solution, which is lower)\n"
-            );
+            o += &format!("  (the {best_name} solution is lower than the full-RSB one)\n");
         }
         o += &format!(
             "  best upper bound         {best_value:.7}   attained by the {best_name} solution\n"
@@ -256,6 +280,28 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         if xi == Mixture::sk() {
             o += "  (published full-RSB value for SK: 0.7631667, Crisanti & Rizzo 2002)\n";
         }
+        let (dlo, dhi) = alg_diag
+            .iter()
+            .filter(|d| d.is_finite())
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &d| {
+                (a.min(d), b.max(d))
+            });
+        o += &format!(
+            "  algorithmic threshold    {:.7}   γ positive, not nec. monotone ({} q-intervals; {:.1} s): {}\n",
+            calg.value,
+            calg.m.len(),
+            alg_secs,
+            crate::theory::full::describe_runs(&calg)
+        );
+        o += &format!(
+            "                           {:.2e} below the best bound; ξ''·E[(∂ₓₓΦ)²] in [{dlo:.3}, {dhi:.3}] (1 where full-RSB type); starts reached {}\n",
+            best.0 - calg.value,
+            alg_starts
+                .iter()
+                .map(|v| format!("{v:.7}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
         if !temps.is_empty() {
             o += "\ncube, positive temperature: lim (1/n) E log Σ e^{βH} (Parisi, x on 16 q-intervals) and the replica-symmetric bound\n";
             for (b, p, q, f) in &temps {

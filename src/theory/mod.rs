@@ -234,6 +234,19 @@ pub fn nelder_mead<F: Fn(&[f64]) -> f64>(
     (x, v)
 }
 
+/// Uniform numbers in [0, 1) from a fixed linear congruential stream (Knuth's MMIX constants),
+/// for tests that draw random mixtures.
+#[cfg(test)]
+pub(crate) fn test_uniform(seed: u64) -> impl FnMut() -> f64 {
+    let mut state = seed;
+    move || {
+        state = state
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

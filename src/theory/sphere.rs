@@ -326,13 +326,7 @@ mod tests {
     /// of p = 2 … 6 (a fixed generator, 32 q-intervals), each within solver tolerance 1e-9.
     #[test]
     fn ground_state_lies_between_its_bounds_for_random_mixtures() {
-        let mut state = 20261203u64;
-        let mut next = || {
-            state = state
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (state >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut next = crate::theory::test_uniform(20261203);
         for _ in 0..4 {
             let terms: Vec<(u32, f64)> = (2..=6)
                 .filter_map(|p| {

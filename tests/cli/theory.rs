@@ -54,7 +54,11 @@ fn theory_for_the_default_model() {
     let cached: Vec<_> = std::fs::read_dir(w.path().join("results/.cache/theory"))
         .unwrap()
         .collect();
-    assert_eq!(cached.len(), 2, "the 1RSB and the full-RSB solutions");
+    assert_eq!(
+        cached.len(),
+        3,
+        "the 1RSB, the full-RSB and the algorithmic-threshold solutions"
+    );
     // A second run reads the cache and reports the same numbers.
     let o = w.kiln(&["theory", "--k", "1", "--json"]);
     let again: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
@@ -85,7 +89,7 @@ fn theory_for_the_default_model() {
     let r: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(
         (r["theory"].as_u64(), r["damaged"].as_u64()),
-        (Some(2), Some(1)),
+        (Some(3), Some(1)),
         "{r}"
     );
     assert!(w.path().join("results/.cache/quarantine").is_dir());
@@ -185,29 +189,40 @@ fn theory_refusals_write_nothing() {
 }
 
 /// Every printed value is an upper bound on the Parisi value, so kiln reports the least as the
-/// best. On the pure 3-spin cube (ξ = q³/2) the full-RSB minimum on 16 fixed q-intervals lies
-/// above the 2-step minimum (γ has a large jump near q ≈ 0.97 that the fixed grid cannot
-/// place; measured 0.8133434 against 0.8132537): the best is the 2-step value, named, with the
-/// reason printed. Both lie above ≈ 0.8132 less 1e-3, the value usually quoted for this model
-/// in this normalisation (recalled from the literature, not read).
+/// best. On the pure 3-spin cube (ξ = q³/2) γ is flat up to q ≈ 0.95 and then grows; with free
+/// breakpoints the full-RSB value (measured 0.8131718) lies below the 2-step one (0.8132537 from
+/// the quadrature solver, whose first step is narrower than the lattice's spacing: printed in
+/// parentheses, JSON `value` null, not used as a bound). Both lie within 1e-3 of ≈ 0.8132, the
+/// value usually quoted for this model in this normalisation (recalled from the literature, not
+/// read). The algorithmic threshold lies clearly below (measured gap 0.0130; strict
+/// suboptimality is conjectured for p = 3, proven for even p ≥ 4: Huang & Sellke 2021,
+/// arXiv:2110.07847); bound 5e-3 here.
 #[test]
-fn the_best_bound_is_printed_when_full_rsb_lies_above_a_k_step_value() {
+fn free_breakpoints_give_the_best_bound_on_pure_p3_and_the_threshold_lies_below() {
     let w = Work::new();
     let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2", "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let full = v["cube"]["full_rsb"]["value"].as_f64().unwrap();
-    let two = v["cube"]["rsb"][1]["value"].as_f64().unwrap();
+    let two = v["cube"]["rsb"][1]["value_quadrature"].as_f64().unwrap();
     let best = v["cube"]["best"]["value"].as_f64().unwrap();
-    assert!(two < full, "2-step {two} vs full {full}");
-    assert_eq!(best, two);
-    assert_eq!(v["cube"]["best"]["solution"], "2-step RSB");
+    assert!(full < two - 5e-5, "full {full} vs 2-step {two}");
+    assert!(
+        v["cube"]["rsb"][1]["value"].is_null(),
+        "{}",
+        v["cube"]["rsb"][1]
+    );
+    assert_eq!(best, full);
+    assert_eq!(v["cube"]["best"]["solution"], "full RSB");
     assert!((best - 0.8132).abs() < 1e-3, "{best}");
+    let alg = v["cube"]["algorithmic"]["value"].as_f64().unwrap();
+    assert!(alg < best - 5e-3, "ALG {alg} vs {best}");
     let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2"]);
     let text = String::from_utf8_lossy(&o.stdout);
     assert!(
-        text.contains("attained by the 2-step RSB solution")
-            && text.contains("cannot place γ's jump"),
+        text.contains("attained by the full RSB solution")
+            && text.contains("in parentheses")
+            && text.contains("algorithmic threshold"),
         "{text}"
     );
 }
