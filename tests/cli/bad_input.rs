@@ -441,6 +441,14 @@ fn algorithms_are_matched_to_families() {
         &["`iamp` cannot run on the `cube` family", "p = 2 term"],
     );
     refuse(
+        &family_spec(
+            "family = \"sk\"",
+            "[16]",
+            "kind = \"iamp\"\norder = \"best\"",
+        ),
+        &["unknown order parameter `best`", "extended"],
+    );
+    refuse(
         &family_spec("family = \"regular\"\ndegree = 3", "[16]", "kind = \"amp\""),
         &["`amp` cannot run on the `regular` family"],
     );

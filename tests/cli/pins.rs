@@ -103,12 +103,13 @@ const ALGORITHM_PINS: &[Pin] = &[
     ("amp", 1, "sk", 24, "0.2311010712331977", "3b278dcecffcba17"),
     (
         "iamp",
-        2,
+        3,
         "cube",
         24,
-        // Theory solver revision 2 (lattice steps) moved the point, not the signs' energy.
+        // Revision 3 (γ from the extended minimiser) and theory solver revision 2 (lattice
+        // steps) moved the point, not the signs' energy.
         "0.51153388586043",
-        "d76642509c739389",
+        "3ac065e7f5d8169b",
     ),
 ];
 
