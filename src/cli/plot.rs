@@ -75,8 +75,8 @@ fn reference_lines(
             ));
         } else {
             caption += &format!(
-                " kiln's algorithmic threshold (the infimum over non-monotone γ) equals it to {:.0e}.",
-                (value - alg.value).max(1e-9)
+                " kiln's algorithmic threshold (the infimum over non-monotone γ) is {:.6}, within 1e-5 of it.",
+                alg.value
             );
         }
         lines.insert(0, (value, format!("Parisi value {value:.5}"), caption));

@@ -45,7 +45,7 @@ fn settings_key(xi: &Mixture, s: &full::FullSettings, what: &str) -> String {
 
 /// The full-RSB solution with free breakpoints ([`full::full_rsb_free`]) at the given
 /// settings, from the cache or solved and stored.
-pub fn full_rsb_at(
+fn full_rsb_at(
     cache: &Cache,
     xi: &Mixture,
     s: &full::FullSettings,

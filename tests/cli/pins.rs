@@ -106,7 +106,7 @@ const ALGORITHM_PINS: &[Pin] = &[
         3,
         "cube",
         24,
-        // Revision 3 (γ from the extended minimiser) and theory solver revision 2 (lattice
+        // Revision 3 (γ from the extended minimiser) and theory solver revisions 2–3 (lattice
         // steps) moved the point, not the signs' energy.
         "0.51153388586043",
         "3ac065e7f5d8169b",
