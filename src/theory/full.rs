@@ -1,20 +1,24 @@
 //! Full replica-symmetry breaking at zero temperature on the cube: the Auffinger–Chen functional
-//! (arXiv:1606.05335) minimised over γ on a fixed fine grid of K intervals in q, with
-//! q_j = 1 − (1 − j/K)² (denser towards q = 1, where γ grows fastest).
+//! (arXiv:1606.05335) minimised over step functions γ of K intervals in q: first on the fixed
+//! grid q_j = 1 − (1 − j/K)² (denser towards q = 1, where γ grows fastest), then with the
+//! breakpoints free ([`full_rsb_free`]); and, over γ positive but not monotone, the algorithmic
+//! threshold ([`algorithmic`]).
 //!
-//! γ = m_j on [q_j, q_{j+1}) with 0 < m_0 ≤ … ≤ m_{K−1}; the Parisi PDE is solved exactly
-//! between grid points (the recursion of [`super::cube`]), so the only discretisation is the
-//! step approximation of γ and the x-grid. The functional is convex in γ (Auffinger & Chen,
-//! arXiv:1606.05335, Theorem 3), so a local minimiser is the minimiser. Minimisation: L-BFGS
-//! on u with m_j = Σ_{i≤j} e^{u_i} (monotone and positive by construction), with the gradient
-//! from one backward pass (Ψ_j and ∂Ψ_j/∂m_j on the grid) and one forward pass (the law of the
-//! tilted process X_j: X_0 = 0, X_{j+1} = X_j + a_j Z reweighted by e^{m_j(Ψ_{j+1} − Ψ_j)}):
+//! γ = m_j on [q_j, q_{j+1}); the Parisi PDE is solved exactly between breakpoints (Cole–Hopf
+//! per step, the closed form from |x| for the last), each step a lattice Gaussian sum on a
+//! uniform x-grid, so the discretisation is the step approximation of γ and the x-grid. On a
+//! fixed grid the functional is convex in γ (Auffinger & Chen, arXiv:1606.05335, Theorem 3), so
+//! a local minimiser is the minimiser. Minimisation: L-BFGS on u with m_j = Σ_{i≤j} e^{u_i}
+//! (monotone and positive by construction), with the gradient from one backward pass (Ψ_j,
+//! ∂Ψ_j/∂m_j and ∂Ψ_j/∂a_j on the grid) and one forward pass (the law of the tilted process
+//! X_j: X_0 = 0, X_{j+1} = X_j + a_j Z reweighted by e^{m_j(Ψ_{j+1} − Ψ_j)}):
 //!
 //! ∂P/∂m_j = E[∂Ψ_j/∂m_j (X_j)] − ½ (g(q_{j+1}) − g(q_j)), g(t) = t ξ'(t) − ξ(t),
 //!
 //! (common practice for Parisi-type recursions: the derivative of Ψ_0(0) with respect to Ψ_j is
-//! the law of X_j); the forward pass deposits mass with the interpolation weights of the
-//! backward pass, so this is the exact gradient of the discrete functional.
+//! the law of X_j), and ∂P/∂q_j through a_{j−1}, a_j and the penalty; the forward pass moves
+//! mass with the kernel weights of the backward pass, so this is the exact gradient of the
+//! discrete functional (checked against finite differences).
 
 use super::Mixture;
 use super::cube::{constant_gamma, last_level};
