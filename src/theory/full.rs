@@ -855,44 +855,6 @@ pub fn describe_runs(sol: &FullRsb) -> String {
         .join(", ")
 }
 
-/// k-step RSB on the cube (γ = 0 on [0, q_1), then m_1 ≤ … ≤ m_k) with every breakpoint and
-/// value free, minimised by L-BFGS from two starts (breakpoints spread over (0.3, 0.95), or
-/// q_1 near 0 and the rest near 1, the shape of pure p-spin models).
-pub fn k_step(xi: &Mixture, k: usize, s: &FullSettings) -> FullRsb {
-    let mc = constant_gamma(xi).steps.m[0];
-    let mut best: Option<FullRsb> = None;
-    for start in 0..2 {
-        let mut q = vec![0.0];
-        for i in 0..k {
-            q.push(match start {
-                0 => 0.3 + 0.65 * i as f64 / k as f64,
-                _ => {
-                    if i == 0 {
-                        0.05
-                    } else {
-                        1.0 - 0.1 * 0.5f64.powi(i as i32 - 1)
-                    }
-                }
-            });
-        }
-        q.push(1.0);
-        let m: Vec<f64> = (0..=k)
-            .map(|i| {
-                if i == 0 {
-                    0.0
-                } else {
-                    mc * (1.0 + 0.5 * (i - 1) as f64)
-                }
-            })
-            .collect();
-        let sol = solve_free(xi, s, &q, &m, Shape::ZeroThenMonotone);
-        if sol.value.is_finite() && best.as_ref().is_none_or(|b| sol.value < b.value) {
-            best = Some(sol);
-        }
-    }
-    best.expect("a feasible start")
-}
-
 /// Full-RSB solution on the grid of `s.levels` intervals. The start is γ(q) = c·(0.1 + q)/√(1 − q)
 /// with c set by the constant-γ solution, the shape of zero-temperature order parameters
 /// (γ diverges like (1 − q)^{−1/2} as q → 1; common practice, e.g. Oppermann, Schmidt &
