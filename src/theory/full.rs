@@ -562,7 +562,7 @@ fn free_objective(
 }
 
 /// Minimises over the breakpoints and the values together (free breakpoints), from the step
-/// function (q0, m0) (for [`Shape::ZeroThenMonotone`], m0[0] is ignored).
+/// function (q0, m0) (for [`Shape::ZeroThenMonotone`], `m0[0]` is ignored).
 pub fn solve_free(xi: &Mixture, s: &FullSettings, q0: &[f64], m0: &[f64], shape: Shape) -> FullRsb {
     let k = m0.len();
     assert_eq!(q0.len(), k + 1);
@@ -675,7 +675,7 @@ fn regrid(
 
 /// The Parisi value with free breakpoints: the fixed-grid minimiser of [`full_rsb`], then
 /// rounds of minimisation over breakpoints and values together ([`solve_free`]), each round
-/// first moving the intervals of flat runs of γ to where it varies ([`regrid`]), until a round
+/// first moving the intervals of flat runs of γ to where it varies (`regrid`), until a round
 /// gains less than 1e-9.
 pub fn full_rsb_free(xi: &Mixture, s: &FullSettings, rounds: usize) -> FullRsb {
     let fixed = full_rsb(xi, s);
@@ -689,7 +689,7 @@ pub fn full_rsb_free(xi: &Mixture, s: &FullSettings, rounds: usize) -> FullRsb {
 }
 
 /// [`full_rsb_free`] at finer settings warm-started from a coarser solution: its γ is spread
-/// over `s.levels` intervals (as in [`regrid`]) and minimised on the new lattice, then the
+/// over `s.levels` intervals (as in `regrid`) and minimised on the new lattice, then the
 /// same regrid rounds. How `kiln theory --refine` builds its sequence.
 pub fn full_rsb_free_from(
     xi: &Mixture,
