@@ -64,6 +64,12 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
     Ok(Mixture { terms })
 }
 
+/// The x-grid spacing of the full-RSB solver at default settings for ξ (zero temperature).
+fn default_dx(xi: &Mixture) -> f64 {
+    let s = crate::theory::full::FullSettings::default();
+    2.0 * s.half_width * xi.d1(1.0).sqrt() / ((s.grid | 1) - 1) as f64
+}
+
 pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let (xi, experiment) = match &a.mixture {
         Some(m) => (parse_mixture(m)?, None),
@@ -264,11 +270,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             o += "  (in parentheses: a step narrower than the x-grid; the quadrature value is not trusted and not used as a bound)\n";
         }
         o += &format!(
-            "  full RSB                 {:.7}   γ on {} free q-intervals, γ(0+) = {:.4}, γ(1−) = {:.3}  ({full_secs:.1} s)\n",
+            "  full RSB                 {:.7}   γ on {} free q-intervals, γ(0+) = {:.4}, γ(1−) = {:.3}{}  ({full_secs:.1} s)\n",
             full.value,
             full.m.len(),
             full.m[0],
-            full.m[full.m.len() - 1]
+            full.m[full.m.len() - 1],
+            // γ diverges at q → 1; the grid resolves the last step only while m·dx ≤ 1.
+            if full.m[full.m.len() - 1] * default_dx(&xi) > 0.999 {
+                " (the x-grid's bound)"
+            } else {
+                ""
+            }
         );
         for (fs, r, secs) in &refined {
             o += &format!(
