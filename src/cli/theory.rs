@@ -64,12 +64,6 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
     Ok(Mixture { terms })
 }
 
-/// The x-grid spacing of the full-RSB solver at default settings for ξ (zero temperature).
-fn default_dx(xi: &Mixture) -> f64 {
-    let s = crate::theory::full::FullSettings::default();
-    2.0 * s.half_width * xi.d1(1.0).sqrt() / ((s.grid | 1) - 1) as f64
-}
-
 pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let (xi, experiment) = match &a.mixture {
         Some(m) => (parse_mixture(m)?, None),
@@ -276,7 +270,10 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             full.m[0],
             full.m[full.m.len() - 1],
             // γ diverges at q → 1; the grid resolves the last step only while m·dx ≤ 1.
-            if full.m[full.m.len() - 1] * default_dx(&xi) > 0.999 {
+            if full.m[full.m.len() - 1]
+                * crate::theory::full::spacing(&xi, &crate::theory::full::FullSettings::default())
+                > 0.999
+            {
                 " (the x-grid's bound)"
             } else {
                 ""

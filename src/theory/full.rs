@@ -71,6 +71,13 @@ pub struct FullRsb {
     pub gradient: f64,
 }
 
+/// The x-grid's spacing at zero temperature: the grid spans ±`half_width`·√ξ'(1) with an odd
+/// number of points (x = 0 is one); at inverse temperature β it is β times this.
+pub fn spacing(xi: &Mixture, s: &FullSettings) -> f64 {
+    let half = s.half_width * xi.d1(1.0).sqrt();
+    2.0 * half / ((s.grid | 1) - 1) as f64
+}
+
 struct Problem {
     /// None: zero temperature (Ψ(1, x) = |x|); Some(β): Φ(1, y) = log cosh y, steps β·a_j.
     beta: Option<f64>,
@@ -92,7 +99,7 @@ impl Problem {
         let dg = (0..k).map(|j| b * b * (g(q[j + 1]) - g(q[j]))).collect();
         let half = s.half_width * b * xi.d1(1.0).sqrt();
         let grid = s.grid | 1; // odd: x = 0 is a grid point
-        let dx = 2.0 * half / (grid - 1) as f64;
+        let dx = 2.0 * half / (grid - 1) as f64; // = spacing(xi, s) bit for bit when b = 1
         Problem {
             beta,
             a,
@@ -618,7 +625,7 @@ fn regrid(
     k: usize,
 ) -> (Vec<f64>, Vec<f64>) {
     // A half must stay resolved (a ≥ dx, with a margin), or the start is infeasible.
-    let dx = 2.0 * s.half_width * xi.d1(1.0).sqrt() / ((s.grid | 1) - 1) as f64;
+    let dx = spacing(xi, s);
     let wide = |lo: f64, hi: f64| xi.d1(hi) - xi.d1(lo) >= (1.5 * dx).powi(2);
     let (mut q, mut m) = (vec![0.0], vec![sol.m[0]]);
     for j in 1..sol.m.len() {
