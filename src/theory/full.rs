@@ -39,8 +39,6 @@ pub struct FullSettings {
     pub grid: usize,
     /// Half-width X in units of √ξ'(1). Default 9.
     pub half_width: f64,
-    /// Gauss–Hermite nodes per step. Default 24.
-    pub nodes: usize,
     /// L-BFGS iterations at most. Default 300.
     pub max_iterations: usize,
     /// Grid map exponent r: q_j = 1 − (1 − j/K)^r. Default 2.
@@ -53,7 +51,6 @@ impl Default for FullSettings {
             levels: 16,
             grid: 801,
             half_width: 9.0,
-            nodes: 24,
             max_iterations: 300,
             power: 2.0,
         }
@@ -380,6 +377,17 @@ fn to_m(u: &[f64]) -> Vec<f64> {
         .collect()
 }
 
+/// The adjoint of [`to_m`]: ∂P/∂u_i = e^{u_i}·Σ_{j≥i} ∂P/∂m_j.
+fn to_m_adjoint(u: &[f64], gm: &[f64]) -> Vec<f64> {
+    let mut gu = vec![0.0; u.len()];
+    let mut tail = 0.0;
+    for i in (0..u.len()).rev() {
+        tail += gm[i];
+        gu[i] = u[i].exp() * tail;
+    }
+    gu
+}
+
 /// m from u: zero temperature m_j = Σ_{i≤j} e^{u_i}; positive temperature (u has one more,
 /// slack entry) m_j = Σ_{i≤j} e^{u_i} / Σ_i e^{u_i}, so 0 < m_0 ≤ … ≤ m_{K−1} < 1.
 fn m_of(p: &Problem, u: &[f64]) -> Vec<f64> {
@@ -412,20 +420,12 @@ fn objective(p: &Problem, u: &[f64]) -> (f64, Vec<f64>) {
         return (v, gu);
     }
     let m = to_m(u);
-    // The quadrature resolves the tilt e^{m a z} only while m·a stays well inside the nodes;
-    // beyond, the discrete functional decreases spuriously. Treat it as infeasible.
+    // Outside the grid's resolution the discrete functional decreases spuriously.
     if !p.resolved(&m) {
         return (f64::INFINITY, vec![0.0; u.len()]);
     }
     let (v, gm) = p.value_grad(&m);
-    let k = u.len();
-    let mut gu = vec![0.0; k];
-    let mut tail = 0.0;
-    for i in (0..k).rev() {
-        tail += gm[i];
-        gu[i] = u[i].exp() * tail;
-    }
-    (v, gu)
+    (v, to_m_adjoint(u, &gm))
 }
 
 /// Minimises on the grid of K intervals from `m0` (one value per interval).
@@ -556,13 +556,7 @@ fn free_objective(
         Shape::Positive => grad.extend(gm.iter().zip(&m).map(|(g, m)| g * m)),
         _ => {
             let first = k - value_count(shape, k);
-            let mut gu = vec![0.0; k - first];
-            let mut tail = 0.0;
-            for i in (first..k).rev() {
-                tail += gm[i];
-                gu[i - first] = x[k + i - first].exp() * tail;
-            }
-            grad.extend(gu);
+            grad.extend(to_m_adjoint(&x[k..], &gm[first..]));
         }
     }
     (value, grad)
