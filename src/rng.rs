@@ -27,6 +27,8 @@ pub enum Purpose {
     Algorithm = 3,
     /// Resampling of seeds in the finite-size-scaling bootstrap.
     Bootstrap = 4,
+    /// The choice of cells `kiln replay` recomputes.
+    Replay = 5,
 }
 
 /// A 32-byte content hash naming an instance or a run.

@@ -3,12 +3,14 @@
 //! Exit status: 0 success, 1 failure (a cell failed, the disk refused a write), 2 bad input
 //! (spec or arguments), 130 interrupted by SIGINT (Ctrl-C), 143 by SIGTERM.
 
+mod bundle;
 mod cells;
 mod check;
 mod compare;
 mod fit;
 mod kinds;
 mod plot;
+mod replay;
 mod run;
 mod signals;
 mod slurm;
@@ -45,6 +47,10 @@ enum Command {
     Slurm(slurm::SlurmArgs),
     /// Whether two tables hold the same numbers, bit for bit (provenance ignored).
     Compare(compare::CompareArgs),
+    /// Recompute a sample of a results folder's (or a bundle's) cells and compare them bit for bit.
+    Replay(replay::ReplayArgs),
+    /// Write a results folder as one reproducible archive for a data deposit.
+    Bundle(bundle::BundleArgs),
     /// Extrapolate energy per spin to n → ∞ (finite-size scaling) with error bars.
     Fit(fit::FitArgs),
     /// Draw publication figures (SVG, PNG, PDF) with their data.
@@ -192,6 +198,8 @@ where
         Command::Status(a) => status::run(&a),
         Command::Slurm(a) => slurm::run(&a),
         Command::Compare(a) => compare::run(&a),
+        Command::Replay(a) => replay::run(&a),
+        Command::Bundle(a) => bundle::run(&a),
         Command::Fit(a) => fit::run(&a),
         Command::Plot(a) => plot::run(&a),
         Command::Theory(a) => theory::run(&a),

@@ -52,7 +52,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
         );
     }
 
-    super::signals::install(a.grace);
+    super::signals::install(a.grace, "writing the table");
 
     let host = crate::store::this_host().to_string();
     let prov = Provenance {
@@ -291,6 +291,7 @@ impl Outputs<'_> {
             finished: utc_now(),
             cells: counts.clone(),
             tables,
+            revisions: crate::store::manifest::revisions(spec),
             spec: spec.text.clone(),
         };
         files.push((manifest_path.clone(), manifest.to_toml().into_bytes()));

@@ -32,8 +32,10 @@ fn name(sig: i32) -> &'static str {
     }
 }
 
-/// Installs the handlers (once per process; later calls do nothing).
-pub fn install(grace_seconds: f64) {
+/// Installs the handlers (once per process; later calls do nothing). `then` says what the
+/// command does once the cells in flight are done (printed when a signal comes); an infinite
+/// grace is not printed.
+pub fn install(grace_seconds: f64, then: &'static str) {
     static ONCE: std::sync::Once = std::sync::Once::new();
     ONCE.call_once(|| {
         let mut signals = match signal_hook::iterator::Signals::new([SIGINT, SIGTERM]) {
@@ -55,8 +57,13 @@ pub fn install(grace_seconds: f64) {
                         std::process::exit(128 + sig);
                     }
                     RECEIVED.store(sig, Ordering::SeqCst);
+                    let limit = if grace_seconds.is_finite() {
+                        format!(" (at most {grace_seconds:.0} s)")
+                    } else {
+                        String::new()
+                    };
                     eprintln!(
-                        "\n{}: finishing the cells in flight (at most {grace_seconds:.0} s), then writing the table (a second signal leaves at once)",
+                        "\n{}: finishing the cells in flight{limit}, then {then} (a second signal leaves at once)",
                         name(sig)
                     );
                 }

@@ -19,6 +19,9 @@ pub struct Manifest {
     pub cells: CellCounts,
     /// SHA-256 of each table written with this manifest, by file name; readers check it.
     pub tables: std::collections::BTreeMap<String, String>,
+    /// The revisions and formats that decide the numbers (see [`revisions`]): `kiln replay`
+    /// compares them with the running binary's before it recomputes anything.
+    pub revisions: std::collections::BTreeMap<String, String>,
     /// The exact spec text.
     pub spec: String,
 }
@@ -31,6 +34,37 @@ pub struct CellCounts {
     pub computed: u64,
     pub failed: u64,
     pub skipped: u64,
+}
+
+/// What decides a spec's numbers besides the spec itself, by name: the cell-key, record and
+/// table formats, the family's sampler revision (`family.<name>`), the dense kernels' revision
+/// (`kernels`, mean-field families only) and each algorithm kind's revision (`kind.<name>`).
+/// Two binaries with the same map give the same numbers for the spec, bit for bit.
+pub fn revisions(spec: &crate::spec::Spec) -> std::collections::BTreeMap<String, String> {
+    let mut r = std::collections::BTreeMap::new();
+    r.insert("key_format".into(), crate::cell::KEY_FORMAT.into());
+    r.insert(
+        "record_format".into(),
+        crate::store::cache::RECORD_FORMAT.to_string(),
+    );
+    r.insert(
+        "table_format".into(),
+        crate::store::table::TABLE_FORMAT.into(),
+    );
+    r.insert(
+        format!("family.{}", spec.model.name()),
+        spec.model.revision().to_string(),
+    );
+    if spec.model.mixture().is_some() {
+        r.insert("kernels".into(), crate::kernels::REVISION.to_string());
+    }
+    for a in &spec.algorithms {
+        r.insert(
+            format!("kind.{}", a.algo.kind()),
+            a.algo.revision().to_string(),
+        );
+    }
+    r
 }
 
 impl Manifest {

@@ -1,6 +1,7 @@
 //! Storage: the content-addressed cache of records and artifacts, atomic file writes, the
 //! Parquet table and the manifest. Nothing here knows about numerics.
 
+pub mod bundle;
 pub mod cache;
 pub mod claims;
 pub mod fits;

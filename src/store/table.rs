@@ -241,24 +241,64 @@ fn manifest_checksum(path: &Path) -> Option<String> {
 /// decoder is caught), and its content must match the digest in its metadata (when it has
 /// one; tables written before the digest existed have none).
 pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
-    let bytes = std::fs::read(path).map_err(|source| StoreError::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
-    let damaged = |why: String| StoreError::Damaged {
-        path: path.to_path_buf(),
-        message: why,
-    };
+    let bytes = read_bytes(path)?;
     if manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(&bytes)) != want) {
         return Err(damaged(
-            "its bytes do not match the checksum its manifest.toml records".into(),
+            path,
+            "its bytes do not match the checksum its manifest.toml records",
         ));
     }
+    let (df, digest_ok) = decode(path, &bytes)?;
+    if !digest_ok {
+        return Err(damaged(
+            path,
+            "its content does not match the digest kiln wrote into it",
+        ));
+    }
+    Ok(df)
+}
+
+fn read_bytes(path: &Path) -> Result<Vec<u8>, StoreError> {
+    std::fs::read(path).map_err(|source| StoreError::Read {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+fn damaged(path: &Path, why: impl Into<String>) -> StoreError {
+    StoreError::Damaged {
+        path: path.to_path_buf(),
+        message: why.into(),
+    }
+}
+
+/// Reads a table that decodes, and lists what does not match instead of refusing it: the
+/// checksum its `manifest.toml` records, and the content digest in its metadata. `kiln replay`
+/// reads a folder this way, so it can report a changed table *and* recompute its cells. Data
+/// pages that do not match the checksum in the footer are still refused: they are not
+/// decoded at all.
+pub fn read_lenient(path: &Path) -> Result<(DataFrame, Vec<String>), StoreError> {
+    let bytes = read_bytes(path)?;
+    let mut findings = Vec::new();
+    if manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(&bytes)) != want) {
+        findings.push("its bytes do not match the checksum its manifest.toml records".to_string());
+    }
+    let (df, digest_ok) = decode(path, &bytes)?;
+    if !digest_ok {
+        findings.push("its content does not match the digest kiln wrote into it".into());
+    }
+    Ok((df, findings))
+}
+
+/// Decodes a table's bytes: refused if its data pages do not match the checksum in its footer
+/// (checked before they are decoded) or if the decoder fails (a panic is caught). Returns the
+/// frame and whether its content matches the digest in its metadata (true without one).
+fn decode(path: &Path, bytes: &[u8]) -> Result<(DataFrame, bool), StoreError> {
     quiet_panics_while_reading();
     READING.fetch_add(1, std::sync::atomic::Ordering::SeqCst);
     let decoded = std::panic::catch_unwind(
         || -> PolarsResult<(DataFrame, Option<String>, String)> {
-            let mut reader = ParquetReader::new(std::io::Cursor::new(&bytes[..]));
+            let mut reader = ParquetReader::new(std::io::Cursor::new(bytes));
             let kv = reader.get_metadata()?.key_value_metadata().clone();
             let value = |key: &str| {
                 kv.as_ref()
@@ -266,7 +306,7 @@ pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
                     .and_then(|k| k.value.clone())
             };
             if let Some(want) = value(PAGES_KEY) {
-                let end = pages_end(&bytes);
+                let end = pages_end(bytes);
                 if end.is_none_or(|e| hex::encode(Sha256::digest(&bytes[..e])) != want) {
                     polars_bail!(ComputeError: "its data pages do not match the checksum in its footer");
                 }
@@ -278,17 +318,11 @@ pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
         },
     );
     READING.fetch_sub(1, std::sync::atomic::Ordering::SeqCst);
-    let (df, digest, got) = match decoded {
-        Ok(Ok(x)) => x,
-        Ok(Err(e)) => return Err(damaged(format!("not a readable Parquet table ({e})"))),
-        Err(_) => return Err(damaged("the Parquet decoder failed on it".into())),
-    };
-    if digest.is_some_and(|want| got != want) {
-        return Err(damaged(
-            "its content does not match the digest kiln wrote into it".into(),
-        ));
+    match decoded {
+        Ok(Ok((df, digest, got))) => Ok((df, digest.is_none_or(|want| got == want))),
+        Ok(Err(e)) => Err(damaged(path, format!("not a readable Parquet table ({e})"))),
+        Err(_) => Err(damaged(path, "the Parquet decoder failed on it")),
     }
-    Ok(df)
 }
 
 /// Pairwise overlaps of replica outputs: one row per (algorithm, n, seed, a < b).

@@ -17,6 +17,7 @@ mod pins;
 mod plotting;
 mod registry;
 mod reliability;
+mod replay;
 mod rerun;
 mod tables;
 mod theory;
