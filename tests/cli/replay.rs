@@ -87,6 +87,7 @@ fn replay_passes_on_every_committed_example() {
         let v = json(&o);
         assert_eq!(o.status.code(), Some(0), "{e}: {v}");
         assert_eq!(v["revisions"], "agree", "{e}");
+        assert_eq!(v["revisions_judged"], "by the manifest's list", "{e}");
         assert_eq!(v["different"], 0, "{e}");
         assert!(v["replayed"].as_u64().unwrap() >= 3, "{e}: {v}");
         assert_eq!(v["integrity"].as_array().unwrap().len(), 0, "{e}: {v}");
