@@ -7,6 +7,7 @@ pub mod amp;
 pub mod anneal;
 pub mod descent;
 pub mod exhaustive;
+pub mod glauber;
 pub mod gradient;
 pub mod hessian;
 pub mod iamp;
@@ -127,6 +128,7 @@ const BUILTIN: &[Kind] = &[
     hessian::KIND,
     amp::KIND,
     iamp::KIND,
+    glauber::KIND,
 ];
 
 /// The kinds: the built-in list, then those registered at run time.

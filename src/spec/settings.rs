@@ -228,7 +228,7 @@ impl Settings<'_> {
             None => Ok(None),
             Some(Value::Array(_)) => Err(self.fail(
                 key,
-                "amp takes one inverse temperature, not a schedule",
+                "this kind takes one inverse temperature, not a schedule",
                 "write beta = 1.5",
             )),
             Some(_) => {

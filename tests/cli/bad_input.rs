@@ -144,7 +144,7 @@ fn beta_form_and_foreign_settings() {
             .replace("sweeps = 20\n", ""),
         &[
             "key `algorithm[2].beta`",
-            "amp takes one inverse temperature, not a schedule",
+            "this kind takes one inverse temperature, not a schedule",
         ],
     );
     refuse(

@@ -19,5 +19,6 @@ mod registry;
 mod reliability;
 mod replay;
 mod rerun;
+mod samplers;
 mod tables;
 mod theory;

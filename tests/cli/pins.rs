@@ -111,6 +111,14 @@ const ALGORITHM_PINS: &[Pin] = &[
         "0.51153388586043",
         "3ac065e7f5d8169b",
     ),
+    (
+        "glauber",
+        1,
+        "sk",
+        24,
+        "0.6226103018494511",
+        "1367990900fcac77",
+    ),
 ];
 
 /// The model of a pin: its family with the parameters of the pin table, through the spec

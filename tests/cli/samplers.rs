@@ -1,0 +1,128 @@
+//! Samplers at positive temperature through the whole pipeline: the replica overlaps of
+//! Glauber samples against a classical high-temperature law, and the refusals of bad settings.
+
+use crate::util::{Work, mean_se};
+use kiln::store::table;
+
+/// SK at β < 1 without a field: two independent samples of the Gibbs measure have overlap R
+/// with mean 0 and n·E⟨R²⟩ → 1/(1 − β²) (a classical high-temperature result for kiln's
+/// normalisation H = n^{-1/2} Σ_{i<j} J_ij σ_i σ_j, β_c = 1; recalled from Talagrand, *Mean
+/// Field Models for Spin Glasses* vol. I (2011), ch. 1, page not checked).
+///
+/// β = 0.5, n = 400, 96 instances × 4 Glauber replicas of 300 sweeps (6 pairs each). The
+/// tolerance is 4 standard errors of the per-instance means (pairs of one instance are not
+/// independent, instances are), plus 3/n for the finite-n correction.
+#[test]
+fn glauber_replica_overlaps_obey_the_high_temperature_law() {
+    let w = Work::new();
+    let spec = w.spec(
+        "hot.toml",
+        r#"[experiment]
+name = "hot"
+[model]
+family = "sk"
+[sweep]
+sizes = [400]
+seeds = 96
+epsilons = [0.0]
+replicas = 4
+[[algorithm]]
+kind = "glauber"
+beta = 0.5
+sweeps = 300
+"#,
+    );
+    w.run_json(&spec, &[]);
+    let pairs = table::read(&w.path().join("results/hot/overlaps.parquet")).unwrap();
+    let col = |name: &str| -> Vec<f64> {
+        pairs
+            .column(name)
+            .unwrap()
+            .cast(&polars::prelude::DataType::Float64)
+            .unwrap()
+            .f64()
+            .unwrap()
+            .iter()
+            .map(|x| x.unwrap())
+            .collect()
+    };
+    let (q, seed) = (col("overlap"), col("seed"));
+    assert_eq!(q.len(), 96 * 6);
+    let n = 400.0;
+    let mut by_seed: std::collections::BTreeMap<u64, (f64, f64, f64)> = Default::default();
+    for (&x, &s) in q.iter().zip(&seed) {
+        let e = by_seed.entry(s as u64).or_default();
+        e.0 += x;
+        e.1 += n * x * x;
+        e.2 += 1.0;
+    }
+    let means: Vec<f64> = by_seed.values().map(|v| v.0 / v.2).collect();
+    let squares: Vec<f64> = by_seed.values().map(|v| v.1 / v.2).collect();
+    let (m, se_m) = mean_se(&means);
+    let (r2, se_r2) = mean_se(&squares);
+    let want = 1.0 / (1.0 - 0.25);
+    eprintln!("mean overlap {m} ± {se_m}; n·E⟨R²⟩ = {r2} ± {se_r2} (law: {want})");
+    assert!(m.abs() < 4.0 * se_m, "mean overlap {m} ± {se_m}");
+    assert!(
+        (r2 - want).abs() < 4.0 * se_r2 + 3.0 / n,
+        "n·E⟨R²⟩ = {r2} ± {se_r2}, want {want}"
+    );
+    // The law has power here (measured ± 0.07): β = 0 would give 1, β = 0.8 would give 2.8.
+    assert!(se_r2 < 0.1, "too noisy to tell: ± {se_r2}");
+}
+
+/// Bad sampler settings: one clear message each, exit 2, nothing written.
+#[test]
+fn bad_sampler_settings_are_refused() {
+    let base = r#"[experiment]
+name = "bad"
+[model]
+family = "sk"
+[sweep]
+sizes = [16]
+seeds = 2
+[[algorithm]]
+kind = "glauber"
+"#;
+    let sphere = "family = \"sphere\"\nxi = { 3 = 0.5 }";
+    for (extra, model, expected) in [
+        (
+            "beta = 0.0\n",
+            "family = \"sk\"",
+            "not an inverse temperature",
+        ),
+        (
+            "beta = -1.0\n",
+            "family = \"sk\"",
+            "not an inverse temperature",
+        ),
+        (
+            "beta = [0.1, 2.0]\n",
+            "family = \"sk\"",
+            "one inverse temperature",
+        ),
+        ("scan = \"diagonal\"\n", "family = \"sk\"", "unknown scan"),
+        ("", sphere, "glauber"),
+    ] {
+        let text = base.replace("family = \"sk\"", model) + extra;
+        let w = Work::new();
+        let spec = w.spec("bad.toml", &text);
+        let o = w.kiln(&["run", spec.to_str().unwrap()]);
+        let err = crate::util::stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{extra}: {err}");
+        assert!(err.contains(expected), "{extra}{model}: {err}");
+        assert!(err.contains("bad.toml"), "{err}");
+        assert!(!w.path().join("results").exists());
+    }
+    let w = Work::new();
+    let spec = w.spec(
+        "bad.toml",
+        &base.replace(
+            "kind = \"glauber\"",
+            "kind = \"tempering\"\noutput = \"mean\"",
+        ),
+    );
+    let o = w.kiln(&["run", spec.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(crate::util::stderr(&o).contains("unknown output `mean`"));
+}
