@@ -75,6 +75,33 @@ pub fn replica_overlaps(outs: &[Vec<f64>]) -> (Vec<(u32, u32, f64)>, Vec<([u32; 
     (pairs, triples)
 }
 
+/// Disorder chaos of K independent samples on J (`on_j`) and K on J' (`on_jp`), sample a on J'
+/// being the coupled rerun of sample a on J. Returns the means of f(R) over: pairs a < b on J
+/// (within), pairs a < b on J' (within, perturbed), pairs a ≠ b across (cross: independent
+/// samples of μ_J and μ_J'), and the K coupled pairs (a, a); f(R) = |R| for models whose σ and
+/// −σ are one state, else R.
+pub fn chaos_overlaps(on_j: &[Vec<f64>], on_jp: &[Vec<f64>], symmetric: bool) -> [f64; 4] {
+    let f = |x: &[f64], y: &[f64]| overlap_sym(overlap_points(x, y), symmetric);
+    let k = on_j.len().min(on_jp.len());
+    let mean = |v: Vec<f64>| v.iter().sum::<f64>() / v.len().max(1) as f64;
+    let mut within = Vec::new();
+    let mut within_p = Vec::new();
+    let mut cross = Vec::new();
+    for a in 0..k {
+        for b in 0..k {
+            if a < b {
+                within.push(f(&on_j[a], &on_j[b]));
+                within_p.push(f(&on_jp[a], &on_jp[b]));
+            }
+            if a != b {
+                cross.push(f(&on_j[a], &on_jp[b]));
+            }
+        }
+    }
+    let coupled = (0..k).map(|a| f(&on_j[a], &on_jp[a])).collect();
+    [mean(within), mean(within_p), mean(cross), mean(coupled)]
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -68,12 +68,14 @@ fn cached_record(
     cell: &Cell,
     damaged: &Mutex<Vec<String>>,
 ) -> Result<Option<Record>, StoreError> {
-    // A reference cell needs its spins too; check them even when the record is gone, so a
-    // damaged artifact is reported and moved aside rather than silently overwritten.
-    let spins_ok = !cell.is_base()
+    // A reference cell (with replicas, every cell) keeps its output too; check it even when
+    // the record is gone, so a damaged artifact is reported and moved aside rather than
+    // silently overwritten.
+    let keeps_output = cell.is_base() || spec.replicas > 1;
+    let spins_ok = !keeps_output
         || verified(cache.read_spins(&cell.key)?, damaged)
             .is_some_and(|s| s.len() as u64 == cell.n);
-    let point_ok = !cell.is_base()
+    let point_ok = !keeps_output
         || !keeps_point(spec, cell)
         || verified(cache.read_point(&cell.key)?, damaged)
             .is_some_and(|x| x.len() as u64 == cell.n);
@@ -561,7 +563,7 @@ fn compute_cell(
             }
         };
         let inst = spec.model.sample(n, &cell.instance, cell.epsilon);
-        let mut rng = stream(&cell.run, Purpose::Algorithm, 0);
+        let mut rng = stream(&cell.run, Purpose::Algorithm, cell.replica as u64);
         let out = algo
             .run(&inst, &mut rng)
             .map_err(|e| CellError::Failed(e.to_string()))?;
@@ -591,6 +593,11 @@ fn compute_cell(
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
+        // With replicas, the outputs on J' are kept for the disorder-chaos table.
+        if spec.replicas > 1 {
+            spins = Some(out.spins);
+            point = out.point.filter(|_| keeps_point(spec, cell));
+        }
     }
     // A non-finite energy is not a result: the cell fails with the reason (shown by the run
     // and by `kiln status`), keeps no record, and is tried again by the next run.

@@ -379,7 +379,8 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
 
     let cells = sizes.len() as u128
         * seeds.len() as u128
-        * (epsilons.len() as u128 + replicas as u128 - 1)
+        * epsilons.len() as u128
+        * replicas as u128
         * algorithms.len() as u128;
     if cells > MAX_CELLS {
         return Err(loc.at(

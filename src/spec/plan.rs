@@ -9,7 +9,10 @@
 //!   the same cell at ε = 0.
 //!
 //! - replica r ≥ 1 = the cell at ε = 0 with `replica: r` added: an independent run of the same
-//!   algorithm on the same instance (algorithm stream index r).
+//!   algorithm on the same instance (algorithm stream index r); and for each ε > 0 the cell
+//!   with `replica: r` added, which reruns replica r on the correlated instance with the same
+//!   stream (its base is replica r at ε = 0). Together they give K independent samples on J
+//!   and K on J' (`chaos.parquet`).
 //!
 //! Labels, notes, the experiment name and the order of entries in the spec are not part of any
 //! key. Plans are ordered by (algorithm as listed, n as listed, seed as listed, ε as listed).
@@ -32,7 +35,7 @@ pub struct Cell {
     pub instance: Id,
     pub run: Id,
     /// Replica index: 0 for the reference run and every ε; r ≥ 1 for the extra independent
-    /// runs at ε = 0 (`sweep.replicas`), whose algorithm stream has index r.
+    /// runs (`sweep.replicas`), whose algorithm stream has index r, at ε = 0 and at every ε.
     pub replica: u32,
 }
 
@@ -107,25 +110,41 @@ pub fn expand(spec: &Spec) -> Plan {
                     });
                 }
                 for r in 1..spec.replicas {
-                    let key = Key(Canon::map()
-                        .with("model", spec.model.canon())
-                        .with("n", n)
-                        .with("seed", seed)
-                        .with("algorithm", algo.clone())
-                        .with("epsilon", 0.0)
-                        .with("replica", r as u64)
-                        .hash("cell"));
+                    let replica_key = |eps: f64| {
+                        Key(Canon::map()
+                            .with("model", spec.model.canon())
+                            .with("n", n)
+                            .with("seed", seed)
+                            .with("algorithm", algo.clone())
+                            .with("epsilon", eps)
+                            .with("replica", r as u64)
+                            .hash("cell"))
+                    };
+                    let base = replica_key(0.0);
                     cells.push(Cell {
                         algo: ai,
                         n,
                         seed,
                         epsilon: 0.0,
-                        key,
-                        base: key,
+                        key: base,
+                        base,
                         instance,
                         run,
                         replica: r,
                     });
+                    for &epsilon in spec.epsilons.iter().filter(|&&e| e > 0.0) {
+                        cells.push(Cell {
+                            algo: ai,
+                            n,
+                            seed,
+                            epsilon,
+                            key: replica_key(epsilon),
+                            base,
+                            instance,
+                            run,
+                            replica: r,
+                        });
+                    }
                 }
             }
         }

@@ -428,6 +428,62 @@ impl Triples {
     }
 }
 
+/// Disorder chaos: per (algorithm, n, seed, ε > 0), mean overlaps of K independent samples on
+/// J and K on the correlated J' (see [`crate::measure::chaos_overlaps`]).
+#[derive(Default)]
+pub struct Chaos {
+    algorithm: Vec<String>,
+    n: Vec<u64>,
+    seed: Vec<u64>,
+    epsilon: Vec<f64>,
+    replicas: Vec<u32>,
+    q: [Vec<f64>; 4],
+}
+
+impl Chaos {
+    #[allow(clippy::too_many_arguments)]
+    pub fn push(
+        &mut self,
+        algorithm: &str,
+        n: u64,
+        seed: u64,
+        epsilon: f64,
+        replicas: u32,
+        q: [f64; 4],
+    ) {
+        self.algorithm.push(algorithm.into());
+        self.n.push(n);
+        self.seed.push(seed);
+        self.epsilon.push(epsilon);
+        self.replicas.push(replicas);
+        for (v, x) in self.q.iter_mut().zip(q) {
+            v.push(x);
+        }
+    }
+
+    /// `symmetric`: whether the overlaps are |R| (σ and −σ one state) or R; recorded in a
+    /// column so nobody confuses them.
+    pub fn encode(
+        &self,
+        path: &Path,
+        experiment: &str,
+        symmetric: bool,
+    ) -> Result<Vec<u8>, StoreError> {
+        let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        let [w, wp, c, k] = self.q.clone();
+        cols.extend([
+            Column::new("epsilon".into(), self.epsilon.clone()),
+            Column::new("replicas".into(), self.replicas.clone()),
+            Column::new("overlap_within".into(), w),
+            Column::new("overlap_within_perturbed".into(), wp),
+            Column::new("overlap_cross".into(), c),
+            Column::new("overlap_coupled".into(), k),
+            Column::new("modulo_flip".into(), vec![symmetric; self.n.len()]),
+        ]);
+        encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
+    }
+}
+
 /// The columns naming a replica group: experiment, algorithm, n, seed.
 fn group_columns(experiment: &str, algorithm: &[String], n: &[u64], seed: &[u64]) -> Vec<Column> {
     vec![

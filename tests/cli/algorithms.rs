@@ -227,8 +227,10 @@ fn replica_overlaps_and_sorted_triples() {
         ),
     );
     let v = w.run_json(&rep, &[]);
-    // 2 algorithms × 2 sizes × 3 seeds × 2 new replicas computed; the rest cached.
-    assert_eq!(counts(&v), (24, 24));
+    // 2 algorithms × 2 sizes × 3 seeds: 2 new replicas at ε = 0 and 2 at ε = 0.1 (48), and
+    // the 12 ε = 0.1 cells once more, which now keep their outputs for `chaos.parquet` (their
+    // numbers and keys are unchanged); the 12 references are cached.
+    assert_eq!(counts(&v), (60, 12));
     let after = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
     assert_eq!(
         before.column("cell_key").unwrap(),
@@ -314,13 +316,23 @@ fn replica_overlaps_and_sorted_triples() {
             .join("results/small/figures/overlaps-d.png")
             .is_file()
     );
-    // Deterministic: a second run (all cached) rewrites identical overlap tables.
-    let first = std::fs::read(w.path().join("results/small/overlaps.parquet")).unwrap();
+    // Deterministic: a second run (all cached) rewrites identical replica tables.
+    let read = |f: &str| std::fs::read(w.path().join("results/small").join(f)).unwrap();
+    let first = (read("overlaps.parquet"), read("chaos.parquet"));
     let v = w.run_json(&rep, &[]);
-    assert_eq!(counts(&v), (0, 48));
-    assert_eq!(
-        first,
-        std::fs::read(w.path().join("results/small/overlaps.parquet")).unwrap()
+    assert_eq!(counts(&v), (0, 72));
+    assert_eq!(first, (read("overlaps.parquet"), read("chaos.parquet")));
+    // One chaos row per (algorithm, n, seed) at ε = 0.1, from K = 3 samples on each instance.
+    let chaos = table::read(&w.path().join("results/small/chaos.parquet")).unwrap();
+    assert_eq!(chaos.height(), 12);
+    assert!(
+        chaos
+            .column("replicas")
+            .unwrap()
+            .u32()
+            .unwrap()
+            .iter()
+            .all(|r| r == Some(3))
     );
 }
 
@@ -398,6 +410,10 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             AlgoSpec::new(amp::Params::default()),
         ),
         (cube.clone(), AlgoSpec::new(iamp::Params::default())),
+        (
+            cube.clone(),
+            AlgoSpec::new(kiln::algo::glauber::Params::default()),
+        ),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {
@@ -418,9 +434,12 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         let kind = kiln::algo::find(a.kind()).expect("a registered kind");
         for key in kind.keys {
             // tempering's `temperatures` is canonically "replicas", its name before a rename
-            // (kept so cache keys did not change).
+            // (kept so cache keys did not change); its `output` enters only when it is not the
+            // default "best" (so the keys of cells from before the sampling mode did not
+            // change): checked with `output = "sample"` below.
             let canonical = match (a.kind(), key.name) {
                 ("tempering", "temperatures") => "replicas",
+                ("tempering", "output") => continue,
                 (_, name) => name,
             };
             assert!(
@@ -432,6 +451,15 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         }
         kinds.insert(a.kind());
     }
+    let sampling = AlgoSpec::new(tempering::Params {
+        sample: true,
+        ..Default::default()
+    });
+    assert!(sampling.settings().contains("\"output\":\"sample\""));
+    assert_ne!(
+        sampling.settings(),
+        AlgoSpec::new(tempering::Params::default()).settings()
+    );
     assert_eq!(
         kinds.len(),
         kiln::algo::builtin().len(),
