@@ -197,15 +197,16 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let (gs, l, m, q0) = sphere::ground_state(&xi);
     let full_cs = sphere::ground_state_full(&xi, super::plot::SPHERE_INTERVALS);
     let (alg, condition) = sphere::algorithmic(&xi);
-    let fs = crate::theory::full::FullSettings::default();
-    let temps: Vec<(f64, f64, f64, crate::theory::full::FullRsb)> = a
+    type AtBeta = (f64, f64, f64, crate::theory::full::FullRsb, f64);
+    let temps: Vec<AtBeta> = a
         .beta
         .iter()
         .map(|&b| {
             let (p, q) = crate::theory::temperature::rs_free_energy(&xi, b);
-            (b, p, q, crate::theory::full::free_energy(&xi, b, &fs))
+            let (sol, e) = crate::theory::cached::at_temperature(&cache, &xi, b)?;
+            Ok((b, p, q, sol, e))
         })
-        .collect();
+        .collect::<Result<_, crate::store::StoreError>>()?;
     let mixture = xi
         .terms
         .iter()
@@ -228,8 +229,8 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 "best": {"value": best.0, "solution": best.1},
             },
             "order_parameters": csv_path.display().to_string(),
-            "temperature_rs": temps.iter().map(|(b, p, q, _)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
-            "temperature": temps.iter().map(|(b, _, _, f)| serde_json::json!({"beta": b, "free_energy": f.value, "q": f.q, "x": f.m})).collect::<Vec<_>>(),
+            "temperature_rs": temps.iter().map(|(b, p, q, _, _)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
+            "temperature": temps.iter().map(|(b, _, _, f, e)| serde_json::json!({"beta": b, "free_energy": f.value, "energy": e, "q_max": crate::theory::full::largest_overlap(f), "q": f.q, "x": f.m})).collect::<Vec<_>>(),
             "sphere": {
                 "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
                 "ground_state": {"value": full_cs.value, "structure": full_cs.structure(),
@@ -320,11 +321,12 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 .join(", ")
         );
         if !temps.is_empty() {
-            o += "\ncube, positive temperature: lim (1/n) E log Σ e^{βH} (Parisi, x on 16 q-intervals) and the replica-symmetric bound\n";
-            for (b, p, q, f) in &temps {
+            o += "\ncube, positive temperature: free energy lim (1/n) E log Σ e^{βH} (Parisi, x on 16 q-intervals\nrefined below q_max) and the replica-symmetric bound; Gibbs mean energy per spin E = dP/dβ;\nlargest overlap q_max of the Parisi order parameter\n";
+            for (b, p, q, f, e) in &temps {
                 o += &format!(
-                    "  β = {b:<8} Parisi {:.8}   RS {p:.8} (q = {q:.6})\n",
-                    f.value
+                    "  β = {b:<8} Parisi {:.8}   E {e:.6}   q_max {:.4}   RS {p:.8} (q = {q:.6})\n",
+                    f.value,
+                    crate::theory::full::largest_overlap(f)
                 );
             }
         }

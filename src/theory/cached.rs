@@ -1,4 +1,4 @@
-//! Zero-temperature solutions through the cache: each solve is keyed by the mixture, the
+//! Solutions through the cache (zero temperature, and the free energy at β): each solve is keyed by the mixture, the
 //! solver's settings and its revision, stored checksummed (see [`crate::store::theory`]), and
 //! reused by `kiln theory`, `kiln plot` and incremental AMP's callers.
 
@@ -82,6 +82,38 @@ pub fn algorithmic(cache: &Cache, xi: &Mixture) -> Result<(full::FullRsb, Vec<f6
     v["starts"] = serde_json::json!(starts);
     crate::store::theory::write(cache, &hex_key, &v)?;
     Ok((sol, starts))
+}
+
+/// Re-solves on the grid below q_max in [`at_temperature`].
+const TEMPERATURE_ROUNDS: usize = 2;
+
+/// The Parisi free energy at inverse temperature β ([`full::free_energy_refined`], default
+/// settings) with the Gibbs mean energy per spin E(β) = dP/dβ ([`full::energy_at`]), from the
+/// cache or solved and stored: (solution, E(β)).
+pub fn at_temperature(
+    cache: &Cache,
+    xi: &Mixture,
+    beta: f64,
+) -> Result<(full::FullRsb, f64), StoreError> {
+    let s = full::FullSettings::default();
+    let hex_key = hex::encode(
+        Canon::map()
+            .with("settings", settings_key(xi, &s, "theory-beta-settings"))
+            .with("beta", beta)
+            .with("rounds", TEMPERATURE_ROUNDS)
+            .hash("theory-beta"),
+    );
+    if let Lookup::Hit(v) = crate::store::theory::read(cache, &hex_key)?
+        && let (Some(sol), Some(e)) = (read_full(&v), v["energy"].as_f64())
+    {
+        return Ok((sol, e));
+    }
+    let sol = full::free_energy_refined(xi, beta, &s, TEMPERATURE_ROUNDS);
+    let e = full::energy_at(xi, beta, &s, &sol);
+    let mut v = full_json(&hex_key, &sol);
+    v["energy"] = serde_json::json!(e);
+    crate::store::theory::write(cache, &hex_key, &v)?;
+    Ok((sol, e))
 }
 
 /// The k-step RSB solution, from the cache or solved and stored.

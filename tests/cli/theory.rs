@@ -44,6 +44,10 @@ fn theory_for_the_default_model() {
         (p - (std::f64::consts::LN_2 + 0.0625)).abs() < 1e-6,
         "Parisi at β = 0.5: {p}"
     );
+    // Its β-derivative, the Gibbs mean energy per spin: β/2 (same source); no overlap.
+    let e = v["temperature"][0]["energy"].as_f64().unwrap();
+    assert!((e - 0.25).abs() < 1e-6, "E(0.5) = {e}");
+    assert_eq!(v["temperature"][0]["q_max"].as_f64(), Some(0.0));
     // The order parameter table and the cached solution.
     let csv = std::fs::read_to_string(w.path().join("results/default/theory.csv")).unwrap();
     assert!(csv.lines().any(|l| l.starts_with("1rsb,1,")), "{csv}");
@@ -56,8 +60,8 @@ fn theory_for_the_default_model() {
         .collect();
     assert_eq!(
         cached.len(),
-        3,
-        "the 1RSB, the full-RSB and the algorithmic-threshold solutions"
+        4,
+        "the 1RSB, the full-RSB, the algorithmic-threshold and the β = 0.5 solutions"
     );
     // A second run reads the cache and reports the same numbers.
     let o = w.kiln(&["theory", "--k", "1", "--json"]);
@@ -89,7 +93,7 @@ fn theory_for_the_default_model() {
     let r: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(
         (r["theory"].as_u64(), r["damaged"].as_u64()),
-        (Some(3), Some(1)),
+        (Some(4), Some(1)),
         "{r}"
     );
     assert!(w.path().join("results/.cache/quarantine").is_dir());
