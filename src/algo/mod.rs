@@ -11,6 +11,7 @@ pub mod glauber;
 pub mod gradient;
 pub mod hessian;
 pub mod iamp;
+pub mod langevin;
 pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
@@ -129,6 +130,7 @@ const BUILTIN: &[Kind] = &[
     amp::KIND,
     iamp::KIND,
     glauber::KIND,
+    langevin::KIND,
 ];
 
 /// The kinds: the built-in list, then those registered at run time.

@@ -414,6 +414,10 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             cube.clone(),
             AlgoSpec::new(kiln::algo::glauber::Params::default()),
         ),
+        (
+            sphere.clone(),
+            AlgoSpec::new(kiln::algo::langevin::Params::default()),
+        ),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {

@@ -119,6 +119,14 @@ const ALGORITHM_PINS: &[Pin] = &[
         "0.6226103018494511",
         "1367990900fcac77",
     ),
+    (
+        "langevin",
+        1,
+        "sphere",
+        24,
+        "0.2148125853226299",
+        "a140970981280ef9",
+    ),
 ];
 
 /// The model of a pin: its family with the parameters of the pin table, through the spec
