@@ -95,6 +95,7 @@ pub fn run<M: SpinModel>(_p: &Params, d: &M) -> Output {
             sweeps: 1,
             converged: true,
             relaxation: None,
+            ..Default::default()
         },
     }
 }

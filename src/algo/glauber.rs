@@ -19,8 +19,9 @@ use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
 
-/// Revision of this algorithm's code. Bump when its numbers change.
-pub const REVISION: u32 = 1;
+/// Revision of this algorithm's code. Bump when its numbers change (2: records the mixing
+/// diagnostics `autocorrelation_time` and `overlap_initial`; the samples are unchanged).
+pub const REVISION: u32 = 2;
 
 /// Order in which sites are visited.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -122,9 +123,16 @@ impl Algorithm for Params {
 }
 
 /// Samples from a random start drawn from `rng`.
+///
+/// With the sample it reports the mixing diagnostics: the integrated autocorrelation time of
+/// the energy per sweep over the second half of the run, and the overlap with the start.
 pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
-    run_observed(p, d, rng, |_, _| {})
+    let mut trace = crate::measure::Trace::new(TRACE_BLOCKS);
+    run_observed(p, d, rng, |_, e| trace.push(e)).with_mixing(trace.autocorrelation_time())
 }
+
+/// Block means kept of the energy trace (see [`crate::measure::Trace`]).
+pub const TRACE_BLOCKS: usize = 4096;
 
 /// [`run`], calling `seen(sweep, H)` with the energy after every sweep (for traces and tests;
 /// the draws are the same). H is tracked from the start's energy by the exact changes of the
@@ -137,6 +145,7 @@ pub fn run_observed<M: SpinModel>(
 ) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
+    let start = s.clone();
     let mut h = vec![0.0; n];
     d.fields(&s, &mut h);
     let mut energy = d.energy(&s);
@@ -160,6 +169,7 @@ pub fn run_observed<M: SpinModel>(
     }
     info.sweeps = p.sweeps;
     info.converged = true;
+    info.overlap_initial = Some(crate::measure::overlap(&start, &s));
     Output {
         spins: s,
         point: None,

@@ -20,8 +20,9 @@ use crate::model::{Instance, ModelSpec};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
 
-/// Revision of this algorithm's code. Bump when its numbers change.
-pub const REVISION: u32 = 1;
+/// Revision of this algorithm's code. Bump when its numbers change (2: records the mixing
+/// diagnostics `autocorrelation_time` and `overlap_initial`; the samples are unchanged).
+pub const REVISION: u32 = 2;
 
 /// Settings of the sampler.
 #[derive(Clone, Debug, PartialEq)]
@@ -122,8 +123,17 @@ fn tangent(v: &mut [f64], x: &[f64]) {
 }
 
 /// Samples from a random start drawn from `rng`.
+///
+/// With the sample it reports the mixing diagnostics: the integrated autocorrelation time of
+/// H over the second half of the run (in steps), and the overlap x_0·x/n with the start.
 pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
-    run_observed(p, m, rng, |_, _| {})
+    let mut trace = crate::measure::Trace::new(super::glauber::TRACE_BLOCKS);
+    run_observed(p, m, rng, |t, e| {
+        if t > 0 {
+            trace.push(e)
+        }
+    })
+    .with_mixing(trace.autocorrelation_time())
 }
 
 /// [`run`], calling `seen(step, H(x))` after every step (H at the new point is computed with
@@ -138,6 +148,7 @@ pub fn run_observed(
     let n = m.n();
     let mut x: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
     super::gradient::project(&mut x);
+    let start = x.clone();
     let mut g = vec![0.0; n];
     let mut xi = vec![0.0; n];
     let drift = p.step * p.beta;
@@ -156,13 +167,14 @@ pub fn run_observed(
     seen(p.steps, m.value_grad(&x, &mut g));
     Output {
         spins: super::signs(&x),
-        point: Some(x),
         info: Info {
             iterations: p.steps,
             sweeps: p.steps,
             converged: true,
-            relaxation: None,
+            overlap_initial: Some(crate::measure::overlap_points(&start, &x)),
+            ..Default::default()
         },
+        point: Some(x),
     }
 }
 

@@ -36,6 +36,12 @@ pub struct Info {
     /// Value per spin of a relaxation the algorithm solved before rounding (lowrank), or of
     /// its pre-rounding point (amp, iamp: H(m)/n).
     pub relaxation: Option<f64>,
+    /// Samplers: the integrated autocorrelation time of the energy over the second half of
+    /// the run, in sweeps (steps for Langevin), by Sokal's windowing
+    /// ([`crate::measure::integrated_autocorrelation`]).
+    pub autocorrelation_time: Option<f64>,
+    /// Samplers: the overlap of the output with the start, σ_0·σ/n (x_0·x/n on the sphere).
+    pub overlap_initial: Option<f64>,
 }
 
 /// The result of one run.
@@ -47,6 +53,14 @@ pub struct Output {
     /// sphere it is the output.
     pub point: Option<Vec<f64>>,
     pub info: Info,
+}
+
+impl Output {
+    /// The output with a sampler's autocorrelation time recorded.
+    pub fn with_mixing(mut self, autocorrelation_time: Option<f64>) -> Output {
+        self.info.autocorrelation_time = autocorrelation_time;
+        self
+    }
 }
 
 /// Numerical failure, with the data needed to understand it.

@@ -139,6 +139,7 @@ pub fn run(
                 sweeps: 0,
                 converged: e.converged,
                 relaxation: None,
+                ..Default::default()
             },
         },
         e.value,

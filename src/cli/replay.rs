@@ -296,10 +296,10 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
                 continue;
             }
             let theirs = exact(col, r)?;
-            let ours = match replayed.column(name) {
-                Ok(c) => exact(c, q)?,
-                Err(_) => ("(no such column)".into(), "(no such column)".into()),
+            let Ok(ours) = replayed.column(name) else {
+                continue;
             };
+            let ours = exact(ours, q)?;
             if theirs.0 != ours.0 {
                 first = Some((name.to_string(), theirs.1, ours.1));
                 break;
@@ -327,6 +327,21 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
         .iter()
         .map(|(k, m)| format!("cell {}: {m}", &k[..12.min(k.len())]))
         .collect();
+    let names = |d: &DataFrame| -> BTreeSet<String> {
+        d.get_column_names().iter().map(|c| c.to_string()).collect()
+    };
+    let (theirs, ours) = (names(&df), names(&replayed));
+    let unshared: Vec<String> = theirs
+        .symmetric_difference(&ours)
+        .map(|c| {
+            let side = if theirs.contains(c) {
+                "folder"
+            } else {
+                "this kiln"
+            };
+            format!("{c} (only in {side})")
+        })
+        .collect();
     let n_replayed: usize = strata.values().map(|s| s.replayed).sum();
     let n_identical: usize = strata.values().map(|s| s.identical).sum();
     let wall = t0.elapsed().as_secs_f64();
@@ -341,6 +356,7 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
             "chosen": sample.chosen,
             "checksums": sums.as_ref().map(|r| serde_json::json!({"checked": r.checked, "failed": r.failed.len(), "unlisted": r.unlisted})),
             "integrity": integrity,
+            "columns_not_compared": unshared,
             "seed": a.seed,
             "budget_seconds": a.budget,
             "estimated_seconds": sample.spent,
@@ -387,6 +403,12 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
         }
         for f in &integrity {
             s += &format!("  integrity: {f}\n");
+        }
+        if !unshared.is_empty() {
+            s += &format!(
+                "  columns not compared (the table formats differ): {}\n",
+                unshared.join(", ")
+            );
         }
         s += &format!(
             "\n  {:<16} {:>7} {:>7}  {:>8} {:>9} {:>9}  note\n",
@@ -497,7 +519,8 @@ fn revision_mismatches(
     let mut out = Vec::new();
     if let Some(theirs) = manifest.get("revisions").and_then(|v| v.as_table()) {
         let names: BTreeSet<&String> = ours.keys().chain(theirs.keys()).collect();
-        for k in names {
+        // The table format only adds columns; the shared ones are compared.
+        for k in names.into_iter().filter(|k| *k != "table_format") {
             let t = theirs.get(k).and_then(|v| v.as_str());
             let o = ours.get(k).map(String::as_str);
             if t != o {

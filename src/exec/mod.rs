@@ -517,6 +517,8 @@ fn compute_cell(
         cut_fraction: None,
         relaxation: None,
         distance_point: None,
+        autocorrelation_time: None,
+        overlap_initial: None,
         replica: cell.replica,
         wall_seconds: 0.0,
         host: prov.host.clone(),
@@ -532,6 +534,8 @@ fn compute_cell(
         record.energy_reduced = reduced;
         record.cut_fraction = cut;
         record.relaxation = out.info.relaxation;
+        record.autocorrelation_time = out.info.autocorrelation_time;
+        record.overlap_initial = out.info.overlap_initial;
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;

@@ -65,6 +65,12 @@ pub struct Record {
     /// on the sphere it equals `distance`.
     #[serde(default, with = "nonfinite_opt")]
     pub distance_point: Option<f64>,
+    /// Samplers: integrated autocorrelation time of the energy, in sweeps (reference run).
+    #[serde(default, with = "nonfinite_opt")]
+    pub autocorrelation_time: Option<f64>,
+    /// Samplers: overlap of the output with the chain's start (reference run).
+    #[serde(default, with = "nonfinite_opt")]
+    pub overlap_initial: Option<f64>,
     /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
     #[serde(default)]
     pub replica: u32,
@@ -479,6 +485,8 @@ mod tests {
             cut_fraction: None,
             relaxation: None,
             distance_point: None,
+            autocorrelation_time: None,
+            overlap_initial: None,
             replica: 0,
             wall_seconds: 0.5,
             host: "h".into(),

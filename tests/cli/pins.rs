@@ -113,7 +113,7 @@ const ALGORITHM_PINS: &[Pin] = &[
     ),
     (
         "glauber",
-        1,
+        2,
         "sk",
         24,
         "0.6226103018494511",
@@ -121,7 +121,7 @@ const ALGORITHM_PINS: &[Pin] = &[
     ),
     (
         "langevin",
-        1,
+        2,
         "sphere",
         24,
         "0.2148125853226299",

@@ -203,3 +203,70 @@ sweeps = 1000
     }
     assert!(gaps[1] > gaps[0], "the gap grows with ε: {gaps:?}");
 }
+
+/// Mixing diagnostics in the table: at β = 0.5 on SK Glauber forgets its start (|overlap with
+/// the start| below 5/√n: the overlap of two independent states has standard deviation about
+/// 1/√(n(1 − β²)), common practice) and its energy decorrelates within a few sweeps; at β = 3,
+/// far below the critical temperature, the autocorrelation time is larger. Non-samplers leave
+/// both columns empty.
+#[test]
+fn samplers_report_how_well_they_mixed() {
+    let w = Work::new();
+    let spec = w.spec(
+        "mix.toml",
+        r#"[experiment]
+name = "mix"
+[model]
+family = "sk"
+[sweep]
+sizes = [200]
+seeds = 6
+epsilons = [0.0]
+[[algorithm]]
+label = "hot"
+kind = "glauber"
+beta = 0.5
+sweeps = 400
+[[algorithm]]
+label = "cold"
+kind = "glauber"
+beta = 3.0
+sweeps = 400
+[[algorithm]]
+kind = "descent"
+"#,
+    );
+    w.run_json(&spec, &[]);
+    let df = table::read(&w.path().join("results/mix/cells.parquet")).unwrap();
+    let labels: Vec<String> = df
+        .column("algorithm")
+        .unwrap()
+        .str()
+        .unwrap()
+        .iter()
+        .map(|s| s.unwrap().to_string())
+        .collect();
+    let opt = |name: &str| -> Vec<Option<f64>> {
+        df.column(name).unwrap().f64().unwrap().iter().collect()
+    };
+    let (tau, q0) = (opt("autocorrelation_time"), opt("overlap_initial"));
+    let of = |label: &str, v: &[Option<f64>]| -> Vec<Option<f64>> {
+        labels
+            .iter()
+            .zip(v)
+            .filter(|(l, _)| l.as_str() == label)
+            .map(|(_, x)| *x)
+            .collect()
+    };
+    assert!(of("descent", &tau).iter().all(Option::is_none));
+    assert!(of("descent", &q0).iter().all(Option::is_none));
+    let hot: Vec<f64> = of("hot", &tau).into_iter().map(Option::unwrap).collect();
+    let cold: Vec<f64> = of("cold", &tau).into_iter().map(Option::unwrap).collect();
+    eprintln!("τ at β = 0.5: {hot:?}\nτ at β = 3: {cold:?}");
+    assert!(hot.iter().all(|&t| (0.4..10.0).contains(&t)), "{hot:?}");
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    assert!(mean(&cold) > 2.0 * mean(&hot), "{cold:?} vs {hot:?}");
+    for q in of("hot", &q0) {
+        assert!(q.unwrap().abs() < 5.0 / 200f64.sqrt(), "{q:?}");
+    }
+}
