@@ -117,6 +117,9 @@ impl Algorithm for Params {
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)
     }
+    fn gibbs_beta(&self) -> Option<f64> {
+        Some(self.beta)
+    }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
     }

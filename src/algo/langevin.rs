@@ -107,6 +107,9 @@ impl Algorithm for Params {
         (m.family.spins() || m.mixture().is_none())
             .then_some("Langevin dynamics runs on the sphere family (±1 families: glauber)")
     }
+    fn gibbs_beta(&self) -> Option<f64> {
+        Some(self.beta)
+    }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         match inst {
             Instance::Sphere(m) => Ok(run(self, m, rng)),

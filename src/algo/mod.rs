@@ -105,6 +105,11 @@ pub trait Algorithm: std::fmt::Debug + Send + Sync + 'static {
     fn size_problem(&self, _n: u64) -> Option<(String, String)> {
         None
     }
+    /// For a sampler, the inverse temperature β of the Gibbs measure exp(βH) its output is a
+    /// sample of (figures draw the Gibbs mean energy at β beside its energies).
+    fn gibbs_beta(&self) -> Option<f64> {
+        None
+    }
     /// Runs on one instance with the cell's algorithm stream.
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError>;
     /// The settings as `Any`, so a caller that knows the kind can read its `Params`.
@@ -214,6 +219,11 @@ impl AlgoSpec {
     /// Whether the output carries a pre-rounding continuous point.
     pub fn has_point(&self) -> bool {
         self.0.has_point()
+    }
+
+    /// The inverse temperature a sampler samples at (see [`Algorithm::gibbs_beta`]).
+    pub fn gibbs_beta(&self) -> Option<f64> {
+        self.0.gibbs_beta()
     }
 
     /// Canonical identity (kind, revision and every setting, defaults included).

@@ -132,6 +132,9 @@ impl Algorithm for Params {
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)
     }
+    fn gibbs_beta(&self) -> Option<f64> {
+        self.sample.then_some(self.beta[1])
+    }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         super::on_cube!(inst, KIND.name, |d| run(self, d, rng))
     }

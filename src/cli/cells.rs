@@ -12,6 +12,20 @@ pub struct Experiment {
     pub fit: FitSettings,
     /// The model, when the spec is known (given, built in, or recorded in the manifest).
     pub model: Option<crate::model::ModelSpec>,
+    /// The distinct inverse temperatures of the spec's samplers, increasing.
+    pub gibbs_betas: Vec<f64>,
+}
+
+/// The distinct inverse temperatures the spec's samplers sample at, increasing.
+fn gibbs_betas(spec: &crate::spec::Spec) -> Vec<f64> {
+    let mut b: Vec<f64> = spec
+        .algorithms
+        .iter()
+        .filter_map(|a| a.algo.gibbs_beta())
+        .collect();
+    b.sort_by(f64::total_cmp);
+    b.dedup();
+    b
 }
 
 /// The spec recorded in a results folder's manifest, if it parses.
@@ -35,11 +49,13 @@ impl Experiment {
                     .to_string(),
                 dir: p.clone(),
                 fit: FitSettings::default(),
-                model: manifest_spec(p).map(|s| s.model),
+                model: manifest_spec(p).as_ref().map(|s| s.model.clone()),
+                gibbs_betas: manifest_spec(p).as_ref().map_or(vec![], gibbs_betas),
             },
             Some(p) => {
                 let s = crate::spec::load(p)?;
                 Experiment {
+                    gibbs_betas: gibbs_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,
@@ -49,6 +65,7 @@ impl Experiment {
             None => {
                 let s = crate::spec::default_spec();
                 Experiment {
+                    gibbs_betas: gibbs_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,

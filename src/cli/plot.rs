@@ -48,12 +48,24 @@ pub const SPHERE_INTERVALS: usize = 64;
 fn reference_lines(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
+    gibbs_betas: &[f64],
 ) -> anyhow::Result<Vec<(f64, String, String)>> {
     let Some((m, xi)) = model.and_then(|m| Some(m).zip(m.mixture())) else {
         return Ok(vec![]);
     };
     Ok(if m.family.spins() {
         let store = crate::store::cache::Cache::new(cache);
+        let mut gibbs = Vec::new();
+        for &beta in gibbs_betas {
+            let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+            gibbs.push((
+                e,
+                format!("Gibbs energy at β = {beta}: {e:.4}"),
+                format!(
+                    "Gibbs mean energy per spin at β = {beta}: {e:.6}, dP/dβ of kiln's Parisi free energy at β (the samplers' target; Talagrand 2006, Panchenko 2013)."
+                ),
+            ));
+        }
         let (value, which) = crate::theory::cached::parisi_best(&store, xi)?;
         let mut caption = format!(
             "Parisi value {value:.6} computed by kiln: the least of its full-RSB (free breakpoints) and 1- and 2-step RSB minima of the Auffinger–Chen functional (arXiv:1606.05335), attained by {which}."
@@ -80,6 +92,7 @@ fn reference_lines(
             );
         }
         lines.insert(0, (value, format!("Parisi value {value:.5}"), caption));
+        lines.extend(gibbs);
         lines
     } else {
         {
@@ -260,7 +273,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             });
         }
         let refs = if *family == exp.model.as_ref().map_or("", |m| m.family.name()) {
-            reference_lines(exp.model.as_ref(), &cache)?
+            reference_lines(exp.model.as_ref(), &cache, &exp.gibbs_betas)?
         } else {
             vec![]
         };

@@ -269,4 +269,23 @@ kind = "descent"
     for q in of("hot", &q0) {
         assert!(q.unwrap().abs() < 5.0 / 200f64.sqrt(), "{q:?}");
     }
+    // The energy figure draws each sampler's target, the Gibbs mean energy at its β: β/2 at
+    // β = 0.5 (Aizenman, Lebowitz & Ruelle 1987), and below the Parisi value at β = 3.
+    let o = w.kiln(&["plot", "mix.toml"]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let csv = std::fs::read_to_string(w.path().join("results/mix/figures/energy-sk-gaussian.csv"))
+        .unwrap();
+    let line = |tag: &str| -> f64 {
+        let l = csv
+            .lines()
+            .find(|l| l.contains(tag) && l.contains(",reference,"))
+            .unwrap_or_else(|| panic!("no {tag} line in\n{csv}"));
+        l.split(',').nth(4).unwrap().parse().unwrap()
+    };
+    let (e_hot, e_cold) = (
+        line("Gibbs energy at β = 0.5"),
+        line("Gibbs energy at β = 3"),
+    );
+    assert!((e_hot - 0.25).abs() < 1e-6, "{e_hot}");
+    assert!(e_cold > 0.7 && e_cold < 0.7631667, "{e_cold}");
 }
