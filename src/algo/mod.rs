@@ -12,6 +12,7 @@ pub mod gradient;
 pub mod hessian;
 pub mod iamp;
 pub mod langevin;
+pub mod localization;
 pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
@@ -150,6 +151,7 @@ const BUILTIN: &[Kind] = &[
     iamp::KIND,
     glauber::KIND,
     langevin::KIND,
+    localization::KIND,
 ];
 
 /// The kinds: the built-in list, then those registered at run time.

@@ -418,6 +418,10 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             sphere.clone(),
             AlgoSpec::new(kiln::algo::langevin::Params::default()),
         ),
+        (
+            cube.clone(),
+            AlgoSpec::new(kiln::algo::localization::Params::default()),
+        ),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {

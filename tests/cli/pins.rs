@@ -127,6 +127,14 @@ const ALGORITHM_PINS: &[Pin] = &[
         "0.2148125853226299",
         "a140970981280ef9",
     ),
+    (
+        "localization",
+        1,
+        "sk",
+        24,
+        "0.038895251188661294",
+        "76a80fe1deb7c0da",
+    ),
 ];
 
 /// The model of a pin: its family with the parameters of the pin table, through the spec

@@ -289,3 +289,62 @@ kind = "descent"
     assert!((e_hot - 0.25).abs() < 1e-6, "{e_hot}");
     assert!(e_cold > 0.7 && e_cold < 0.7631667, "{e_cold}");
 }
+
+/// The localization sampler's independent samples obey the same high-temperature overlap law
+/// as Glauber's (see `glauber_replica_overlaps_obey_the_high_temperature_law` for the law and
+/// its source): SK, β = 0.5, n = 400, 48 instances × 4 replicas, 4 standard errors of the
+/// per-instance means plus 3/n.
+#[test]
+fn localization_replica_overlaps_obey_the_high_temperature_law() {
+    let w = Work::new();
+    let spec = w.spec(
+        "loc.toml",
+        r#"[experiment]
+name = "loc"
+[model]
+family = "sk"
+[sweep]
+sizes = [400]
+seeds = 48
+epsilons = [0.0]
+replicas = 4
+[[algorithm]]
+kind = "localization"
+beta = 0.5
+"#,
+    );
+    w.run_json(&spec, &[]);
+    let pairs = table::read(&w.path().join("results/loc/overlaps.parquet")).unwrap();
+    let q: Vec<f64> = pairs
+        .column("overlap")
+        .unwrap()
+        .f64()
+        .unwrap()
+        .iter()
+        .map(|x| x.unwrap())
+        .collect();
+    let seeds: Vec<u64> = pairs
+        .column("seed")
+        .unwrap()
+        .u64()
+        .unwrap()
+        .iter()
+        .map(|x| x.unwrap())
+        .collect();
+    let n = 400.0;
+    let mut by_seed: std::collections::BTreeMap<u64, Vec<f64>> = Default::default();
+    for (&x, &s) in q.iter().zip(&seeds) {
+        by_seed.entry(s).or_default().push(n * x * x);
+    }
+    let per: Vec<f64> = by_seed
+        .values()
+        .map(|v| v.iter().sum::<f64>() / v.len() as f64)
+        .collect();
+    let (r2, se) = mean_se(&per);
+    let want = 1.0 / (1.0 - 0.25);
+    eprintln!("localization: n·E⟨R²⟩ = {r2} ± {se} (law: {want})");
+    assert!(
+        (r2 - want).abs() < 4.0 * se + 3.0 / n,
+        "{r2} ± {se} vs {want}"
+    );
+}
