@@ -162,6 +162,33 @@ impl Algorithm for Params {
     }
 }
 
+/// One AMP step for the covariance ξ at inverse temperature β with external field `field(i)`:
+/// m ← tanh(field + β(∇H(m) − β ξ''(⟨m, old⟩/n)(1 − ‖m‖²/n) old)), old ← the previous m
+/// (`z` is work space for ∇H). Returns Σ_i (change of m_i)². Shared with `localization`.
+pub(crate) fn step(
+    beta: f64,
+    xi: &Mixture,
+    field: impl Fn(usize) -> f64,
+    grad: &mut impl FnMut(&[f64], &mut [f64]) -> f64,
+    m: &mut [f64],
+    old: &mut [f64],
+    z: &mut [f64],
+) -> f64 {
+    let nf = m.len() as f64;
+    grad(m, z);
+    let q = m.iter().map(|v| v * v).sum::<f64>() / nf;
+    let cross = m.iter().zip(old.iter()).map(|(a, b)| a * b).sum::<f64>() / nf;
+    let b = beta * xi.d2(cross) * (1.0 - q);
+    let mut moved = 0.0;
+    for i in 0..m.len() {
+        let next = (field(i) + beta * (z[i] - b * old[i])).tanh();
+        moved += (next - m[i]).powi(2);
+        old[i] = m[i];
+        m[i] = next;
+    }
+    moved
+}
+
 /// Runs AMP with gradient `grad` (writes ∇H(x), returns H(x)) for the covariance `xi`.
 pub fn run(
     p: &Params,
@@ -178,17 +205,15 @@ pub fn run(
     let mut z = vec![0.0; n];
     let mut info = Info::default();
     while info.iterations < p.max_iterations {
-        grad(&m, &mut z);
-        let q = m.iter().map(|v| v * v).sum::<f64>() / nf;
-        let cross = m.iter().zip(&old).map(|(a, b)| a * b).sum::<f64>() / nf;
-        let b = p.beta * xi.d2(cross) * (1.0 - q);
-        let mut moved = 0.0;
-        for i in 0..n {
-            let next = (p.field * g[i] + p.beta * (z[i] - b * old[i])).tanh();
-            moved += (next - m[i]).powi(2);
-            old[i] = m[i];
-            m[i] = next;
-        }
+        let moved = step(
+            p.beta,
+            xi,
+            |i| p.field * g[i],
+            &mut grad,
+            &mut m,
+            &mut old,
+            &mut z,
+        );
         info.iterations += 1;
         if !moved.is_finite() {
             return Err(AlgoError::Numerical {

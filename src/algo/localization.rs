@@ -154,22 +154,13 @@ fn tilted_mean(
     old: &mut [f64],
     z: &mut [f64],
 ) -> Result<(), AlgoError> {
-    let nf = y.len() as f64;
     old.iter_mut().for_each(|v| *v = 0.0);
     for (mi, &yi) in m.iter_mut().zip(y) {
         *mi = yi.tanh();
     }
     for k in 0..p.iterations {
-        grad(m, z);
-        let q = m.iter().map(|v| v * v).sum::<f64>() / nf;
-        let cross = m.iter().zip(old.iter()).map(|(a, b)| a * b).sum::<f64>() / nf;
-        let b = p.beta * xi.d2(cross) * (1.0 - q);
-        for i in 0..m.len() {
-            let next = (y[i] + p.beta * (z[i] - b * old[i])).tanh();
-            old[i] = m[i];
-            m[i] = next;
-        }
-        if !m.iter().all(|v| v.is_finite()) {
+        let moved = super::amp::step(p.beta, xi, |i| y[i], grad, m, old, z);
+        if !moved.is_finite() {
             return Err(AlgoError::Numerical {
                 message: format!(
                     "AMP iterate not finite at iteration {} (β = {})",
