@@ -35,9 +35,9 @@ pub struct ReplayArgs {
     /// Seed of the sample: the same seed picks the same cells.
     #[arg(long, value_name = "S", default_value_t = 1)]
     pub seed: u64,
-    /// Compute the sample may cost, in seconds of the wall times the folder records per cell
-    /// (an ε cell counts its reference run too). Cheap cells of each stratum go first; a
-    /// stratum whose cheapest cell does not fit is reported as skipped.
+    /// The most compute the sample may cost, in seconds of the wall times the folder records
+    /// per cell (an ε cell counts its reference run too). Cheap cells of each stratum go
+    /// first; a stratum whose cheapest cell does not fit is reported as skipped.
     #[arg(long, value_name = "SECONDS", default_value_t = 300.0)]
     pub budget: f64,
     /// Check the checksum list of a bundle and stop.
