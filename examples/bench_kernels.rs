@@ -14,14 +14,18 @@
 //! - eigen: top eigenpair of the dense SK matrix by kiln's Lanczos (relative residual 2e-15,
 //!   at least as tight as the reference eigsh at its default tolerance)
 //!   at n = 2048 and 4096: time, products, λ, residual;
-//! - couplings: dense SK couplings generated per second (n = 4096, all threads).
+//! - couplings: dense SK couplings generated per second (n = 4096, all threads);
+//! - glauber: the heat-bath sampler at β = 1, sequential scan, 200 sweeps: attempts per second
+//!   on SK (n as given, instances first .. first + reps − 1) and ns per attempt on a ±1
+//!   3-regular graph with n = 10⁶ (scripts/bench-samplers.sh runs it beside
+//!   scripts/perf/heatbath.c).
 //!
 //! Instances are generated outside the timed region. `cargo run --release --example
 //! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings] [first=0]`;
 //! the dense part uses instances first .. first + reps − 1 (scripts/bench.sh, which runs it
 //! next to the references, gives each round its own instances, as it does the C programs).
 
-use kiln::algo::{anneal, descent};
+use kiln::algo::{anneal, descent, glauber};
 use kiln::linalg::top_eigen;
 use kiln::model::Couplings;
 use kiln::model::sk::sample;
@@ -54,6 +58,9 @@ fn main() {
     if parts.contains(&"dense") {
         dense(n, reps, first);
     }
+    if parts.contains(&"glauber") {
+        heat_bath(n, reps, first);
+    }
     if parts.contains(&"sparse") {
         sparse(reps.min(3));
     }
@@ -66,6 +73,33 @@ fn main() {
     if parts.contains(&"couplings") {
         couplings(reps.min(3));
     }
+}
+
+fn heat_bath(n: usize, reps: usize, first: usize) {
+    let p = glauber::Params {
+        beta: 1.0,
+        sweeps: 200,
+        scan: glauber::Scan::Sequential,
+    };
+    let mut rates = Vec::new();
+    for r in first..first + reps {
+        let d = sample(n, Couplings::Gaussian, &[r as u8 + 90; 32], 0.0);
+        let t = Instant::now();
+        let _ = glauber::run(&p, &d, &mut stream(&[r as u8; 32], Purpose::Algorithm, 0));
+        rates.push(n as f64 * 200.0 / t.elapsed().as_secs_f64());
+    }
+    let (m, lo, hi) = stats(&rates);
+    println!(
+        "prog=kiln_glauber_dense n={n} sweeps=200 beta=1 reps={reps} attempts_per_s_med={m:.3e} attempts_per_s_min={lo:.3e} attempts_per_s_max={hi:.3e}"
+    );
+    let big = 1_000_000;
+    let g = regular(big, 3, Couplings::Pm1, &[7; 32], 0.0);
+    let t = Instant::now();
+    let _ = glauber::run(&p, &g, &mut stream(&[51; 32], Purpose::Algorithm, 0));
+    println!(
+        "prog=kiln_glauber_sparse n={big} degree=3 sweeps=200 beta=1 ns_per_attempt={:.3}",
+        t.elapsed().as_secs_f64() * 1e9 / (big as f64 * 200.0)
+    );
 }
 
 fn sparse(reps: usize) {
