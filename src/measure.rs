@@ -154,8 +154,8 @@ impl Trace {
 }
 
 /// The integrated autocorrelation time τ = 1/2 + Σ_{k=1}^{M} ρ(k) of a series, with Sokal's
-/// automatic window: the smallest M with M ≥ 5τ(M) (Sokal, "Monte Carlo methods in statistical
-/// mechanics: foundations and new algorithms", Cargèse lectures 1996, section 3), M at most a
+/// automatic window: the smallest M with M ≥ 5τ(M) (A. D. Sokal, Monte Carlo Methods in
+/// Statistical Mechanics: Foundations and New Algorithms, 1997; recalled), M at most a
 /// quarter of the length. 1/2 for a series without correlation; a constant series gives 1/2.
 /// Independent samples have τ = 1/2 in this convention, so the effective number of samples
 /// is length/(2τ).

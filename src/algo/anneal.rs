@@ -300,22 +300,7 @@ mod tests {
     /// with i8 fields and (degree 140) i32 fields.
     #[test]
     fn integer_loop_equals_generic_loop() {
-        use crate::model::sparse::{Graph, erdos_renyi, regular};
-        struct Plain<'a>(&'a Graph);
-        impl SpinModel for Plain<'_> {
-            fn n(&self) -> usize {
-                self.0.n()
-            }
-            fn fields(&self, s: &[i8], h: &mut [f64]) {
-                self.0.fields(s, h)
-            }
-            fn energy(&self, s: &[i8]) -> f64 {
-                self.0.energy(s)
-            }
-            fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
-                self.0.flip(s, h, k)
-            }
-        }
+        use crate::model::sparse::{Plain, erdos_renyi, regular};
         // Fields fit i8 on the first two (|h| ≤ degree); degree 140 needs the i32 path.
         let graphs = [
             regular(3000, 3, Couplings::Pm1, &[4; 32], 0.0),

@@ -171,7 +171,12 @@ pub fn run_observed<M: SpinModel>(
         (off <= i8::MAX as i64).then_some((g, w))
     });
     if let (Some((g, w)), Some((t, off))) = (small, &table) {
-        info.iterations = sweeps_small(p, g, &w, t, *off, &mut s, rng, energy, &mut seen);
+        info.iterations = match p.scan {
+            Scan::Sequential => {
+                sweeps_small::<false>(p, g, &w, t, *off, &mut s, rng, energy, &mut seen)
+            }
+            Scan::Random => sweeps_small::<true>(p, g, &w, t, *off, &mut s, rng, energy, &mut seen),
+        };
     } else {
         for sweep in 0..p.sweeps {
             for t in 0..n {
@@ -205,32 +210,13 @@ pub fn run_observed<M: SpinModel>(
 }
 
 /// The sweeps on a graph whose couplings are small integers (|h| ≤ 127): fields as i8, the
-/// couplings as i8, the factors 1 + e^{−2βh} from `table` (index h + `off`). Every draw and
-/// decision is the generic loop's (the same integers, the same tabulated `libm::exp`), and the
-/// energy passed to `seen` is the same exact integer, so the output is bit-identical (tested);
-/// the arrays are only smaller (1 byte per field instead of 8). Returns the spins changed.
+/// couplings as i8, the factors 1 + e^{−2βh} from `table` (index h + `off`), one scan order
+/// per instantiation (`RANDOM`: sites drawn uniformly). Every draw and decision is the generic
+/// loop's (the same integers, the same tabulated `libm::exp`), and the energy passed to `seen`
+/// is the same exact integer, so the output is bit-identical (tested); the arrays are only
+/// smaller (1 byte per field instead of 8). Returns the spins changed.
 #[allow(clippy::too_many_arguments)]
-fn sweeps_small(
-    p: &Params,
-    g: &crate::model::sparse::Graph,
-    w: &[i8],
-    table: &[f64],
-    off: i64,
-    s: &mut [i8],
-    rng: &mut Stream,
-    start_energy: f64,
-    seen: &mut impl FnMut(u64, f64),
-) -> u64 {
-    match p.scan {
-        Scan::Sequential => small_loop::<false>(p, g, w, table, off, s, rng, start_energy, seen),
-        Scan::Random => small_loop::<true>(p, g, w, table, off, s, rng, start_energy, seen),
-    }
-}
-
-/// [`sweeps_small`] for one scan order (`RANDOM`: sites drawn uniformly), so the choice is
-/// made once, outside the loop.
-#[allow(clippy::too_many_arguments)]
-fn small_loop<const RANDOM: bool>(
+fn sweeps_small<const RANDOM: bool>(
     p: &Params,
     g: &crate::model::sparse::Graph,
     w: &[i8],
@@ -354,22 +340,7 @@ pub(crate) mod tests {
     /// integer couplings give the same spins and flips.
     #[test]
     fn integer_table_equals_generic_path() {
-        use crate::model::sparse::{Graph, erdos_renyi, regular};
-        struct Plain<'a>(&'a Graph);
-        impl SpinModel for Plain<'_> {
-            fn n(&self) -> usize {
-                self.0.n()
-            }
-            fn fields(&self, s: &[i8], h: &mut [f64]) {
-                self.0.fields(s, h)
-            }
-            fn energy(&self, s: &[i8]) -> f64 {
-                self.0.energy(s)
-            }
-            fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
-                self.0.flip(s, h, k)
-            }
-        }
+        use crate::model::sparse::{Plain, erdos_renyi, regular};
         let graphs = [
             regular(2000, 3, Couplings::Pm1, &[4; 32], 0.0),
             erdos_renyi(2000, 4.0, Couplings::Cut, &[5; 32], 0.0),

@@ -505,6 +505,28 @@ pub fn instance_bytes(n: u64, m: f64) -> u128 {
     24 * m + 8 * (n + 1) + 16 * m + 24 * n + 40 * m + 64 * n
 }
 
+/// The graph behind the plain [`crate::model::SpinModel`] methods only: no integer gain bound
+/// and no `as_graph`, so loops specialised to small integer couplings take their generic path.
+/// Tests compare the two paths through it.
+#[cfg(test)]
+pub(crate) struct Plain<'a>(pub &'a Graph);
+
+#[cfg(test)]
+impl crate::model::SpinModel for Plain<'_> {
+    fn n(&self) -> usize {
+        self.0.n()
+    }
+    fn fields(&self, s: &[i8], h: &mut [f64]) {
+        self.0.fields(s, h)
+    }
+    fn energy(&self, s: &[i8]) -> f64 {
+        self.0.energy(s)
+    }
+    fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
+        self.0.flip(s, h, k)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
