@@ -154,28 +154,22 @@ pub fn run_observed<M: SpinModel>(
     let mut energy = d.energy(&s);
     let mut info = Info::default();
     let two_beta = 2.0 * p.beta;
-    // Integer fields (graphs with small integer couplings): the factors 1 + e^{−2βh} for every
-    // possible h, tabulated once. The same `libm::exp` of the same argument, so the decisions
-    // are the ones the generic path makes (tested), one table load instead of an exp.
-    let table: Option<(Vec<f64>, i64)> =
-        d.integer_gain_bound().filter(|&b| b <= 1 << 16).map(|b| {
-            let off = (b / 2) as i64;
-            let t = (-off..=off)
-                .map(|k| 1.0 + libm::exp(-two_beta * k as f64))
-                .collect();
-            (t, off)
-        });
-    let small = d.as_graph().and_then(|g| {
-        let w = g.small_integer_couplings()?;
-        let off = table.as_ref()?.1;
-        (off <= i8::MAX as i64).then_some((g, w))
-    });
-    if let (Some((g, w)), Some((t, off))) = (small, &table) {
+    // Graphs with small integer couplings (|h| ≤ 127): the byte-field loop, with the factors
+    // 1 + e^{−2βh} tabulated once from the same `libm::exp` of the same arguments.
+    let small = d
+        .as_graph()
+        .zip(d.integer_gain_bound())
+        .filter(|&(_, b)| b / 2 <= i8::MAX as usize)
+        .and_then(|(g, b)| Some((g, g.small_integer_couplings()?, (b / 2) as i64)));
+    if let Some((g, w, off)) = small {
+        let t: Vec<f64> = (-off..=off)
+            .map(|k| 1.0 + libm::exp(-two_beta * k as f64))
+            .collect();
         info.iterations = match p.scan {
             Scan::Sequential => {
-                sweeps_small::<false>(p, g, &w, t, *off, &mut s, rng, energy, &mut seen)
+                sweeps_small::<false>(p, g, &w, &t, off, &mut s, rng, energy, &mut seen)
             }
-            Scan::Random => sweeps_small::<true>(p, g, &w, t, *off, &mut s, rng, energy, &mut seen),
+            Scan::Random => sweeps_small::<true>(p, g, &w, &t, off, &mut s, rng, energy, &mut seen),
         };
     } else {
         for sweep in 0..p.sweeps {
@@ -185,11 +179,7 @@ pub fn run_observed<M: SpinModel>(
                     Scan::Random => rng.below(n as u64) as usize,
                 };
                 // σ_i = +1 with probability 1/(1 + e^{−2βh_i}); an overflow to ∞ gives −1.
-                let factor = match &table {
-                    Some((t, off)) => t[(h[i] as i64 + off) as usize],
-                    None => 1.0 + libm::exp(-two_beta * h[i]),
-                };
-                let up = rng.uniform() * factor < 1.0;
+                let up = rng.uniform() * (1.0 + libm::exp(-two_beta * h[i])) < 1.0;
                 if up != (s[i] > 0) {
                     energy -= 2.0 * (s[i] as f64) * h[i];
                     d.flip(&mut s, &mut h, i);
