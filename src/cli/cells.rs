@@ -14,6 +14,16 @@ pub struct Experiment {
     pub model: Option<crate::model::ModelSpec>,
     /// The distinct inverse temperatures of the spec's samplers, increasing.
     pub gibbs_betas: Vec<f64>,
+    /// Each sampler's label with the inverse temperature it samples at.
+    pub sampler_betas: std::collections::BTreeMap<String, f64>,
+}
+
+/// Each sampler of the spec by label, with its β.
+fn sampler_betas(spec: &crate::spec::Spec) -> std::collections::BTreeMap<String, f64> {
+    spec.algorithms
+        .iter()
+        .filter_map(|a| Some((a.label.clone(), a.algo.gibbs_beta()?)))
+        .collect()
 }
 
 /// The distinct inverse temperatures the spec's samplers sample at, increasing.
@@ -51,11 +61,15 @@ impl Experiment {
                 fit: FitSettings::default(),
                 model: manifest_spec(p).as_ref().map(|s| s.model.clone()),
                 gibbs_betas: manifest_spec(p).as_ref().map_or(vec![], gibbs_betas),
+                sampler_betas: manifest_spec(p)
+                    .as_ref()
+                    .map_or_else(Default::default, sampler_betas),
             },
             Some(p) => {
                 let s = crate::spec::load(p)?;
                 Experiment {
                     gibbs_betas: gibbs_betas(&s),
+                    sampler_betas: sampler_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,
@@ -66,6 +80,7 @@ impl Experiment {
                 let s = crate::spec::default_spec();
                 Experiment {
                     gibbs_betas: gibbs_betas(&s),
+                    sampler_betas: sampler_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,

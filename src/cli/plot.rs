@@ -119,13 +119,37 @@ fn reference_lines(
     })
 }
 
-/// `overlaps-<algorithm>`: histograms of the pairwise replica overlaps, one outline per n.
+/// For each sampler on a cube model: (β, the largest overlap q_max of the Parisi order
+/// parameter at β), from `theory --beta`'s cached solution.
+fn sampler_overlaps(
+    model: Option<&crate::model::ModelSpec>,
+    cache: &Path,
+    samplers: &BTreeMap<String, f64>,
+) -> anyhow::Result<BTreeMap<String, (f64, f64)>> {
+    let Some(xi) = model.filter(|m| m.family.spins()).and_then(|m| m.mixture()) else {
+        return Ok(BTreeMap::new());
+    };
+    let store = crate::store::cache::Cache::new(cache);
+    let mut out = BTreeMap::new();
+    for (label, &beta) in samplers {
+        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+        out.insert(
+            label.clone(),
+            (beta, crate::theory::full::largest_overlap(&sol)),
+        );
+    }
+    Ok(out)
+}
+
+/// `overlaps-<algorithm>`: histograms of the pairwise replica overlaps, one outline per n;
+/// for samplers on the cube, dashed lines at ±q_max of the Parisi order parameter at their β.
 fn overlap_figures(
     path: &Path,
     figdir: &Path,
     size: Size,
     name: &str,
     spec_hash: &str,
+    q_max: &BTreeMap<String, (f64, f64)>,
 ) -> anyhow::Result<Vec<PathBuf>> {
     let df = crate::store::table::read(path)?;
     let algs: Vec<String> = df
@@ -178,10 +202,24 @@ fn overlap_figures(
                 }
             })
             .collect();
+        let mut caption = "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".to_string();
+        let markers = q_max.get(label).map(|&(beta, q)| {
+            caption += &format!(
+                " Dashed: ±q_max = ±{q:.4}, the largest overlap of kiln's Parisi order parameter x(q) at β = {beta} (the support of the limiting overlap distribution ends there; Talagrand 2006, Panchenko 2013)."
+            );
+            // In the header line, so the data rows stay one histogram bin each.
+            csv = csv.replacen(
+                "\nalgorithm,n,",
+                &format!("; q_max={q:?}; q_max_beta={beta:?}\nalgorithm,n,"),
+                1,
+            );
+            (vec![-q, q], format!("±q_max (Parisi, β = {beta})"))
+        });
         let fig = figures::OverlapFigure {
             title: label.clone(),
             series,
-            caption: "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".into(),
+            caption,
+            markers,
         };
         written.extend(write_all(
             &figdir.join(format!("overlaps-{}", file_safe(label))),
@@ -355,12 +393,14 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     }
     let overlaps_path = dir.join("overlaps.parquet");
     if overlaps_path.is_file() {
+        let q_max = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
         written.extend(overlap_figures(
             &overlaps_path,
             &figdir,
             size,
             &name,
             &spec_hash,
+            &q_max,
         )?);
     }
     if a.json {

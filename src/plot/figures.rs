@@ -56,6 +56,8 @@ pub struct OverlapFigure {
     pub title: String,
     pub series: Vec<OverlapSeries>,
     pub caption: String,
+    /// Vertical dashed lines at these overlaps, with one legend entry (e.g. ±q_max).
+    pub markers: Option<(Vec<f64>, String)>,
 }
 
 /// Density histogram of values in [−1, 1] with `bins` equal bins.
@@ -104,6 +106,23 @@ impl super::Figure for OverlapFigure {
         )
         .draw()
         .map_err(err)?;
+        if let Some((xs, label)) = &self.markers {
+            for (k, &x) in xs.iter().enumerate() {
+                let drawn = chart
+                    .draw_series(DashedLineSeries::new(
+                        vec![(x, 0.0), (x, ymax * 1.15)],
+                        pt(3.0) as u32,
+                        pt(2.0) as u32,
+                        BLACK.stroke_width(3),
+                    ))
+                    .map_err(err)?;
+                if k == 0 {
+                    drawn.label(label.clone()).legend(|(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3))
+                    });
+                }
+            }
+        }
         for (i, s) in self.series.iter().enumerate() {
             let color = PALETTE[1 + i % (PALETTE.len() - 1)];
             let mut outline = vec![(-1.0, 0.0)];

@@ -202,6 +202,25 @@ sweeps = 1000
         gaps.push(m);
     }
     assert!(gaps[1] > gaps[0], "the gap grows with ε: {gaps:?}");
+    // The overlap figure of a sampler marks ±q_max of the Parisi order parameter at its β,
+    // with the value in its data's header line (the same as `kiln theory --beta 2`).
+    let o = w.kiln(&["plot", "chaos.toml"]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let csv =
+        std::fs::read_to_string(w.path().join("results/chaos/figures/overlaps-cold.csv")).unwrap();
+    let header = csv.lines().next().unwrap();
+    let q: f64 = header
+        .split("q_max=")
+        .nth(1)
+        .and_then(|t| t.split(';').next())
+        .unwrap_or_else(|| panic!("no q_max in {header}"))
+        .parse()
+        .unwrap();
+    let o = w.kiln(&["theory", "--beta", "2", "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(Some(q), v["temperature"][0]["q_max"].as_f64());
+    assert!(q > 0.4 && q < 1.0, "{q}");
+    assert!(csv.lines().skip(2).all(|l| l.split(',').count() == 5));
 }
 
 /// Mixing diagnostics in the table: at β = 0.5 on SK Glauber forgets its start (|overlap with
