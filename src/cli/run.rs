@@ -277,7 +277,7 @@ impl Outputs<'_> {
                 )
             })
             .collect();
-        let manifest = Manifest {
+        let mut manifest = Manifest {
             experiment: spec.name.clone(),
             note: spec.note.clone(),
             spec_origin: spec.origin.clone(),
@@ -293,7 +293,14 @@ impl Outputs<'_> {
             tables,
             revisions: crate::store::manifest::revisions(spec),
             spec: spec.text.clone(),
+            runs: Vec::new(),
         };
+        let previous = std::fs::read_to_string(&manifest_path).ok();
+        manifest.runs = crate::store::manifest::run_log(
+            previous.as_deref(),
+            &manifest.spec_hash,
+            crate::store::manifest::run_entry(&manifest),
+        );
         files.push((manifest_path.clone(), manifest.to_toml().into_bytes()));
         let list: Vec<(&std::path::Path, &[u8])> =
             files.iter().map(|(p, b)| (p.as_path(), &b[..])).collect();

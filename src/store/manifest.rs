@@ -24,6 +24,77 @@ pub struct Manifest {
     pub revisions: std::collections::BTreeMap<String, String>,
     /// The exact spec text.
     pub spec: String,
+    /// Every run that wrote this folder for this spec, oldest first (see [`run_log`]): a
+    /// rerun that computes nothing keeps the record of when the numbers were made.
+    pub runs: Vec<toml::Value>,
+}
+
+/// Most entries kept in a manifest's run log: the first run and the latest ones.
+pub const RUN_LOG_LIMIT: usize = 100;
+
+/// The run log for a manifest about to replace `previous` (the text of the manifest in the
+/// folder, if any): its runs if it was written for the same spec hash (for a manifest from
+/// before the log existed, one entry made from its own fields), then `this`. A different spec
+/// hash starts a new log. Beyond [`RUN_LOG_LIMIT`] entries the oldest after the first go.
+pub fn run_log(previous: Option<&str>, spec_hash: &str, this: toml::Value) -> Vec<toml::Value> {
+    let old: Option<toml::Table> = previous
+        .and_then(|t| t.parse().ok())
+        .filter(|t: &toml::Table| t.get("spec_hash").and_then(|v| v.as_str()) == Some(spec_hash));
+    let mut runs: Vec<toml::Value> = match old {
+        Some(t) => match t.get("runs").and_then(|r| r.as_array()) {
+            Some(r) => r.clone(),
+            None if t.get("started").is_none() => Vec::new(),
+            None => {
+                let mut e = toml::Table::new();
+                for k in [
+                    "started",
+                    "finished",
+                    "host",
+                    "git_revision",
+                    "kiln_version",
+                    "threads",
+                ] {
+                    if let Some(v) = t.get(k) {
+                        e.insert(k.into(), v.clone());
+                    }
+                }
+                if let Some(c) = t.get("cells").and_then(|c| c.as_table()) {
+                    for (k, v) in c {
+                        e.insert(k.clone(), v.clone());
+                    }
+                }
+                vec![toml::Value::Table(e)]
+            }
+        },
+        None => Vec::new(),
+    };
+    runs.push(this);
+    if runs.len() > RUN_LOG_LIMIT {
+        let cut = runs.len() - RUN_LOG_LIMIT;
+        runs.drain(1..1 + cut);
+    }
+    runs
+}
+
+/// This run's entry of the log.
+pub fn run_entry(m: &Manifest) -> toml::Value {
+    let mut e = toml::Table::new();
+    e.insert("started".into(), m.started.clone().into());
+    e.insert("finished".into(), m.finished.clone().into());
+    e.insert("host".into(), m.host.clone().into());
+    e.insert("git_revision".into(), m.git_revision.clone().into());
+    e.insert("kiln_version".into(), m.kiln_version.clone().into());
+    e.insert("threads".into(), i64::from(m.threads).into());
+    for (k, v) in [
+        ("total", m.cells.total),
+        ("cached", m.cells.cached),
+        ("computed", m.cells.computed),
+        ("failed", m.cells.failed),
+        ("skipped", m.cells.skipped),
+    ] {
+        e.insert(k.into(), (v as i64).into());
+    }
+    toml::Value::Table(e)
 }
 
 /// Counts of a run.
@@ -106,6 +177,36 @@ pub fn format_utc(secs: i64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A rerun of the same spec appends to the log (a legacy manifest becomes its first entry);
+    /// another spec starts a new one; the log keeps the first run when it is cut.
+    #[test]
+    fn the_run_log_keeps_the_first_computation() {
+        let legacy =
+            "spec_hash = \"a\"\nstarted = \"2026-01-01T00:00:00Z\"\n[cells]\ncomputed = 96\n";
+        let entry = |s: &str| {
+            let mut t = toml::Table::new();
+            t.insert("started".into(), s.into());
+            toml::Value::Table(t)
+        };
+        let log = run_log(Some(legacy), "a", entry("x"));
+        assert_eq!(log.len(), 2);
+        assert_eq!(log[0]["computed"].as_integer(), Some(96));
+        assert_eq!(log[0]["started"].as_str(), Some("2026-01-01T00:00:00Z"));
+        assert_eq!(run_log(Some(legacy), "b", entry("x")).len(), 1);
+        let mut text = String::from("spec_hash = \"a\"\n");
+        let mut runs = vec![];
+        for i in 0..RUN_LOG_LIMIT + 5 {
+            runs = run_log(Some(&text), "a", entry(&i.to_string()));
+            let mut t = toml::Table::new();
+            t.insert("spec_hash".into(), "a".into());
+            t.insert("runs".into(), toml::Value::Array(runs.clone()));
+            text = toml::to_string(&t).unwrap();
+        }
+        assert_eq!(runs.len(), RUN_LOG_LIMIT);
+        assert_eq!(runs[0]["started"].as_str(), Some("0"));
+        assert_eq!(runs[RUN_LOG_LIMIT - 1]["started"].as_str(), Some("104"));
+    }
 
     #[test]
     fn utc_format() {

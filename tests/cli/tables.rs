@@ -169,6 +169,15 @@ fn table_has_the_promised_columns_and_manifest() {
         assert!(m.contains_key(k), "manifest lacks {k}");
     }
     assert_eq!(m["spec"].as_str().unwrap(), SMALL);
+    // A rerun that computes nothing keeps the record of the run that did: the run log.
+    w.run_json(&s, &[]);
+    let m = std::fs::read_to_string(w.path().join("results/small/manifest.toml")).unwrap();
+    let m: toml::Table = toml::from_str(&m).unwrap();
+    let runs = m["runs"].as_array().unwrap();
+    assert_eq!(runs.len(), 2);
+    assert_eq!(runs[0]["computed"].as_integer(), Some(24));
+    assert_eq!(runs[1]["computed"].as_integer(), Some(0));
+    assert_eq!(runs[1]["cached"].as_integer(), Some(24));
 }
 
 /// The README's first command: the built-in default experiment runs and writes its table.
