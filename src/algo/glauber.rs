@@ -311,9 +311,7 @@ pub(crate) mod tests {
             assert!((last - d.energy(&out.spins)).abs() < 1e-9 * n as f64);
             means.push(sum / count as f64);
         }
-        let m = means.iter().sum::<f64>() / means.len() as f64;
-        let var = means.iter().map(|x| (x - m).powi(2)).sum::<f64>() / (means.len() - 1) as f64;
-        let se = (var / means.len() as f64).sqrt();
+        let (m, se) = crate::fit::mean_se(&means);
         let want = beta * (n - 1) as f64 / (2.0 * n as f64);
         assert!(
             (m - want).abs() < 4.0 * se + 2e-4,

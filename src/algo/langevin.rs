@@ -232,9 +232,7 @@ mod tests {
                 );
                 means.push(sum / count as f64);
             }
-            let k = means.len() as f64;
-            let mean = means.iter().sum::<f64>() / k;
-            let se = (means.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k - 1.0) / k).sqrt();
+            let (mean, se) = crate::fit::mean_se(&means);
             eprintln!("η = {step}: E = {mean:.5} ± {se:.5}");
             by_step.push((step, mean, se));
         }

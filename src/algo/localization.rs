@@ -248,9 +248,7 @@ mod tests {
             .unwrap();
             e.push(d.energy(&out.spins) / n as f64);
         }
-        let k = e.len() as f64;
-        let mean = e.iter().sum::<f64>() / k;
-        let se = (e.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (k - 1.0) / k).sqrt();
+        let (mean, se) = crate::fit::mean_se(&e);
         let want = beta * (n - 1) as f64 / (2.0 * n as f64);
         eprintln!("localization at β = {beta}: E = {mean:.4} ± {se:.4} (Gibbs {want:.4})");
         assert!(

@@ -12,8 +12,6 @@ pub struct Experiment {
     pub fit: FitSettings,
     /// The model, when the spec is known (given, built in, or recorded in the manifest).
     pub model: Option<crate::model::ModelSpec>,
-    /// The distinct inverse temperatures of the spec's samplers, increasing.
-    pub gibbs_betas: Vec<f64>,
     /// Each sampler's label with the inverse temperature it samples at.
     pub sampler_betas: std::collections::BTreeMap<String, f64>,
 }
@@ -24,18 +22,6 @@ fn sampler_betas(spec: &crate::spec::Spec) -> std::collections::BTreeMap<String,
         .iter()
         .filter_map(|a| Some((a.label.clone(), a.algo.gibbs_beta()?)))
         .collect()
-}
-
-/// The distinct inverse temperatures the spec's samplers sample at, increasing.
-fn gibbs_betas(spec: &crate::spec::Spec) -> Vec<f64> {
-    let mut b: Vec<f64> = spec
-        .algorithms
-        .iter()
-        .filter_map(|a| a.algo.gibbs_beta())
-        .collect();
-    b.sort_by(f64::total_cmp);
-    b.dedup();
-    b
 }
 
 /// The spec recorded in a results folder's manifest, if it parses.
@@ -51,24 +37,23 @@ impl Experiment {
     /// built-in default experiment.
     pub fn resolve(arg: Option<&PathBuf>, results: &Path) -> anyhow::Result<Experiment> {
         Ok(match arg {
-            Some(p) if p.is_dir() => Experiment {
-                name: p
-                    .file_name()
-                    .and_then(|s| s.to_str())
-                    .unwrap_or("results")
-                    .to_string(),
-                dir: p.clone(),
-                fit: FitSettings::default(),
-                model: manifest_spec(p).as_ref().map(|s| s.model.clone()),
-                gibbs_betas: manifest_spec(p).as_ref().map_or(vec![], gibbs_betas),
-                sampler_betas: manifest_spec(p)
-                    .as_ref()
-                    .map_or_else(Default::default, sampler_betas),
-            },
+            Some(p) if p.is_dir() => {
+                let spec = manifest_spec(p);
+                Experiment {
+                    name: p
+                        .file_name()
+                        .and_then(|s| s.to_str())
+                        .unwrap_or("results")
+                        .to_string(),
+                    dir: p.clone(),
+                    fit: FitSettings::default(),
+                    sampler_betas: spec.as_ref().map_or_else(Default::default, sampler_betas),
+                    model: spec.map(|s| s.model),
+                }
+            }
             Some(p) => {
                 let s = crate::spec::load(p)?;
                 Experiment {
-                    gibbs_betas: gibbs_betas(&s),
                     sampler_betas: sampler_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
@@ -79,7 +64,6 @@ impl Experiment {
             None => {
                 let s = crate::spec::default_spec();
                 Experiment {
-                    gibbs_betas: gibbs_betas(&s),
                     sampler_betas: sampler_betas(&s),
                     dir: results.join(&s.name),
                     name: s.name,
@@ -88,6 +72,14 @@ impl Experiment {
                 }
             }
         })
+    }
+
+    /// The distinct inverse temperatures of the samplers, increasing.
+    pub fn gibbs_betas(&self) -> Vec<f64> {
+        let mut b: Vec<f64> = self.sampler_betas.values().copied().collect();
+        b.sort_by(f64::total_cmp);
+        b.dedup();
+        b
     }
 
     /// The table's path, or an input error saying to run the experiment first.

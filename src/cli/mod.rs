@@ -156,14 +156,19 @@ impl CommonArgs {
     }
 
     pub fn jobs(&self) -> Result<usize, InputError> {
-        match self.jobs {
-            Some(0) => Err(InputError("--jobs 0: give at least 1".into())),
-            Some(j) if j > MAX_JOBS => Err(InputError(format!(
-                "--jobs {j}: at most {MAX_JOBS} cells run at once (each has its own thread)"
-            ))),
-            Some(j) => Ok(j),
-            None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
-        }
+        jobs(self.jobs)
+    }
+}
+
+/// `--jobs`: at least 1, at most [`MAX_JOBS`]; the number of cores when not given.
+pub fn jobs(given: Option<usize>) -> Result<usize, InputError> {
+    match given {
+        Some(0) => Err(InputError("--jobs 0: give at least 1".into())),
+        Some(j) if j > MAX_JOBS => Err(InputError(format!(
+            "--jobs {j}: at most {MAX_JOBS} cells run at once (each has its own thread)"
+        ))),
+        Some(j) => Ok(j),
+        None => Ok(std::thread::available_parallelism().map_or(1, |n| n.get())),
     }
 }
 

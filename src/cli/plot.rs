@@ -311,7 +311,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             });
         }
         let refs = if *family == exp.model.as_ref().map_or("", |m| m.family.name()) {
-            reference_lines(exp.model.as_ref(), &cache, &exp.gibbs_betas)?
+            reference_lines(exp.model.as_ref(), &cache, &exp.gibbs_betas())?
         } else {
             vec![]
         };

@@ -229,12 +229,7 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
             seconds(a.budget)
         );
     }
-    let jobs_wanted = match a.jobs {
-        Some(0) => return Err(InputError("--jobs 0: give at least 1".into()).into()),
-        Some(j) => j.min(super::MAX_JOBS),
-        None => std::thread::available_parallelism().map_or(1, |n| n.get()),
-    };
-    let jobs = jobs_wanted.min(memory::cells_that_fit(&spec, memory::budget(None))?);
+    let jobs = super::jobs(a.jobs)?.min(memory::cells_that_fit(&spec, memory::budget(None))?);
     let cache = Cache::new(scratch.0.join("cache"));
     cache.prepare()?;
     super::signals::install(f64::INFINITY, "comparing what is done");

@@ -247,20 +247,23 @@ fn manifest_checksum(path: &Path) -> Option<String> {
 /// one; tables written before the digest existed have none).
 pub fn read(path: &Path) -> Result<DataFrame, StoreError> {
     let bytes = read_bytes(path)?;
-    if manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(&bytes)) != want) {
-        return Err(damaged(
-            path,
-            "its bytes do not match the checksum its manifest.toml records",
-        ));
+    if manifest_mismatch(path, &bytes) {
+        return Err(damaged(path, CHECKSUM_MISMATCH));
     }
     let (df, digest_ok) = decode(path, &bytes)?;
     if !digest_ok {
-        return Err(damaged(
-            path,
-            "its content does not match the digest kiln wrote into it",
-        ));
+        return Err(damaged(path, DIGEST_MISMATCH));
     }
     Ok(df)
+}
+
+/// What [`read`] refuses and [`read_lenient`] reports.
+const CHECKSUM_MISMATCH: &str = "its bytes do not match the checksum its manifest.toml records";
+const DIGEST_MISMATCH: &str = "its content does not match the digest kiln wrote into it";
+
+/// Whether the checksum the `manifest.toml` beside the table records differs from `bytes`.
+fn manifest_mismatch(path: &Path, bytes: &[u8]) -> bool {
+    manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(bytes)) != want)
 }
 
 fn read_bytes(path: &Path) -> Result<Vec<u8>, StoreError> {
@@ -285,12 +288,12 @@ fn damaged(path: &Path, why: impl Into<String>) -> StoreError {
 pub fn read_lenient(path: &Path) -> Result<(DataFrame, Vec<String>), StoreError> {
     let bytes = read_bytes(path)?;
     let mut findings = Vec::new();
-    if manifest_checksum(path).is_some_and(|want| hex::encode(Sha256::digest(&bytes)) != want) {
-        findings.push("its bytes do not match the checksum its manifest.toml records".to_string());
+    if manifest_mismatch(path, &bytes) {
+        findings.push(CHECKSUM_MISMATCH.to_string());
     }
     let (df, digest_ok) = decode(path, &bytes)?;
     if !digest_ok {
-        findings.push("its content does not match the digest kiln wrote into it".into());
+        findings.push(DIGEST_MISMATCH.into());
     }
     Ok((df, findings))
 }
