@@ -144,6 +144,17 @@ impl Trace {
         (&self.blocks, self.block)
     }
 
+    /// The block means merged further, by neighbouring pairs, until at most `max` remain (an
+    /// odd last block is dropped), with their block length.
+    pub fn thinned(&self, max: usize) -> (Vec<f64>, u64) {
+        let (mut v, mut block) = (self.blocks.clone(), self.block);
+        while v.len() > max.max(1) {
+            v = v.chunks_exact(2).map(|p| 0.5 * (p[0] + p[1])).collect();
+            block *= 2;
+        }
+        (v, block)
+    }
+
     /// The integrated autocorrelation time of the series after its first half (the first half
     /// is burn-in), in units of pushes: [`integrated_autocorrelation`] of the block means times
     /// the block length. None with fewer than 16 blocks left.
@@ -222,6 +233,13 @@ mod tests {
             / (blocks.len() as f64 * len as f64);
         let mb = blocks.iter().sum::<f64>() / blocks.len() as f64;
         assert!((m - mb).abs() < 1e-9);
+        // Thinning keeps block means of the same series: at most the cap, the block length
+        // doubled per halving, the first thinned value the mean of its original blocks.
+        let (t, tl) = trace.thinned(100);
+        assert!(t.len() <= 100 && t.len() > 50, "{}", t.len());
+        let k = (tl / len) as usize;
+        let first = blocks[..k].iter().sum::<f64>() / k as f64;
+        assert!((t[0] - first).abs() < 1e-12 && tl == len * k as u64);
     }
 
     use super::*;

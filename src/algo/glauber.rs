@@ -131,7 +131,8 @@ impl Algorithm for Params {
 /// the energy per sweep over the second half of the run, and the overlap with the start.
 pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let mut trace = crate::measure::Trace::new(TRACE_BLOCKS);
-    run_observed(p, d, rng, |_, e| trace.push(e)).with_mixing(trace.autocorrelation_time())
+    let out = run_observed(p, d, rng, |_, e| trace.push(e));
+    out.with_mixing(&trace)
 }
 
 /// Block means kept of the energy trace (see [`crate::measure::Trace`]).

@@ -136,7 +136,7 @@ pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
             trace.push(e)
         }
     })
-    .with_mixing(trace.autocorrelation_time())
+    .with_mixing(&trace)
 }
 
 /// [`run`], calling `seen(step, H(x))` after every step (H at the new point is computed with

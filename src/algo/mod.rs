@@ -43,6 +43,21 @@ pub struct Info {
     pub autocorrelation_time: Option<f64>,
     /// Samplers: the overlap of the output with the start, σ_0·σ/n (x_0·x/n on the sphere).
     pub overlap_initial: Option<f64>,
+    /// Samplers: the energy trace, thinned (kept as a cache artifact, not in the table).
+    pub trace: Option<EnergyTrace>,
+}
+
+/// A sampler's energy trace: block means of H/n over consecutive blocks of `block` sweeps
+/// (steps for Langevin), at most [`EnergyTrace::POINTS`] of them.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct EnergyTrace {
+    pub block: u64,
+    pub energy: Vec<f64>,
+}
+
+impl EnergyTrace {
+    /// The most points a stored trace keeps.
+    pub const POINTS: usize = 256;
 }
 
 /// The result of one run.
@@ -57,9 +72,16 @@ pub struct Output {
 }
 
 impl Output {
-    /// The output with a sampler's autocorrelation time recorded.
-    pub fn with_mixing(mut self, autocorrelation_time: Option<f64>) -> Output {
-        self.info.autocorrelation_time = autocorrelation_time;
+    /// The output with a sampler's mixing diagnostics from its trace of H: the autocorrelation
+    /// time and the thinned trace of H/n.
+    pub fn with_mixing(mut self, trace: &crate::measure::Trace) -> Output {
+        let n = self.spins.len().max(1) as f64;
+        self.info.autocorrelation_time = trace.autocorrelation_time();
+        let (energy, block) = trace.thinned(EnergyTrace::POINTS);
+        self.info.trace = (!energy.is_empty()).then(|| EnergyTrace {
+            block,
+            energy: energy.into_iter().map(|e| e / n).collect(),
+        });
         self
     }
 }

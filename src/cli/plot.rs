@@ -119,9 +119,57 @@ fn reference_lines(
     })
 }
 
-/// For each sampler on a cube model: (β, the largest overlap q_max of the Parisi order
-/// parameter at β), from `theory --beta`'s cached solution.
+/// A sampler's Parisi order parameter at its β: β, q_max and the corners (q, x) of the step
+/// graph of x(q) on [0, 1].
+struct OrderParameter {
+    beta: f64,
+    q_max: f64,
+    corners: Vec<(f64, f64)>,
+}
+
+/// The corners of the step graph of x(q) = m[j] on [q[j], q[j+1]), x = 1 from q_max on.
+fn order_parameter_corners(sol: &crate::theory::full::FullRsb) -> Vec<(f64, f64)> {
+    let mut v = vec![(0.0, 0.0)];
+    for (j, &m) in sol.m.iter().enumerate() {
+        let m = m.clamp(0.0, 1.0);
+        v.push((sol.q[j], m));
+        v.push((sol.q[j + 1].min(1.0), m));
+        if m >= 1.0 - 1e-6 {
+            break;
+        }
+    }
+    v.push((1.0, 1.0));
+    v
+}
+
+/// For each sampler on a cube model: its Parisi order parameter at β, from `theory --beta`'s
+/// cached solution.
 fn sampler_overlaps(
+    model: Option<&crate::model::ModelSpec>,
+    cache: &Path,
+    samplers: &BTreeMap<String, f64>,
+) -> anyhow::Result<BTreeMap<String, OrderParameter>> {
+    let Some(xi) = model.filter(|m| m.family.spins()).and_then(|m| m.mixture()) else {
+        return Ok(BTreeMap::new());
+    };
+    let store = crate::store::cache::Cache::new(cache);
+    let mut out = BTreeMap::new();
+    for (label, &beta) in samplers {
+        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+        out.insert(
+            label.clone(),
+            OrderParameter {
+                beta,
+                q_max: crate::theory::full::largest_overlap(&sol),
+                corners: order_parameter_corners(&sol),
+            },
+        );
+    }
+    Ok(out)
+}
+
+/// For each sampler on a cube model: (β, the Gibbs mean energy per spin E(β)).
+fn sampler_energies(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
     samplers: &BTreeMap<String, f64>,
@@ -132,13 +180,132 @@ fn sampler_overlaps(
     let store = crate::store::cache::Cache::new(cache);
     let mut out = BTreeMap::new();
     for (label, &beta) in samplers {
-        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta)?;
-        out.insert(
-            label.clone(),
-            (beta, crate::theory::full::largest_overlap(&sol)),
-        );
+        let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+        out.insert(label.clone(), (beta, e));
     }
     Ok(out)
+}
+
+/// `traces-<algorithm>`: the energy trace of one instance per n (the smallest seed, replica
+/// 0), against sweeps on a log axis; for samplers on the cube, a dashed line at E(β).
+fn trace_figures(
+    path: &Path,
+    figdir: &Path,
+    size: Size,
+    name: &str,
+    spec_hash: &str,
+    targets: &BTreeMap<String, (f64, f64)>,
+) -> anyhow::Result<Vec<PathBuf>> {
+    let df = crate::store::table::read(path)?;
+    let strs = |c: &str| -> anyhow::Result<Vec<String>> {
+        Ok(df
+            .column(c)?
+            .str()?
+            .iter()
+            .map(|x| x.unwrap_or("").to_string())
+            .collect())
+    };
+    let ints = |c: &str| -> anyhow::Result<Vec<u64>> {
+        Ok(df
+            .column(c)?
+            .u64()?
+            .iter()
+            .map(|x| x.unwrap_or(0))
+            .collect())
+    };
+    let (algs, units) = (strs("algorithm")?, strs("time_unit")?);
+    let (ns, seeds, ends) = (ints("n")?, ints("seed")?, ints("time_end")?);
+    let reps: Vec<u32> = df
+        .column("replica")?
+        .u32()?
+        .iter()
+        .map(|x| x.unwrap_or(0))
+        .collect();
+    let es: Vec<f64> = df
+        .column("energy")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect();
+    // algorithm → n → (seed, points) of the smallest seed's replica 0.
+    type Traces = BTreeMap<u64, (u64, Vec<(f64, f64)>)>;
+    let mut by: BTreeMap<String, Traces> = BTreeMap::new();
+    let mut unit_of: BTreeMap<String, String> = BTreeMap::new();
+    for i in 0..es.len() {
+        if reps[i] != 0 {
+            continue;
+        }
+        unit_of.insert(algs[i].clone(), units[i].clone());
+        let slot = by
+            .entry(algs[i].clone())
+            .or_default()
+            .entry(ns[i])
+            .or_insert((seeds[i], Vec::new()));
+        if seeds[i] < slot.0 {
+            *slot = (seeds[i], Vec::new());
+        }
+        if seeds[i] == slot.0 {
+            slot.1.push((ends[i] as f64, es[i]));
+        }
+    }
+    let mut written = Vec::new();
+    for (label, per_n) in &by {
+        let unit = unit_of.get(label).map_or("sweep", |u| u.as_str());
+        let mut csv = format!(
+            "# kiln figure data: energy traces, one instance per n; experiment={name}; spec_hash={spec_hash}; time_unit={unit}\nalgorithm,n,seed,time_end,energy\n"
+        );
+        let series = per_n
+            .iter()
+            .map(|(n, (seed, pts))| {
+                for &(t, e) in pts {
+                    csv += &csv_line(&[
+                        label.clone(),
+                        n.to_string(),
+                        seed.to_string(),
+                        format!("{t}"),
+                        format!("{e:?}"),
+                    ]);
+                }
+                figures::TraceSeries {
+                    label: format!("n = {n}"),
+                    points: pts.clone(),
+                }
+            })
+            .collect();
+        let block = per_n
+            .values()
+            .filter_map(|(_, p)| p.first().map(|x| x.0))
+            .fold(0.0f64, f64::max);
+        let mut caption = format!(
+            "Energy per spin along one run of the sampler on one instance per n (the smallest seed, replica 0): means over blocks of consecutive {unit}s (at most {} blocks; up to {block} {unit}s per block), plotted at each block's end.",
+            crate::algo::EnergyTrace::POINTS
+        );
+        let target = targets.get(label).map(|&(beta, e)| {
+            caption += &format!(
+                " Dashed: the Gibbs mean energy per spin E(β) = {e:.4} at β = {beta}, dP/dβ of kiln's Parisi free energy."
+            );
+            csv = csv.replacen(
+                "\nalgorithm,n,",
+                &format!("; gibbs_energy={e:?}; beta={beta:?}\nalgorithm,n,"),
+                1,
+            );
+            (e, format!("E(β = {beta}) = {e:.4}"))
+        });
+        let fig = figures::TraceFigure {
+            title: label.clone(),
+            unit: unit.to_string(),
+            series,
+            caption,
+            target,
+        };
+        written.extend(write_all(
+            &figdir.join(format!("traces-{}", file_safe(label))),
+            size,
+            &csv,
+            &fig,
+        )?);
+    }
+    Ok(written)
 }
 
 /// `overlaps-<algorithm>`: histograms of the pairwise replica overlaps, one outline per n;
@@ -149,7 +316,8 @@ fn overlap_figures(
     size: Size,
     name: &str,
     spec_hash: &str,
-    q_max: &BTreeMap<String, (f64, f64)>,
+    order: &BTreeMap<String, OrderParameter>,
+    symmetric: bool,
 ) -> anyhow::Result<Vec<PathBuf>> {
     let df = crate::store::table::read(path)?;
     let algs: Vec<String> = df
@@ -170,18 +338,31 @@ fn overlap_figures(
         .iter()
         .map(|x| x.unwrap_or(f64::NAN))
         .collect();
+    let sym: Vec<f64> = df
+        .column("overlap_sym")?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect();
     let mut by: BTreeMap<String, BTreeMap<u64, Vec<f64>>> = BTreeMap::new();
+    let mut by_sym: BTreeMap<String, BTreeMap<u64, Vec<f64>>> = BTreeMap::new();
     for i in 0..qs.len() {
         by.entry(algs[i].clone())
             .or_default()
             .entry(ns[i])
             .or_default()
             .push(qs[i]);
+        by_sym
+            .entry(algs[i].clone())
+            .or_default()
+            .entry(ns[i])
+            .or_default()
+            .push(sym[i]);
     }
     let mut written = Vec::new();
     for (label, per_n) in &by {
         let mut csv = format!(
-            "# kiln figure data: replica overlap histograms; experiment={name}; spec_hash={spec_hash}\nalgorithm,n,bin_lo,bin_hi,density\n"
+            "# kiln figure data: replica overlap histograms; experiment={name}; spec_hash={spec_hash}\nkind,algorithm,n,q_lo,q_hi,value\n"
         );
         let series: Vec<figures::OverlapSeries> = per_n
             .iter()
@@ -189,6 +370,7 @@ fn overlap_figures(
                 let bins = figures::histogram(v, 40);
                 for b in &bins {
                     csv += &csv_line(&[
+                        "density".into(),
                         label.clone(),
                         n.to_string(),
                         format!("{:?}", b.0),
@@ -203,23 +385,60 @@ fn overlap_figures(
             })
             .collect();
         let mut caption = "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".to_string();
-        let markers = q_max.get(label).map(|&(beta, q)| {
+        let theory = order.get(label);
+        let markers = theory.map(|o| {
+            let (beta, q) = (o.beta, o.q_max);
             caption += &format!(
                 " Dashed: ±q_max = ±{q:.4}, the largest overlap of kiln's Parisi order parameter x(q) at β = {beta} (the support of the limiting overlap distribution ends there; Talagrand 2006, Panchenko 2013)."
             );
             // In the header line, so the data rows stay one histogram bin each.
             csv = csv.replacen(
-                "\nalgorithm,n,",
-                &format!("; q_max={q:?}; q_max_beta={beta:?}\nalgorithm,n,"),
+                "\nkind,algorithm,",
+                &format!("; q_max={q:?}; q_max_beta={beta:?}\nkind,algorithm,"),
                 1,
             );
             (vec![-q, q], format!("±q_max (Parisi, β = {beta})"))
+        });
+        let distribution = theory.map(|o| {
+            let what = if symmetric { "|R|" } else { "R" };
+            caption += &format!(
+                " Right: the empirical distribution function of {what} per n (same colours) and, dashed, x(q) at β = {}: the distribution function of the limiting overlap{} (kiln's full-RSB solution, a step function).",
+                o.beta,
+                if symmetric {
+                    " modulo the global flip"
+                } else {
+                    ""
+                }
+            );
+            for (q, x) in &o.corners {
+                csv += &csv_line(&[
+                    "parisi_x".into(),
+                    label.clone(),
+                    "inf".into(),
+                    format!("{q:?}"),
+                    format!("{q:?}"),
+                    format!("{x:?}"),
+                ]);
+            }
+            figures::OverlapDistribution {
+                samples: by_sym[label]
+                    .values()
+                    .map(|v| {
+                        let mut v = v.clone();
+                        v.sort_by(f64::total_cmp);
+                        v
+                    })
+                    .collect(),
+                parisi: (o.corners.clone(), format!("x(q), β = {}", o.beta)),
+                axis: format!("overlap  {what}"),
+            }
         });
         let fig = figures::OverlapFigure {
             title: label.clone(),
             series,
             caption,
             markers,
+            distribution,
         };
         written.extend(write_all(
             &figdir.join(format!("overlaps-{}", file_safe(label))),
@@ -393,14 +612,28 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     }
     let overlaps_path = dir.join("overlaps.parquet");
     if overlaps_path.is_file() {
-        let q_max = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
+        let order = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
+        let symmetric = exp.model.as_ref().is_none_or(|m| m.family.symmetric());
         written.extend(overlap_figures(
             &overlaps_path,
             &figdir,
             size,
             &name,
             &spec_hash,
-            &q_max,
+            &order,
+            symmetric,
+        )?);
+    }
+    let traces_path = dir.join("traces.parquet");
+    if traces_path.is_file() {
+        let targets = sampler_energies(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
+        written.extend(trace_figures(
+            &traces_path,
+            &figdir,
+            size,
+            &name,
+            &spec_hash,
+            &targets,
         )?);
     }
     if a.json {

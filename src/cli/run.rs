@@ -267,6 +267,9 @@ impl Outputs<'_> {
                 spec, self.plan, self.cache, &self.dir,
             )?);
         }
+        files.extend(crate::exec::traces::encode_traces(
+            spec, self.plan, self.cache, &self.dir,
+        )?);
         let tables = files
             .iter()
             .map(|(p, b)| {

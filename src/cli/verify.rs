@@ -32,6 +32,7 @@ pub fn run(a: &VerifyArgs) -> anyhow::Result<ExitCode> {
             "records": c.records,
             "spins": c.spins,
             "points": c.points,
+            "traces": c.traces,
             "theory": c.theory,
             "damaged": c.damaged.len(),
             "damaged_entries": c.damaged,
@@ -45,11 +46,12 @@ pub fn run(a: &VerifyArgs) -> anyhow::Result<ExitCode> {
             eprintln!("damaged: {d}");
         }
         out(&format!(
-            "{}: {} records, {} spins and {} point artifacts, {} theory solutions checked · {} damaged (moved to quarantine/) · {} leftover temporary files removed · {} stale claims removed\n",
+            "{}: {} records, {} spins, {} point and {} trace artifacts, {} theory solutions checked · {} damaged (moved to quarantine/) · {} leftover temporary files removed · {} stale claims removed\n",
             root.display(),
             c.records,
             c.spins,
             c.points,
+            c.traces,
             c.theory,
             c.damaged.len(),
             c.leftovers_removed,

@@ -7,6 +7,7 @@
 
 pub mod memory;
 pub mod overlaps;
+pub mod traces;
 
 use crate::cell::Key;
 use crate::measure;
@@ -361,6 +362,8 @@ struct CellFiles {
     record: Record,
     spins: Option<Vec<i8>>,
     point: Option<Vec<f64>>,
+    /// A sampler's energy trace on the reference instance.
+    trace: Option<crate::algo::EnergyTrace>,
 }
 
 impl CellFiles {
@@ -373,6 +376,9 @@ impl CellFiles {
         }
         if let Some(s) = &self.spins {
             cache.write_spins(&key, s)?;
+        }
+        if let Some(t) = &self.trace {
+            cache.write_trace(&key, t)?;
         }
         cache.write_record(&self.record)?;
         cache.clear_failed(&key);
@@ -526,7 +532,7 @@ fn compute_cell(
         kiln_version: prov.kiln_version.clone(),
         computed_by: prov.computed_by.clone(),
     };
-    let (mut spins, mut point) = (None, None);
+    let (mut spins, mut point, mut trace) = (None, None, None);
     if cell.is_base() {
         let (out, energy, (reduced, cut)) = run_reference(spec, cell)?;
         record.energy = energy;
@@ -539,6 +545,7 @@ fn compute_cell(
         record.iterations = out.info.iterations;
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
+        trace = out.info.trace;
         spins = Some(out.spins);
         point = out.point;
     } else {
@@ -618,6 +625,7 @@ fn compute_cell(
         record,
         spins,
         point,
+        trace,
     })
 }
 

@@ -58,6 +58,141 @@ pub struct OverlapFigure {
     pub caption: String,
     /// Vertical dashed lines at these overlaps, with one legend entry (e.g. ±q_max).
     pub markers: Option<(Vec<f64>, String)>,
+    /// A second panel: the empirical distribution function of the overlap (|R| for models
+    /// whose σ and −σ are one state) per n, against the Parisi order parameter x(q).
+    pub distribution: Option<OverlapDistribution>,
+}
+
+/// The distribution-function panel of an overlap figure.
+#[derive(Clone, Debug)]
+pub struct OverlapDistribution {
+    /// Per series (same order as the histograms): the sorted overlaps.
+    pub samples: Vec<Vec<f64>>,
+    /// x(q) as (q, x) corners of its step graph, and its legend text.
+    pub parisi: (Vec<(f64, f64)>, String),
+    /// Axis text, e.g. "|overlap|".
+    pub axis: String,
+}
+
+/// The corners of the graph of the empirical distribution function of sorted values on
+/// [lo, 1].
+pub fn empirical_cdf(sorted: &[f64], lo: f64) -> Vec<(f64, f64)> {
+    let k = sorted.len().max(1) as f64;
+    let mut v = vec![(lo, 0.0)];
+    for (i, &x) in sorted.iter().enumerate() {
+        v.push((x, i as f64 / k));
+        v.push((x, (i + 1) as f64 / k));
+    }
+    v.push((1.0, sorted.len() as f64 / k));
+    v
+}
+
+/// One trace: (sweep at the end of a block, block mean of H/n).
+#[derive(Clone, Debug)]
+pub struct TraceSeries {
+    pub label: String,
+    pub points: Vec<(f64, f64)>,
+}
+
+/// A sampler's energy traces against sweeps (log axis), one line per n, with a dashed line at
+/// the Gibbs mean energy where kiln has it.
+#[derive(Clone, Debug)]
+pub struct TraceFigure {
+    pub title: String,
+    /// "sweep" or "step": the unit of the time axis.
+    pub unit: String,
+    pub series: Vec<TraceSeries>,
+    pub caption: String,
+    pub target: Option<(f64, String)>,
+}
+
+impl super::Figure for TraceFigure {
+    fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        let main = with_caption(&root, &self.caption)?;
+        let pts = self.series.iter().flat_map(|s| s.points.iter());
+        let (mut xlo, mut xhi, mut lo, mut hi) = (f64::MAX, 1.0f64, f64::MAX, f64::MIN);
+        for &(x, y) in pts {
+            xlo = xlo.min(x);
+            xhi = xhi.max(x);
+            lo = lo.min(y);
+            hi = hi.max(y);
+        }
+        if xlo == f64::MAX {
+            return Err("no trace points to draw".into());
+        }
+        if let Some((e, _)) = &self.target {
+            lo = lo.min(*e);
+            hi = hi.max(*e);
+        }
+        let xlo = xlo.max(1e-3);
+        let pad = 0.08 * (hi - lo).max(1e-3);
+        // Headroom above the data: the legend goes there, off the traces.
+        let (lo, hi) = (lo - pad, hi + 0.45 * (hi - lo).max(1e-3));
+        let mut chart = ChartBuilder::on(&main)
+            .margin(pt(5.0) as u32)
+            .caption(&self.title, ("sans-serif", pt(8.0)))
+            .x_label_area_size(pt(20.0) as u32)
+            .y_label_area_size(pt(30.0) as u32)
+            .build_cartesian_2d(
+                (xlo / 1.3..xhi * 1.3)
+                    .log_scale()
+                    .with_key_points(log_ticks(xlo / 1.3, xhi * 1.3)),
+                lo..hi,
+            )
+            .map_err(err)?;
+        house_mesh(
+            &mut chart.configure_mesh(),
+            &format!("{}s", self.unit),
+            "energy per spin  H/n",
+            (5, 5),
+        )
+        .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))
+        .draw()
+        .map_err(err)?;
+        if let Some((e, label)) = &self.target {
+            chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(xlo / 1.3, *e), (xhi * 1.3, *e)],
+                    pt(3.0) as u32,
+                    pt(2.0) as u32,
+                    BLACK.stroke_width(3),
+                ))
+                .map_err(err)?
+                .label(label.clone())
+                .legend(|(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3))
+                });
+        }
+        for (i, s) in self.series.iter().enumerate() {
+            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            // Line styles differ too (solid, then dashed with growing gaps), so the traces
+            // read in grey.
+            let style = color.stroke_width(3);
+            let pts: Vec<(f64, f64)> = s.points.clone();
+            let drawn = if i == 0 {
+                chart
+                    .draw_series(LineSeries::new(pts, style))
+                    .map_err(err)?
+            } else {
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        pts,
+                        pt(1.0 + i as f64) as u32,
+                        pt(1.0) as u32,
+                        style,
+                    ))
+                    .map_err(err)?
+            };
+            drawn.label(s.label.clone()).legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
+            });
+        }
+        house_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
+        root.present().map_err(err)
+    }
 }
 
 /// Density histogram of values in [−1, 1] with `bins` equal bins.
@@ -85,18 +220,44 @@ impl super::Figure for OverlapFigure {
         DB::ErrorType: 'static,
     {
         let main = with_caption(&root, &self.caption)?;
+        let (hist, cdf) = match &self.distribution {
+            Some(_) => {
+                let w = main.dim_in_pixel().0;
+                let (a, b) = main.split_horizontally((w as f64 * 0.55) as u32);
+                (a, Some(b))
+            }
+            None => (main, None),
+        };
+        self.draw_histogram(&hist)?;
+        if let (Some(area), Some(d)) = (cdf, &self.distribution) {
+            self.draw_distribution(&area, d)?;
+        }
+        root.present().map_err(err)
+    }
+}
+
+impl OverlapFigure {
+    fn draw_histogram<DB: DrawingBackend>(
+        &self,
+        main: &DrawingArea<DB, Shift>,
+    ) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
         let ymax = self
             .series
             .iter()
             .flat_map(|s| s.bins.iter().map(|b| b.2))
             .fold(0.0f64, f64::max)
             .max(1e-9);
-        let mut chart = ChartBuilder::on(&main)
+        // Headroom above the bars: the legend sits there, off the data.
+        let top = ymax * 2.1;
+        let mut chart = ChartBuilder::on(main)
             .margin(pt(5.0) as u32)
             .caption(&self.title, ("sans-serif", pt(8.0)))
             .x_label_area_size(pt(20.0) as u32)
             .y_label_area_size(pt(30.0) as u32)
-            .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..ymax * 1.15)
+            .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..top)
             .map_err(err)?;
         house_mesh(
             &mut chart.configure_mesh(),
@@ -110,7 +271,7 @@ impl super::Figure for OverlapFigure {
             for (k, &x) in xs.iter().enumerate() {
                 let drawn = chart
                     .draw_series(DashedLineSeries::new(
-                        vec![(x, 0.0), (x, ymax * 1.15)],
+                        vec![(x, 0.0), (x, ymax * 1.05)],
                         pt(3.0) as u32,
                         pt(2.0) as u32,
                         BLACK.stroke_width(3),
@@ -139,15 +300,58 @@ impl super::Figure for OverlapFigure {
                     PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
                 });
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .label_font(("sans-serif", pt(6.5)))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK)
+        house_legend(&mut chart, SeriesLabelPosition::UpperRight)
+    }
+
+    fn draw_distribution<DB: DrawingBackend>(
+        &self,
+        area: &DrawingArea<DB, Shift>,
+        d: &OverlapDistribution,
+    ) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        let lo = d
+            .samples
+            .iter()
+            .flatten()
+            .fold(0.0f64, |a, &b| a.min(b))
+            .max(-1.0);
+        let mut chart = ChartBuilder::on(area)
+            .margin(pt(5.0) as u32)
+            .caption("distribution function", ("sans-serif", pt(8.0)))
+            .x_label_area_size(pt(20.0) as u32)
+            .y_label_area_size(pt(22.0) as u32)
+            .build_cartesian_2d(lo..1.0f64, 0.0f64..1.45)
+            .map_err(err)?;
+        house_mesh(&mut chart.configure_mesh(), &d.axis, "P(≤ q)", (3, 4))
+            .y_label_formatter(&|y| {
+                if *y <= 1.0 + 1e-9 {
+                    format!("{y:.1}")
+                } else {
+                    String::new()
+                }
+            })
             .draw()
             .map_err(err)?;
-        root.present().map_err(err)
+        let (corners, label) = &d.parisi;
+        chart
+            .draw_series(DashedLineSeries::new(
+                corners.clone(),
+                pt(3.0) as u32,
+                pt(2.0) as u32,
+                BLACK.stroke_width(3),
+            ))
+            .map_err(err)?
+            .label(label.clone())
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+        for (i, v) in d.samples.iter().enumerate() {
+            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            chart
+                .draw_series(LineSeries::new(empirical_cdf(v, lo), color.stroke_width(3)))
+                .map_err(err)?;
+        }
+        house_legend(&mut chart, SeriesLabelPosition::UpperLeft)
     }
 }
 
@@ -378,14 +582,7 @@ where
             marker(chart.plotting_area(), i, (x, p.1), color)?;
         }
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .label_font(("sans-serif", pt(6.5)))
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .draw()
-        .map_err(err)?;
+    house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     root.present().map_err(err)
 }
 
@@ -477,14 +674,7 @@ where
             marker(chart.plotting_area(), i, (p.0, p.1), color)?;
         }
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .label_font(("sans-serif", pt(6.5)))
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .draw()
-        .map_err(err)?;
+    house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     root.present().map_err(err)
 }
 
@@ -510,6 +700,26 @@ where
         .label_style(("sans-serif", pt(7.0)))
         .axis_desc_style(("sans-serif", pt(8.0)))
         .axis_style(BLACK.stroke_width(2))
+}
+
+/// The legend box every figure uses.
+fn house_legend<'a, DB, CT>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    position: SeriesLabelPosition,
+) -> Result<(), String>
+where
+    DB: DrawingBackend + 'a,
+    DB::ErrorType: 'static,
+    CT: plotters::coord::CoordTranslate,
+{
+    chart
+        .configure_series_labels()
+        .position(position)
+        .label_font(("sans-serif", pt(6.5)))
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .draw()
+        .map_err(err)
 }
 
 /// Tick values for a log axis from `lo` to `hi`: the powers of ten inside, and also 2 and 5

@@ -159,6 +159,7 @@ fn guide(facts: &ManifestFacts, files: &[String]) -> String {
             "overlaps.parquet" => "pairwise overlaps of independent replica outputs",
             "triples.parquet" => "overlap triples of replica outputs",
             "chaos.parquet" => "disorder chaos: overlaps of independent outputs on both instances",
+            "traces.parquet" => "samplers' energy traces, thinned block means of energy per spin",
             "extrapolation.parquet" => "finite-size-scaling fits: energy per spin at n = infinity",
             "differences.parquet" => "paired differences between algorithms on the same instances",
             "extrapolation.tex" => "the fits as a LaTeX table",

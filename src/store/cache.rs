@@ -22,6 +22,7 @@ pub const RECORD_FORMAT: u32 = 1;
 const RECORD_MAGIC: &str = "kiln-record 1 sha256=";
 const SPINS_MAGIC: &[u8; 8] = b"KILNSPN1";
 const POINT_MAGIC: &[u8; 8] = b"KILNPNT1";
+const TRACE_MAGIC: &[u8; 8] = b"KILNTRC1";
 
 /// Everything kiln keeps about one computed cell. Identity fields, the numbers, and provenance.
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
@@ -202,9 +203,13 @@ impl Cache {
         self.entry(key, "points", "point")
     }
 
+    pub fn trace_path(&self, key: &Key) -> PathBuf {
+        self.entry(key, "traces", "trace")
+    }
+
     /// Creates the cache folders, so that an unusable location is reported up front.
     pub fn prepare(&self) -> Result<(), StoreError> {
-        for sub in ["records", "spins", "points", "claims"] {
+        for sub in ["records", "spins", "points", "traces", "claims"] {
             let path = self.root.join(sub);
             std::fs::create_dir_all(&path).map_err(|source| StoreError::Write { path, source })?;
         }
@@ -309,6 +314,27 @@ impl Cache {
     pub fn read_point(&self, key: &Key) -> Result<Lookup<Vec<f64>>, StoreError> {
         let path = self.point_path(key);
         self.read_entry(path, |b| decode_point(b, key))
+    }
+
+    /// Writes a sampler's energy trace: `KILNTRC1`, the key, the number of points m as u64 LE,
+    /// the block length as u64 LE, m f64 LE, then the SHA-256 of everything before it.
+    pub fn write_trace(&self, key: &Key, t: &crate::algo::EnergyTrace) -> Result<(), StoreError> {
+        let mut buf = Vec::with_capacity(8 + 32 + 16 + 8 * t.energy.len() + 32);
+        buf.extend_from_slice(TRACE_MAGIC);
+        buf.extend_from_slice(&key.0);
+        buf.extend_from_slice(&(t.energy.len() as u64).to_le_bytes());
+        buf.extend_from_slice(&t.block.to_le_bytes());
+        for v in &t.energy {
+            buf.extend_from_slice(&v.to_le_bytes());
+        }
+        let sum = Sha256::digest(&buf);
+        buf.extend_from_slice(&sum);
+        write_atomic(&self.trace_path(key), &buf)
+    }
+
+    pub fn read_trace(&self, key: &Key) -> Result<Lookup<crate::algo::EnergyTrace>, StoreError> {
+        let path = self.trace_path(key);
+        self.read_entry(path, |b| decode_trace(b, key))
     }
 
     /// Reads an entry through `decode`: missing, a hit, or damaged (moved aside). A folder
@@ -451,6 +477,21 @@ fn decode_point(bytes: &[u8], key: &Key) -> Result<Vec<f64>, String> {
         .chunks_exact(8)
         .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
         .collect())
+}
+
+fn decode_trace(bytes: &[u8], key: &Key) -> Result<crate::algo::EnergyTrace, String> {
+    let (m, body) = open_artifact(bytes, TRACE_MAGIC, "trace", key)?;
+    if body.len() != 8 + 8 * m {
+        return Err("length does not match the number of points".into());
+    }
+    let block = u64::from_le_bytes(body[..8].try_into().expect("8 bytes"));
+    Ok(crate::algo::EnergyTrace {
+        block,
+        energy: body[8..]
+            .chunks_exact(8)
+            .map(|c| f64::from_le_bytes(c.try_into().expect("8 bytes")))
+            .collect(),
+    })
 }
 
 #[cfg(test)]

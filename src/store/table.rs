@@ -492,6 +492,61 @@ impl Chaos {
     }
 }
 
+/// Samplers' energy traces: one row per (algorithm, n, seed, replica, block), the block's
+/// mean energy per spin and the time at which it ends, in the unit of `time_unit` (`sweep`
+/// for spin samplers, `step` for Langevin).
+#[derive(Default)]
+pub struct Traces {
+    algorithm: Vec<String>,
+    n: Vec<u64>,
+    seed: Vec<u64>,
+    replica: Vec<u32>,
+    end: Vec<u64>,
+    block: Vec<u64>,
+    energy: Vec<f64>,
+    unit: Vec<&'static str>,
+}
+
+impl Traces {
+    #[allow(clippy::too_many_arguments)]
+    pub fn push(
+        &mut self,
+        algorithm: &str,
+        n: u64,
+        seed: u64,
+        replica: u32,
+        unit: &'static str,
+        t: &crate::algo::EnergyTrace,
+    ) {
+        for (i, &e) in t.energy.iter().enumerate() {
+            self.unit.push(unit);
+            self.algorithm.push(algorithm.into());
+            self.n.push(n);
+            self.seed.push(seed);
+            self.replica.push(replica);
+            self.end.push((i as u64 + 1) * t.block);
+            self.block.push(t.block);
+            self.energy.push(e);
+        }
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.n.is_empty()
+    }
+
+    pub fn encode(&self, path: &Path, experiment: &str) -> Result<Vec<u8>, StoreError> {
+        let mut cols = group_columns(experiment, &self.algorithm, &self.n, &self.seed);
+        cols.extend([
+            Column::new("replica".into(), self.replica.clone()),
+            Column::new("time_end".into(), self.end.clone()),
+            Column::new("block".into(), self.block.clone()),
+            Column::new("time_unit".into(), self.unit.clone()),
+            Column::new("energy".into(), self.energy.clone()),
+        ]);
+        encode_frame(path, DataFrame::new_infer_height(cols), Vec::new())
+    }
+}
+
 /// The columns naming a replica group: experiment, algorithm, n, seed.
 fn group_columns(experiment: &str, algorithm: &[String], n: &[u64], seed: &[u64]) -> Vec<Column> {
     vec![

@@ -1,4 +1,4 @@
-//! Checking a whole cache: every entry kind (records, spins and point artifacts, claims,
+//! Checking a whole cache: every entry kind (records, spins, point and trace artifacts, claims,
 //! theory solutions) read through the same checks as a run uses; damaged entries moved to
 //! `quarantine/`, orphaned temporary files and stale claims removed.
 
@@ -14,6 +14,7 @@ pub struct Report {
     pub records: u64,
     pub spins: u64,
     pub points: u64,
+    pub traces: u64,
     pub theory: u64,
     /// `path (reason) → where it was moved`, one per damaged entry.
     pub damaged: Vec<String>,
@@ -74,7 +75,12 @@ fn note<T>(lookup: Lookup<T>, report: &mut Report) {
 pub fn verify(cache: &Cache) -> Result<Report, StoreError> {
     let root = cache.root().to_path_buf();
     let mut r = Report::default();
-    for (sub, ext) in [("records", "rec"), ("spins", "spins"), ("points", "point")] {
+    for (sub, ext) in [
+        ("records", "rec"),
+        ("spins", "spins"),
+        ("points", "point"),
+        ("traces", "trace"),
+    ] {
         for path in sharded_files(&root.join(sub)) {
             let name = name_of(&path);
             if temporary(&path, &name, &mut r) {
@@ -99,6 +105,10 @@ pub fn verify(cache: &Cache) -> Result<Report, StoreError> {
                 "point" => {
                     r.points += 1;
                     note(cache.read_point(&key)?, &mut r);
+                }
+                "trace" => {
+                    r.traces += 1;
+                    note(cache.read_trace(&key)?, &mut r);
                 }
                 _ => unreachable!("kinds listed above"),
             }

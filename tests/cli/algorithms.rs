@@ -302,12 +302,13 @@ fn replica_overlaps_and_sorted_triples() {
     let mut mass = std::collections::BTreeMap::<String, f64>::new();
     for l in csv.lines().skip(2) {
         let f: Vec<&str> = l.split(',').collect();
+        assert_eq!(f[0], "density", "{l}");
         let (lo, hi, d): (f64, f64, f64) = (
-            f[2].parse().unwrap(),
             f[3].parse().unwrap(),
             f[4].parse().unwrap(),
+            f[5].parse().unwrap(),
         );
-        *mass.entry(f[1].to_string()).or_default() += (hi - lo) * d;
+        *mass.entry(f[2].to_string()).or_default() += (hi - lo) * d;
     }
     assert_eq!(mass.len(), 2, "{csv}");
     assert!(mass.values().all(|m| (m - 1.0).abs() < 1e-9), "{mass:?}");

@@ -220,7 +220,25 @@ sweeps = 1000
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(Some(q), v["temperature"][0]["q_max"].as_f64());
     assert!(q > 0.4 && q < 1.0, "{q}");
-    assert!(csv.lines().skip(2).all(|l| l.split(',').count() == 5));
+    assert!(csv.lines().skip(2).all(|l| l.split(',').count() == 6));
+    // Beside the histogram, x(q) itself: a non-decreasing step graph from (0, ·) to (1, 1)
+    // whose value first reaches 1 at q_max.
+    let x: Vec<(f64, f64)> = csv
+        .lines()
+        .filter(|l| l.starts_with("parisi_x,"))
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[3].parse().unwrap(), f[5].parse().unwrap())
+        })
+        .collect();
+    assert!(x.len() >= 4, "{csv}");
+    assert!(
+        x.windows(2).all(|p| p[0].0 <= p[1].0 && p[0].1 <= p[1].1),
+        "{x:?}"
+    );
+    assert_eq!(x.last(), Some(&(1.0, 1.0)));
+    let first_one = x.iter().find(|p| p.1 >= 1.0 - 1e-6).unwrap().0;
+    assert_eq!(first_one, q, "{x:?}");
 }
 
 /// Mixing diagnostics in the table: at β = 0.5 on SK Glauber forgets its start (|overlap with
@@ -288,6 +306,52 @@ kind = "descent"
     for q in of("hot", &q0) {
         assert!(q.unwrap().abs() < 5.0 / 200f64.sqrt(), "{q:?}");
     }
+    // The energy traces: one per sampler cell (none for descent), at most 256 block means
+    // covering the 400 sweeps, kept in the cache (checked by `kiln verify`) and gathered into
+    // traces.parquet. At β = 0.5 the second half of each trace averages to the finite-n
+    // Gibbs energy β(n − 1)/(2n) (Aizenman, Lebowitz & Ruelle 1987; see the unit test
+    // `glauber::tests::mean_energy_at_high_temperature_is_the_annealed_value`):
+    // checked to 4 SE over the 6 instances plus 3/n for the quenched-annealed difference.
+    let t = table::read(&w.path().join("results/mix/traces.parquet")).unwrap();
+    let col = |name: &str| t.column(name).unwrap().clone();
+    let alg: Vec<String> = col("algorithm")
+        .str()
+        .unwrap()
+        .iter()
+        .map(|s| s.unwrap().to_string())
+        .collect();
+    let seeds: Vec<u64> = col("seed").u64().unwrap().into_no_null_iter().collect();
+    let ends: Vec<u64> = col("time_end").u64().unwrap().into_no_null_iter().collect();
+    let es: Vec<f64> = col("energy").f64().unwrap().into_no_null_iter().collect();
+    assert!(!alg.iter().any(|a| a == "descent"));
+    let mut late = Vec::new();
+    for label in ["hot", "cold"] {
+        for seed in 0..6u64 {
+            let rows: Vec<usize> = (0..alg.len())
+                .filter(|&i| alg[i] == label && seeds[i] == seed)
+                .collect();
+            assert!(
+                rows.len() > 100 && rows.len() <= 256,
+                "{label} {seed}: {}",
+                rows.len()
+            );
+            let last = *rows.last().unwrap();
+            assert!(ends[last] <= 400 && ends[last] > 390, "{}", ends[last]);
+            if label == "hot" {
+                let half = &rows[rows.len() / 2..];
+                late.push(half.iter().map(|&i| es[i]).sum::<f64>() / half.len() as f64);
+            }
+        }
+    }
+    let (m, se) = mean_se(&late);
+    let want = 0.5 * 199.0 / 400.0;
+    assert!(
+        (m - want).abs() < 4.0 * se + 3.0 / 200.0,
+        "{m} ± {se} against {want}"
+    );
+    let o = w.kiln(&["verify", "--results", "results", "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["traces"].as_u64(), Some(12), "{v}");
     // The energy figure draws each sampler's target, the Gibbs mean energy at its β: β/2 at
     // β = 0.5 (Aizenman, Lebowitz & Ruelle 1987), and below the Parisi value at β = 3.
     let o = w.kiln(&["plot", "mix.toml"]);
@@ -307,6 +371,27 @@ kind = "descent"
     );
     assert!((e_hot - 0.25).abs() < 1e-6, "{e_hot}");
     assert!(e_cold > 0.7 && e_cold < 0.7631667, "{e_cold}");
+    // The traces figure of each sampler, with E(β) in its data header.
+    let csv = std::fs::read_to_string(w.path().join("results/mix/figures/traces-hot.csv")).unwrap();
+    let header = csv.lines().next().unwrap();
+    let e: f64 = header
+        .split("gibbs_energy=")
+        .nth(1)
+        .and_then(|t| t.split(';').next())
+        .unwrap()
+        .parse()
+        .unwrap();
+    assert_eq!(e, e_hot, "{header}");
+    assert!(
+        w.path()
+            .join("results/mix/figures/traces-cold.pdf")
+            .is_file()
+    );
+    assert!(
+        !w.path()
+            .join("results/mix/figures/traces-descent.csv")
+            .exists()
+    );
 }
 
 /// The localization sampler's independent samples obey the same high-temperature overlap law
