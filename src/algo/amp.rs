@@ -151,14 +151,7 @@ impl Algorithm for Params {
         )
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
-        match inst {
-            Instance::Sk(d) => run(self, d.n(), &Mixture::sk(), |x, y| d.value_grad(x, y), rng),
-            Instance::Cube(m) => run(self, m.n(), m.mixture(), |x, y| m.value_grad(x, y), rng),
-            _ => Err(super::not_for(
-                KIND.name,
-                "it runs on dense models on the cube (sk, cube)",
-            )),
-        }
+        super::on_dense_cube!(inst, KIND.name, |n, xi, grad| run(self, n, xi, grad, rng))
     }
 }
 

@@ -113,10 +113,30 @@ impl Algorithm for Params {
             .then_some("it needs ∇H: a mean-field mixture (sk, cube, sphere) or a graph")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
+        let (inst, h) = inst.split_field();
+        let field = |x: &[f64], y: &mut [f64]| {
+            super::with_field(h, 0.0, x, y);
+        };
         Ok(match inst {
             Instance::Sphere(m) => run(self, m, rng),
-            Instance::Sk(d) => run_cube(self, d.n(), |x, y| d.matvec(x, y), rng),
-            Instance::Graph(g) => run_cube(self, g.n(), |x, y| g.matvec(x, y), rng),
+            Instance::Sk(d) => run_cube(
+                self,
+                d.n(),
+                |x, y| {
+                    d.matvec(x, y);
+                    field(x, y)
+                },
+                rng,
+            ),
+            Instance::Graph(g) => run_cube(
+                self,
+                g.n(),
+                |x, y| {
+                    g.matvec(x, y);
+                    field(x, y)
+                },
+                rng,
+            ),
             Instance::Spins(_) => {
                 return Err(super::not_for(KIND.name, "the instance has no gradient"));
             }
@@ -125,9 +145,11 @@ impl Algorithm for Params {
                 m.n(),
                 |x, y| {
                     m.value_grad(x, y);
+                    field(x, y)
                 },
                 rng,
             ),
+            Instance::Fielded(..) => unreachable!("split above"),
         })
     }
 }

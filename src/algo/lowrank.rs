@@ -172,7 +172,10 @@ impl Algorithm for Params {
         )
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
-        match inst {
+        // With a field the relaxation is of the couplings alone; the field picks the sign of
+        // the rounded output.
+        let (inst, h) = inst.split_field();
+        let out = match inst {
             Instance::Sk(d) => Ok(super::with_relaxation(run(self, d, rng))),
             Instance::Graph(g) => Ok(super::with_relaxation(run(self, g, rng))),
             Instance::Cube(m) => match (m.dense(), m.is_quadratic()) {
@@ -181,7 +184,9 @@ impl Algorithm for Params {
             },
             Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
             Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
-        }
+            Instance::Fielded(..) => unreachable!("split above"),
+        };
+        out.map(|o| super::toward_field(o, h))
     }
 }
 

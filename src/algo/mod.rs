@@ -358,6 +358,28 @@ macro_rules! on_cube {
             Instance::Cube($d) => Ok($body),
             Instance::Graph($d) => Ok($body),
             Instance::Spins($d) => Ok($body),
+            Instance::Fielded(inner, h) => {
+                let h = *h;
+                match &**inner {
+                    Instance::Sk(x) => {
+                        let $d = &crate::model::Fielded { inner: x, h };
+                        Ok($body)
+                    }
+                    Instance::Cube(x) => {
+                        let $d = &crate::model::Fielded { inner: x, h };
+                        Ok($body)
+                    }
+                    Instance::Graph(x) => {
+                        let $d = &crate::model::Fielded { inner: x, h };
+                        Ok($body)
+                    }
+                    Instance::Spins(x) => {
+                        let $d = &crate::model::Fielded { inner: x, h };
+                        Ok($body)
+                    }
+                    _ => Err(super::not_for($kind, "a field applies to ±1 spins only")),
+                }
+            }
             Instance::Sphere(_) => Err(super::not_for(
                 $kind,
                 "it moves ±1 spins; the sphere has real coordinates",
@@ -367,10 +389,60 @@ macro_rules! on_cube {
 }
 pub(crate) use on_cube;
 
+/// Runs a kernel that needs n, ξ and the value-and-gradient of H on a dense model on the cube
+/// (sk, cube), the field (if any) added to the gradient; other instances are refused.
+macro_rules! on_dense_cube {
+    ($inst:expr, $kind:expr, |$n:ident, $xi:ident, $grad:ident| $body:expr) => {{
+        let (inst, h) = $inst.split_field();
+        match inst {
+            Instance::Sk(d) => {
+                let ($n, $xi) = (d.n(), &Mixture::sk());
+                let $grad =
+                    |x: &[f64], y: &mut [f64]| super::with_field(h, d.value_grad(x, y), x, y);
+                $body
+            }
+            Instance::Cube(m) => {
+                let ($n, $xi) = (m.n(), m.mixture());
+                let $grad =
+                    |x: &[f64], y: &mut [f64]| super::with_field(h, m.value_grad(x, y), x, y);
+                $body
+            }
+            _ => Err(super::not_for(
+                $kind,
+                "it runs on dense models on the cube (sk, cube)",
+            )),
+        }
+    }};
+}
+pub(crate) use on_dense_cube;
+
 /// The error for running a kind on an instance it does not support (the spec refuses these
 /// before anything runs; this is the guard behind it).
 pub(crate) fn not_for(kind: &'static str, why: &'static str) -> AlgoError {
     AlgoError::Unsupported { kind, why }
+}
+
+/// A value and gradient of H with a uniform field h added: ∇ + h, value + hΣx (unchanged,
+/// bit for bit, when h = 0).
+pub(crate) fn with_field(h: f64, value: f64, x: &[f64], grad: &mut [f64]) -> f64 {
+    if h == 0.0 {
+        return value;
+    }
+    grad.iter_mut().for_each(|g| *g += h);
+    value + h * x.iter().sum::<f64>()
+}
+
+/// The output of a run on the couplings alone (which cannot tell σ from −σ) turned toward a
+/// field h: of σ and −σ, the one with hΣσ ≥ 0 (the point flipped with it).
+pub(crate) fn toward_field(mut out: Output, h: f64) -> Output {
+    let m: i64 = out.spins.iter().map(|&s| s as i64).sum();
+    if h * (m as f64) < 0.0 {
+        out.spins.iter_mut().for_each(|s| *s = -*s);
+        if let Some(x) = &mut out.point {
+            x.iter_mut().for_each(|v| *v = -*v);
+        }
+    }
+    out
 }
 
 pub(crate) fn with_relaxation((mut out, value): (Output, f64)) -> Output {

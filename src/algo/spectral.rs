@@ -104,7 +104,9 @@ impl Algorithm for Params {
             .then_some("it needs a quadratic H (a p = 2 model: sk, a graph, or xi = { 2 = … })")
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, AlgoError> {
-        match inst {
+        // With a field the eigenvector is of the couplings alone; the field picks its sign.
+        let (inst, h) = inst.split_field();
+        let out = match inst {
             Instance::Sk(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
             Instance::Graph(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
             Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
@@ -112,7 +114,9 @@ impl Algorithm for Params {
                 (Some(d), true) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
-        }
+            Instance::Fielded(..) => unreachable!("split above"),
+        };
+        out.map(|o| super::toward_field(o, h))
     }
 }
 

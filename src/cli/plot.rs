@@ -56,15 +56,25 @@ fn reference_lines(
     Ok(if m.family.spins() {
         let store = crate::store::cache::Cache::new(cache);
         let mut gibbs = Vec::new();
+        let h = m.field;
+        let with_field = if h != 0.0 {
+            format!(" with field h = {h}")
+        } else {
+            String::new()
+        };
         for &beta in gibbs_betas {
-            let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+            let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta, h)?;
             gibbs.push((
                 e,
                 format!("Gibbs energy at β = {beta}: {e:.4}"),
                 format!(
-                    "Gibbs mean energy per spin at β = {beta}: {e:.6}, dP/dβ of kiln's Parisi free energy at β (the samplers' target; Talagrand 2006, Panchenko 2013)."
+                    "Gibbs mean energy per spin at β = {beta}{with_field}: {e:.6}, dP/dβ of kiln's Parisi free energy at β (the samplers' target; Talagrand 2006, Panchenko 2013)."
                 ),
             ));
+        }
+        if h != 0.0 {
+            // kiln's zero-temperature values are for the model without a field.
+            return Ok(gibbs);
         }
         let (value, which) = crate::theory::cached::parisi_best(&store, xi)?;
         let mut caption = format!(
@@ -149,13 +159,16 @@ fn sampler_overlaps(
     cache: &Path,
     samplers: &BTreeMap<String, f64>,
 ) -> anyhow::Result<BTreeMap<String, OrderParameter>> {
-    let Some(xi) = model.filter(|m| m.family.spins()).and_then(|m| m.mixture()) else {
+    let Some((m, xi)) = model
+        .filter(|m| m.family.spins())
+        .and_then(|m| Some(m).zip(m.mixture()))
+    else {
         return Ok(BTreeMap::new());
     };
     let store = crate::store::cache::Cache::new(cache);
     let mut out = BTreeMap::new();
     for (label, &beta) in samplers {
-        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta, m.field)?;
         out.insert(
             label.clone(),
             OrderParameter {
@@ -174,13 +187,16 @@ fn sampler_energies(
     cache: &Path,
     samplers: &BTreeMap<String, f64>,
 ) -> anyhow::Result<BTreeMap<String, (f64, f64)>> {
-    let Some(xi) = model.filter(|m| m.family.spins()).and_then(|m| m.mixture()) else {
+    let Some((m, xi)) = model
+        .filter(|m| m.family.spins())
+        .and_then(|m| Some(m).zip(m.mixture()))
+    else {
         return Ok(BTreeMap::new());
     };
     let store = crate::store::cache::Cache::new(cache);
     let mut out = BTreeMap::new();
     for (label, &beta) in samplers {
-        let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta)?;
+        let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta, m.field)?;
         out.insert(label.clone(), (beta, e));
     }
     Ok(out)
@@ -485,8 +501,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     let cells = crate::store::table::Cells::read(&table_path)?;
     // Stability figures draw `distance_sym`, which is modulo the global flip for symmetric
     // models (tables written before it existed give the raw distance).
-    let modulo_flip =
-        cells.distance_is_sym && exp.model.as_ref().is_some_and(|m| m.family.symmetric());
+    let modulo_flip = cells.distance_is_sym && exp.model.as_ref().is_some_and(|m| m.symmetric());
     let (order, energies, distances) = cells.groups();
     let figdir = dir.join("figures");
     let mut written: Vec<PathBuf> = Vec::new();
@@ -613,7 +628,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     let overlaps_path = dir.join("overlaps.parquet");
     if overlaps_path.is_file() {
         let order = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
-        let symmetric = exp.model.as_ref().is_none_or(|m| m.family.symmetric());
+        let symmetric = exp.model.as_ref().is_none_or(|m| m.symmetric());
         written.extend(overlap_figures(
             &overlaps_path,
             &figdir,

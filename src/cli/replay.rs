@@ -260,7 +260,8 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
     let replay_rows: Vec<table::Row> = computed
         .iter()
         .map(|&(i, r)| table::Row {
-            symmetric: spec.model.family.symmetric(),
+            symmetric: spec.model.symmetric(),
+            field: spec.model.field,
             experiment: &spec.name,
             label: &spec.algorithms[plan.cells[i].algo].label,
             record: r,

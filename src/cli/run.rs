@@ -249,7 +249,8 @@ impl Outputs<'_> {
             .filter(|cell| cell.replica == 0)
             .filter_map(|cell| {
                 records.get(&cell.key).map(|r| table::Row {
-                    symmetric: spec.model.family.symmetric(),
+                    symmetric: spec.model.symmetric(),
+                    field: spec.model.field,
                     experiment: &spec.name,
                     label: &spec.algorithms[cell.algo].label,
                     record: r,

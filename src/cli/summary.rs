@@ -26,7 +26,7 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
     );
     let points = records.values().any(|r| r.distance_point.is_some());
     // Distances modulo the global flip where σ and −σ are one state (the `_sym` columns).
-    let flip = spec.model.family.symmetric();
+    let flip = spec.model.symmetric();
     let sym = |d: f64| crate::measure::distance_sym(d, flip);
     let head = if flip {
         "   distance mod ± at ε ="

@@ -27,6 +27,11 @@ pub struct TheoryArgs {
     /// temperatures (comma-separated).
     #[arg(long, value_name = "β,…", value_delimiter = ',')]
     pub beta: Vec<f64>,
+    /// A uniform field h (H + h Σσ_i) for the --beta values: the replica-symmetric q(β, h),
+    /// the de Almeida–Thouless test and the Parisi free energy with the field. Default: the
+    /// spec's `field` (0 with --mixture).
+    #[arg(long, value_name = "h")]
+    pub field: Option<f64>,
     /// The order parameters go to `<results>/<experiment>/theory.csv` (or
     /// `<results>/theory-<hash>.csv` for a --mixture); solutions are cached under
     /// `<cache>/theory`.
@@ -65,6 +70,7 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
 }
 
 pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
+    let mut spec_field = 0.0;
     let (xi, experiment) = match &a.mixture {
         Some(m) => (parse_mixture(m)?, None),
         None => {
@@ -80,6 +86,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 ))
                 .into());
             };
+            spec_field = spec.model.field;
             (xi, Some(spec.name))
         }
     };
@@ -88,6 +95,16 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     }
     if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
         return Err(InputError("--beta: give positive inverse temperatures".into()).into());
+    }
+    let field = a.field.unwrap_or(spec_field);
+    if !(field.is_finite() && field.abs() <= 100.0) {
+        return Err(InputError(format!("--field {field}: give a number with |h| ≤ 100")).into());
+    }
+    if a.field.is_some_and(|h| h != 0.0) && a.beta.is_empty() {
+        return Err(InputError(
+            "--field: the field's values are at positive temperature; give --beta too".into(),
+        )
+        .into());
     }
     let cache = crate::store::cache::Cache::new(a.folders.cache_dir());
     let s = cube::Settings::default();
@@ -197,14 +214,19 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let (gs, l, m, q0) = sphere::ground_state(&xi);
     let full_cs = sphere::ground_state_full(&xi, super::plot::SPHERE_INTERVALS);
     let (alg, condition) = sphere::algorithmic(&xi);
-    type AtBeta = (f64, f64, f64, crate::theory::full::FullRsb, f64);
+    type AtBeta = (
+        f64,
+        crate::theory::temperature::RsField,
+        crate::theory::full::FullRsb,
+        f64,
+    );
     let temps: Vec<AtBeta> = a
         .beta
         .iter()
         .map(|&b| {
-            let (p, q) = crate::theory::temperature::rs_free_energy(&xi, b);
-            let (sol, e) = crate::theory::cached::at_temperature(&cache, &xi, b)?;
-            Ok((b, p, q, sol, e))
+            let rs = crate::theory::temperature::rs_field(&xi, b, field);
+            let (sol, e) = crate::theory::cached::at_temperature(&cache, &xi, b, field)?;
+            Ok((b, rs, sol, e))
         })
         .collect::<Result<_, crate::store::StoreError>>()?;
     let mixture = xi
@@ -229,8 +251,9 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 "best": {"value": best.0, "solution": best.1},
             },
             "order_parameters": csv_path.display().to_string(),
-            "temperature_rs": temps.iter().map(|(b, p, q, _, _)| serde_json::json!({"beta": b, "free_energy": p, "q": q})).collect::<Vec<_>>(),
-            "temperature": temps.iter().map(|(b, _, _, f, e)| serde_json::json!({"beta": b, "free_energy": f.value, "energy": e, "q_max": crate::theory::full::largest_overlap(f), "q": f.q, "x": f.m})).collect::<Vec<_>>(),
+            "field": field,
+            "temperature_rs": temps.iter().map(|(b, rs, _, _)| serde_json::json!({"beta": b, "field": field, "free_energy": rs.free_energy, "q": rs.q, "magnetisation": rs.magnetisation, "at": rs.at, "replica_symmetric_stable": rs.at <= 1.0})).collect::<Vec<_>>(),
+            "temperature": temps.iter().map(|(b, _, f, e)| serde_json::json!({"beta": b, "field": field, "free_energy": f.value, "energy": e, "q_max": crate::theory::full::largest_overlap(f), "q": f.q, "x": f.m})).collect::<Vec<_>>(),
             "sphere": {
                 "ground_state_one_step": gs, "L": l, "m": m, "q0": q0,
                 "ground_state": {"value": full_cs.value, "structure": full_cs.structure(),
@@ -322,12 +345,32 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         );
         if !temps.is_empty() {
             o += "\ncube, positive temperature: free energy lim (1/n) E log Σ e^{βH} (Parisi, x on 16 q-intervals\nrefined below q_max) and the replica-symmetric bound; Gibbs mean energy per spin E = dP/dβ;\nlargest overlap q_max of the Parisi order parameter\n";
-            for (b, p, q, f, e) in &temps {
+            if field != 0.0 {
                 o += &format!(
-                    "  β = {b:<8} Parisi {:.8}   E {e:.6}   q_max {:.4}   RS {p:.8} (q = {q:.6})\n",
-                    f.value,
-                    crate::theory::full::largest_overlap(f)
+                    "with the field h = {field} (H + h Σσ_i; the cavity field is βh + β√ξ'(q) Z, so a paper's field h' in\ne^{{βH + h'Σσ}} is βh here); m = E tanh(βh + β√ξ'(q) Z) is the RS magnetisation; AT = β²ξ''(q)·E sech⁴(…):\nreplica symmetry is stable (above the de Almeida–Thouless line) when AT ≤ 1\n"
                 );
+            }
+            for (b, rs, f, e) in &temps {
+                o += &format!(
+                    "  β = {b:<8} Parisi {:.8}   E {e:.6}   q_max {:.4}   RS {:.8} (q = {:.6})",
+                    f.value,
+                    crate::theory::full::largest_overlap(f),
+                    rs.free_energy,
+                    rs.q
+                );
+                if field != 0.0 {
+                    o += &format!(
+                        "   m = {:.6}   AT {:.4} ({})",
+                        rs.magnetisation,
+                        rs.at,
+                        if rs.at <= 1.0 {
+                            "above the AT line"
+                        } else {
+                            "below the AT line: RSB"
+                        }
+                    );
+                }
+                o += "\n";
             }
         }
         o += &format!(

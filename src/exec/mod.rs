@@ -458,6 +458,14 @@ struct Reference {
     energy: f64,
 }
 
+/// Σσ_i/n of a ±1 output (None on the sphere).
+fn magnetisation(spec: &Spec, spins: &[i8]) -> Option<f64> {
+    spec.model
+        .family
+        .spins()
+        .then(|| spins.iter().map(|&s| s as i64).sum::<i64>() as f64 / spins.len().max(1) as f64)
+}
+
 /// H/n of an output: at the point on the sphere, at the spins elsewhere.
 fn energy_of(spec: &Spec, inst: &crate::model::Instance, out: &crate::algo::Output) -> f64 {
     let n = inst.n() as f64;
@@ -525,6 +533,7 @@ fn compute_cell(
         distance_point: None,
         autocorrelation_time: None,
         overlap_initial: None,
+        magnetisation: None,
         replica: cell.replica,
         wall_seconds: 0.0,
         host: prov.host.clone(),
@@ -546,6 +555,7 @@ fn compute_cell(
         record.sweeps = out.info.sweeps;
         record.converged = out.info.converged;
         trace = out.info.trace;
+        record.magnetisation = magnetisation(spec, &out.spins);
         spins = Some(out.spins);
         point = out.point;
     } else {
@@ -579,6 +589,7 @@ fn compute_cell(
             .run(&inst, &mut rng)
             .map_err(|e| CellError::Failed(e.to_string()))?;
         record.energy = reference.energy;
+        record.magnetisation = magnetisation(spec, &reference.spins);
         record.energy_perturbed = energy_of(spec, &inst, &out);
         record.energy_reduced = reduced;
         record.cut_fraction = cut;

@@ -44,7 +44,7 @@ pub fn encode_overlaps(
         }
     }
     let (p, t) = (dir.join("overlaps.parquet"), dir.join("triples.parquet"));
-    let sym = spec.model.family.symmetric();
+    let sym = spec.model.symmetric();
     let mut files = vec![
         (p.clone(), pairs.encode(&p, &spec.name, sym)?),
         (t.clone(), triples.encode(&t, &spec.name, sym)?),
@@ -99,7 +99,7 @@ fn chaos(
             .insert(c.replica, c.key);
     }
     let mut table = crate::store::table::Chaos::default();
-    let sym = spec.model.family.symmetric();
+    let sym = spec.model.symmetric();
     for ((algo, n, seed), levels) in groups {
         let Some(base) = levels.get(&0f64.to_bits()) else {
             continue;

@@ -219,7 +219,9 @@ pub fn family_names() -> Vec<&'static str> {
 
 /// The `[model]` reference of the families, as Markdown (the README's family section).
 pub fn reference(entries: &[FamilyEntry]) -> String {
-    let mut out = String::new();
+    let mut out = String::from(
+        "Every family with ±1 spins (all but `sphere`) also takes `field = h` (a number, |h| ≤ 100; default 0): a uniform external field, H + h Σσ_i. It enters every cell key when non-zero, not the couplings (an instance has the same J at every h), removes the σ ↔ −σ symmetry, and is supported by every kind that runs on the family; `spectral` and `lowrank` relax the couplings alone and let the field choose the output's global sign.\n\n",
+    );
     for f in entries {
         out.push_str(&format!(
             "#### `family = \"{}\"`\n\n{} Couplings: {}. `sweep.sizes` lists {}.\n\n",
@@ -237,11 +239,13 @@ pub fn reference(entries: &[FamilyEntry]) -> String {
     out
 }
 
-/// A fully resolved model: the family with its parameters, and the coupling law.
+/// A fully resolved model: the family with its parameters, the coupling law, and the uniform
+/// external field h of the ±1 families (H + h Σσ_i; 0 for none).
 #[derive(Clone, Debug)]
 pub struct ModelSpec {
     pub family: Arc<dyn Family>,
     pub couplings: Couplings,
+    pub field: f64,
 }
 
 impl PartialEq for ModelSpec {
@@ -256,6 +260,7 @@ impl ModelSpec {
         ModelSpec {
             family: Arc::new(family),
             couplings,
+            field: 0.0,
         }
     }
 
@@ -274,9 +279,20 @@ impl ModelSpec {
         ModelSpec::new(families::sphere::Sphere { xi }, couplings)
     }
 
+    /// The same model with a uniform field h (H + h Σσ_i).
+    pub fn with_field(mut self, h: f64) -> ModelSpec {
+        self.field = h;
+        self
+    }
+
     /// The family's name.
     pub fn name(&self) -> &'static str {
         self.family.name()
+    }
+
+    /// Whether H(−σ) = H(σ): a symmetric family and no field.
+    pub fn symmetric(&self) -> bool {
+        self.field == 0.0 && self.family.symmetric()
     }
 
     /// Revision of the sampling code of this family. Enters the cache key.
@@ -292,12 +308,16 @@ impl ModelSpec {
     /// Canonical identity (for cell keys): the disorder's identity plus, for dense families,
     /// the shared kernels' summation pattern, which moves energies in the last bits (so it is
     /// part of every dense cell's key, but not of the instance id: couplings do not change).
+    /// A field enters the key (only when non-zero, so keys without one are unchanged) but not
+    /// the disorder's identity: the couplings of an instance are the same at every h.
     pub fn canon(&self) -> Canon {
-        self.sampler_canon().with_if(
-            self.family.mixture().is_some(),
-            "kernels",
-            crate::kernels::REVISION,
-        )
+        self.sampler_canon()
+            .with_if(
+                self.family.mixture().is_some(),
+                "kernels",
+                crate::kernels::REVISION,
+            )
+            .with_if(self.field != 0.0, "field", self.field)
     }
 
     /// Family, couplings, sampler revision and family parameters.
@@ -328,9 +348,15 @@ impl ModelSpec {
         self.family.flip_cost(n)
     }
 
-    /// Samples the instance; `epsilon > 0` gives the copy correlated at 1 − ε.
+    /// Samples the instance; `epsilon > 0` gives the copy correlated at 1 − ε (the field is
+    /// not resampled).
     pub fn sample(&self, n: usize, instance: &Id, epsilon: f64) -> Instance {
-        self.family.sample(n, self.couplings, instance, epsilon)
+        let inst = self.family.sample(n, self.couplings, instance, epsilon);
+        if self.field != 0.0 {
+            Instance::Fielded(Box::new(inst), self.field)
+        } else {
+            inst
+        }
     }
 
     /// √d for the sparse families (`energy_reduced` = energy/√d), else None.
@@ -414,6 +440,33 @@ pub enum Instance {
     /// A ±1 instance of a family registered from outside the crate (dynamic dispatch per
     /// flip: fine for small studies; kiln's own families use the variants above).
     Spins(Box<dyn SpinModel + Send>),
+    /// A ±1 instance with a uniform external field h: H + h Σσ_i.
+    Fielded(Box<Instance>, f64),
+}
+
+/// A ±1 model with a uniform field h added: fields h_i + h, energy H + h Σσ_i. Flips move only
+/// the coupling part of the fields, so the inner model's update is the update. No graph view
+/// and no integer gains (the specialised loops know nothing of the field).
+pub struct Fielded<'a, M: ?Sized> {
+    pub inner: &'a M,
+    pub h: f64,
+}
+
+impl<M: SpinModel + ?Sized> SpinModel for Fielded<'_, M> {
+    fn n(&self) -> usize {
+        self.inner.n()
+    }
+    fn fields(&self, s: &[i8], h: &mut [f64]) {
+        self.inner.fields(s, h);
+        h.iter_mut().for_each(|x| *x += self.h);
+    }
+    fn energy(&self, s: &[i8]) -> f64 {
+        self.inner.energy(s) + self.h * s.iter().map(|&x| x as i64).sum::<i64>() as f64
+    }
+    #[inline(always)]
+    fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
+        self.inner.flip(s, h, k)
+    }
 }
 
 impl SpinModel for Box<dyn SpinModel + Send> {
@@ -447,6 +500,15 @@ impl Instance {
             Instance::Cube(m) | Instance::Sphere(m) => m.n(),
             Instance::Graph(g) => g.n(),
             Instance::Spins(b) => b.n(),
+            Instance::Fielded(i, _) => i.n(),
+        }
+    }
+
+    /// The instance without its field, and the field (0 for none).
+    pub fn split_field(&self) -> (&Instance, f64) {
+        match self {
+            Instance::Fielded(i, h) => (i, *h),
+            other => (other, 0.0),
         }
     }
     /// H(σ) of a ±1 configuration (on the sphere: at the point σ, norm √n).
@@ -457,6 +519,9 @@ impl Instance {
             Instance::Sphere(m) => m.value(s),
             Instance::Graph(g) => g.energy(s),
             Instance::Spins(b) => b.energy(s),
+            Instance::Fielded(i, h) => {
+                i.energy(s) + h * s.iter().map(|&x| x as i64).sum::<i64>() as f64
+            }
         }
     }
     /// H(x) at a real point (sphere); for ±1 families x must be ±1.

@@ -89,8 +89,13 @@ pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpe
         }
     };
     let mut settings = BTreeMap::new();
+    let mut field_raw = None;
     for (key, v) in table {
         if key == "family" || key == "couplings" {
+            continue;
+        }
+        if key == "field" {
+            field_raw = Some(v);
             continue;
         }
         if !entry.keys.iter().any(|k| k.name == key) {
@@ -134,5 +139,54 @@ pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpe
         values: &settings,
         anchor: Some(fspan),
     })?;
-    Ok(ModelSpec { family, couplings })
+    let field = match field_raw {
+        Some(v) => read_field(v, family.spins(), &name, loc)?,
+        None => 0.0,
+    };
+    Ok(ModelSpec {
+        family,
+        couplings,
+        field,
+    })
+}
+
+/// The uniform field h of `field = h`: a finite number with |h| ≤ 100, on a ±1 family.
+fn read_field(
+    v: &Spanned<toml::Value>,
+    spins: bool,
+    family: &str,
+    loc: &Locator,
+) -> Result<f64, SpecError> {
+    let h = match v.get_ref() {
+        toml::Value::Float(x) => *x,
+        toml::Value::Integer(x) => *x as f64,
+        other => {
+            return Err(loc.at(
+                Some(v.span()),
+                "model.field",
+                format!(
+                    "invalid type: {} `{other}`, expected a number",
+                    other.type_str()
+                ),
+                Some("e.g. field = 0.5 (H + h Σσ_i)".into()),
+            ));
+        }
+    };
+    if !spins {
+        return Err(loc.at(
+            Some(v.span()),
+            "model.field",
+            format!("`field` does not apply to the `{family}` family"),
+            Some("the uniform field h Σσ_i is for the ±1 families; remove it".into()),
+        ));
+    }
+    if !(h.is_finite() && h.abs() <= 100.0) {
+        return Err(loc.at(
+            Some(v.span()),
+            "model.field",
+            format!("field {h} is out of range"),
+            Some("give a number with |h| ≤ 100 (0, the default, is no field)".into()),
+        ));
+    }
+    Ok(h)
 }

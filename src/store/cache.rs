@@ -72,6 +72,9 @@ pub struct Record {
     /// Samplers: overlap of the output with the chain's start (reference run).
     #[serde(default, with = "nonfinite_opt")]
     pub overlap_initial: Option<f64>,
+    /// Σσ_i/n of the reference output (±1 families; absent from records written before it).
+    #[serde(default, with = "nonfinite_opt")]
+    pub magnetisation: Option<f64>,
     /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
     #[serde(default)]
     pub replica: u32,
@@ -528,6 +531,7 @@ mod tests {
             distance_point: None,
             autocorrelation_time: None,
             overlap_initial: None,
+            magnetisation: None,
             replica: 0,
             wall_seconds: 0.5,
             host: "h".into(),

@@ -15,11 +15,11 @@ use std::path::Path;
 
 /// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added;
 /// 3: `distance_point`; 4: `overlap_sym`, `distance_sym`, `distance_point_sym`;
-/// 5: `autocorrelation_time`, `overlap_initial`).
-pub const TABLE_FORMAT: &str = "kiln-cells/5";
+/// 5: `autocorrelation_time`, `overlap_initial`; 6: `field`, `magnetisation`).
+pub const TABLE_FORMAT: &str = "kiln-cells/6";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. field = the uniform field h of the model (H includes h sum_i sigma_i; 0 for none); magnetisation = sum_i sigma_i/n of the reference output (+-1 families). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
@@ -28,6 +28,8 @@ pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "c
 pub struct Row<'a> {
     /// Whether the model has the global-flip symmetry (see [`crate::model::Family::symmetric`]).
     pub symmetric: bool,
+    /// The model's uniform field h (0 for none).
+    pub field: f64,
     pub experiment: &'a str,
     pub label: &'a str,
     pub record: &'a Record,
@@ -77,6 +79,8 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
             .record
             .autocorrelation_time),
         col!("overlap_initial", |r: &Row| r.record.overlap_initial),
+        col!("field", |r: &Row| r.field),
+        col!("magnetisation", |r: &Row| r.record.magnetisation),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),

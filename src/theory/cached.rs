@@ -87,19 +87,24 @@ pub fn algorithmic(cache: &Cache, xi: &Mixture) -> Result<(full::FullRsb, Vec<f6
 /// Re-solves on the grid below q_max in [`at_temperature`].
 const TEMPERATURE_ROUNDS: usize = 2;
 
-/// The Parisi free energy at inverse temperature β ([`full::free_energy_refined`], default
-/// settings) with the Gibbs mean energy per spin E(β) = dP/dβ ([`full::energy_at`]), from the
-/// cache or solved and stored: (solution, E(β)).
+/// The Parisi free energy at inverse temperature β and uniform field h (H + hΣσ_i; 0 for
+/// none) ([`full::free_energy_refined_field`], default settings) with the Gibbs mean energy per
+/// spin E(β) = dP/dβ ([`full::energy_at_field`]), from the cache or solved and stored:
+/// (solution, E(β)). With a field the grid cannot place a breakpoint at the replica-symmetric
+/// q*, so the replica-symmetric step x = 1{q ≥ q*} is evaluated too and the lower of the two
+/// kept (each is an upper bound on the infimum).
 pub fn at_temperature(
     cache: &Cache,
     xi: &Mixture,
     beta: f64,
+    field: f64,
 ) -> Result<(full::FullRsb, f64), StoreError> {
     let s = full::FullSettings::default();
     let hex_key = hex::encode(
         Canon::map()
             .with("settings", settings_key(xi, &s, "theory-beta-settings"))
             .with("beta", beta)
+            .with_if(field != 0.0, "field", field)
             .with("rounds", TEMPERATURE_ROUNDS)
             .hash("theory-beta"),
     );
@@ -108,8 +113,22 @@ pub fn at_temperature(
     {
         return Ok((sol, e));
     }
-    let sol = full::free_energy_refined(xi, beta, &s, TEMPERATURE_ROUNDS);
-    let e = full::energy_at(xi, beta, &s, &sol);
+    let mut sol = full::free_energy_refined_field(xi, beta, field, &s, TEMPERATURE_ROUNDS);
+    if field != 0.0 {
+        let rs = crate::theory::temperature::rs_field(xi, beta, field);
+        let (q, m) = (vec![0.0, rs.q, 1.0], vec![0.0, 1.0]);
+        let value = full::evaluate_at(xi, beta, field, &s, &q, &m);
+        if value < sol.value {
+            sol = full::FullRsb {
+                value,
+                q,
+                m,
+                iterations: 0,
+                gradient: 0.0,
+            };
+        }
+    }
+    let e = full::energy_at_field(xi, beta, field, &s, &sol);
     let mut v = full_json(&hex_key, &sol);
     v["energy"] = serde_json::json!(e);
     crate::store::theory::write(cache, &hex_key, &v)?;

@@ -86,7 +86,9 @@ struct Problem {
 }
 
 impl Problem {
-    fn new(xi: &Mixture, q: &[f64], s: &FullSettings, beta: Option<f64>) -> Problem {
+    /// `offset`: where Ψ(0, ·) is read (0 without a field; βh with a uniform field h): the
+    /// grid is centred there, so the value and the forward law start at its middle point.
+    fn new(xi: &Mixture, q: &[f64], s: &FullSettings, beta: Option<f64>, offset: f64) -> Problem {
         let k = q.len() - 1;
         let b = beta.unwrap_or(1.0);
         let g = |t: f64| t * xi.d1(t) - xi.xi(t);
@@ -101,7 +103,9 @@ impl Problem {
             beta,
             a,
             dg,
-            xs: (0..grid).map(|i| -half + i as f64 * dx).collect(),
+            xs: (0..grid)
+                .map(|i| (-half + i as f64 * dx) + offset)
+                .collect(),
             half,
             dx,
         }
@@ -429,12 +433,19 @@ fn objective(p: &Problem, u: &[f64]) -> (f64, Vec<f64>) {
 }
 
 /// Minimises on the grid of K intervals from `m0` (one value per interval).
-fn solve_on(xi: &Mixture, k: usize, s: &FullSettings, m0: &[f64], beta: Option<f64>) -> FullRsb {
+fn solve_on(
+    xi: &Mixture,
+    k: usize,
+    s: &FullSettings,
+    m0: &[f64],
+    beta: Option<f64>,
+    offset: f64,
+) -> FullRsb {
     let power = if beta.is_some() { 1.0 } else { s.power };
     let q: Vec<f64> = (0..=k)
         .map(|j| 1.0 - (1.0 - j as f64 / k as f64).powf(power))
         .collect();
-    solve_grid(xi, q, s, m0, beta)
+    solve_grid(xi, q, s, m0, beta, offset)
 }
 
 /// Minimises on the given q-grid (0 = q_0 < … < q_K = 1) from `m0` (one value per interval).
@@ -444,9 +455,10 @@ fn solve_grid(
     s: &FullSettings,
     m0: &[f64],
     beta: Option<f64>,
+    offset: f64,
 ) -> FullRsb {
     let k = q.len() - 1;
-    let p = Problem::new(xi, &q, s, beta);
+    let p = Problem::new(xi, &q, s, beta, offset);
     // Starting point: m0 (one value per interval), made strictly increasing.
     assert_eq!(m0.len(), k);
     let mut m = m0.to_vec();
@@ -528,7 +540,7 @@ fn free_objective(
     if q.windows(2).any(|w| w[1] <= w[0]) {
         return infeasible;
     }
-    let p = Problem::new(xi, &q, s, None);
+    let p = Problem::new(xi, &q, s, None, 0.0);
     if !p.resolved(&m) {
         return infeasible;
     }
@@ -727,13 +739,13 @@ fn regrid_rounds(xi: &Mixture, s: &FullSettings, mut best: FullRsb, rounds: usiz
 /// resolve it (see `Problem::resolved`): how kiln re-checks step solutions found by other
 /// solvers before it prints them.
 pub fn evaluate(xi: &Mixture, s: &FullSettings, q: &[f64], m: &[f64]) -> Option<f64> {
-    let p = Problem::new(xi, q, s, None);
+    let p = Problem::new(xi, q, s, None, 0.0);
     p.resolved(m).then(|| p.value_grad(m).0)
 }
 
 /// Minimises over positive values m_j (m_j = e^{u_j}, any order) on the fixed grid `q`, from `m0`.
 fn solve_positive_on(xi: &Mixture, q: &[f64], s: &FullSettings, m0: &[f64]) -> FullRsb {
-    let p = Problem::new(xi, q, s, None);
+    let p = Problem::new(xi, q, s, None, 0.0);
     let f = |u: &[f64]| {
         let m: Vec<f64> = u.iter().map(|u| u.exp()).collect();
         if !p.resolved(&m) {
@@ -796,7 +808,7 @@ pub fn algorithmic(xi: &Mixture, s: &FullSettings, parisi: &FullRsb) -> (FullRsb
 /// second differences). It equals 1 where the minimiser is of full-RSB type (the first-order
 /// condition differentiated twice; El Alaoui, Montanari & Sellke 2021, arXiv:2001.00904).
 pub fn diagnostic(xi: &Mixture, s: &FullSettings, sol: &FullRsb) -> Vec<f64> {
-    let p = Problem::new(xi, &sol.q, s, None);
+    let p = Problem::new(xi, &sol.q, s, None, 0.0);
     let k = sol.m.len();
     let g = p.xs.len();
     let psi = p.fields(&sol.m);
@@ -869,7 +881,7 @@ pub fn full_rsb(xi: &Mixture, s: &FullSettings) -> FullRsb {
             0.5 * mc * (0.1 + q) / (1.0 - q).sqrt()
         })
         .collect();
-    solve_on(xi, k, s, &start, None)
+    solve_on(xi, k, s, &start, None, 0.0)
 }
 
 /// The Parisi field of a zero-temperature solution at given times: Φ(t, ·) on a uniform grid,
@@ -888,7 +900,7 @@ pub struct Field {
 }
 
 pub fn field(xi: &Mixture, sol: &FullRsb, s: &FullSettings, times: &[f64]) -> Field {
-    let p = Problem::new(xi, &sol.q, s, None);
+    let p = Problem::new(xi, &sol.q, s, None, 0.0);
     let k = sol.m.len();
     let psi = p.fields(&sol.m);
     let mut gamma = Vec::with_capacity(times.len());
@@ -918,9 +930,15 @@ pub fn field(xi: &Mixture, sol: &FullRsb, s: &FullSettings, times: &[f64]) -> Fi
 /// uniform grid of `s.levels` intervals, minimised like the zero-temperature problem (the
 /// same recursion with steps β·a_j and log cosh at the end). Returns the solution (γ = x).
 pub fn free_energy(xi: &Mixture, beta: f64, s: &FullSettings) -> FullRsb {
+    free_energy_field(xi, beta, 0.0, s)
+}
+
+/// [`free_energy`] with a uniform field h (H + h Σσ_i): Φ_x(0, βh) in place of Φ_x(0, 0).
+/// With h ≠ 0 the order parameter vanishes below some q_min > 0 (x → 0 there).
+pub fn free_energy_field(xi: &Mixture, beta: f64, h: f64, s: &FullSettings) -> FullRsb {
     let k = s.levels.max(2);
     let start: Vec<f64> = (0..k).map(|j| 0.2 + 0.6 * j as f64 / k as f64).collect();
-    solve_on(xi, k, s, &start, Some(beta))
+    solve_on(xi, k, s, &start, Some(beta), beta * h)
 }
 
 /// Where x first reaches 1 (to 1e-6): the end of the support of the overlap distribution of
@@ -938,7 +956,18 @@ pub fn largest_overlap(sol: &FullRsb) -> f64 {
 /// it lowers the value: the grid is spent where x varies, which resolves q_max
 /// ([`largest_overlap`]) to a fraction of q_max/levels instead of 1/levels.
 pub fn free_energy_refined(xi: &Mixture, beta: f64, s: &FullSettings, rounds: usize) -> FullRsb {
-    let mut sol = free_energy(xi, beta, s);
+    free_energy_refined_field(xi, beta, 0.0, s, rounds)
+}
+
+/// [`free_energy_refined`] with a uniform field h.
+pub fn free_energy_refined_field(
+    xi: &Mixture,
+    beta: f64,
+    h: f64,
+    s: &FullSettings,
+    rounds: usize,
+) -> FullRsb {
+    let mut sol = free_energy_field(xi, beta, h, s);
     let k = s.levels.max(2);
     for _ in 0..rounds {
         let Some(j) = sol.m.iter().position(|&x| x >= 1.0 - 1e-6) else {
@@ -970,7 +999,7 @@ pub fn free_energy_refined(xi: &Mixture, beta: f64, s: &FullSettings, rounds: us
         if m0[0] <= 0.0 {
             break;
         }
-        let next = solve_grid(xi, q, s, &m0, Some(beta));
+        let next = solve_grid(xi, q, s, &m0, Some(beta), beta * h);
         if next.value.is_finite() && next.value < sol.value {
             sol = next;
         } else {
@@ -984,14 +1013,90 @@ pub fn free_energy_refined(xi: &Mixture, beta: f64, s: &FullSettings, rounds: us
 /// at β by the envelope theorem (at the minimiser x*, dP/dβ = ∂P(x*, β)/∂β): a central
 /// difference in β of the functional at fixed x*, h = 1e-4·max(β, 1), error O(h²).
 pub fn energy_at(xi: &Mixture, beta: f64, s: &FullSettings, sol: &FullRsb) -> f64 {
+    energy_at_field(xi, beta, 0.0, s, sol)
+}
+
+/// The positive-temperature functional at a given step function x = `m[j]` on
+/// [`q[j]`, `q[j+1]`) with a uniform field h (m_j may be 0: the Gaussian limit of a step).
+pub fn evaluate_at(xi: &Mixture, beta: f64, h: f64, s: &FullSettings, q: &[f64], m: &[f64]) -> f64 {
+    Problem::new(xi, q, s, Some(beta), beta * h).value_grad(m).0
+}
+
+/// [`energy_at`] with a uniform field h: the mean of H + hΣσ per spin (the field read at βh
+/// moves with β too).
+pub fn energy_at_field(
+    xi: &Mixture,
+    beta: f64,
+    field: f64,
+    s: &FullSettings,
+    sol: &FullRsb,
+) -> f64 {
     let h = 1e-4 * beta.max(1.0);
-    let at = |b: f64| Problem::new(xi, &sol.q, s, Some(b)).value_grad(&sol.m).0;
+    let at = |b: f64| {
+        Problem::new(xi, &sol.q, s, Some(b), b * field)
+            .value_grad(&sol.m)
+            .0
+    };
     (at(beta + h) - at(beta - h)) / (2.0 * h)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// With a field: above the de Almeida–Thouless line (β = 0.5, h = 1 on SK) the Parisi
+    /// minimiser is replica-symmetric, so the free energy equals kiln's independent RS formula
+    /// ([`crate::theory::temperature::rs_field`], Simpson quadrature) to the lattice's
+    /// accuracy (1e-6), and E = dP/dβ agrees with a central difference of P_RS (h = 1e-3,
+    /// error O(h²)); below it (β = 1.5, h = 0.1, AT quantity > 1) replica symmetry breaks: the
+    /// Parisi value lies strictly below P_RS (Parisi bound; Talagrand 2006).
+    #[test]
+    fn free_energy_with_a_field() {
+        use crate::theory::temperature::rs_field;
+        let xi = Mixture::sk();
+        let s = FullSettings::default();
+        let (beta, h) = (0.5, 1.0);
+        let rs = rs_field(&xi, beta, h);
+        // The RS step function x = 1{q ≥ q*} on the lattice.
+        let (q, m) = (vec![0.0, rs.q, 1.0], vec![0.0, 1.0]);
+        let at_rs = evaluate_at(&xi, beta, h, &s, &q, &m);
+        assert!(
+            (at_rs - rs.free_energy).abs() < 1e-8,
+            "{at_rs} vs {}",
+            rs.free_energy
+        );
+        // The grid minimiser cannot put a breakpoint at q* exactly: it lies above P_RS by
+        // the grid's resolution, never below it by more than the lattice error.
+        let sol = free_energy_field(&xi, beta, h, &s);
+        assert!(
+            sol.value > rs.free_energy - 1e-8 && sol.value < rs.free_energy + 1e-4,
+            "{} vs {}",
+            sol.value,
+            rs.free_energy
+        );
+        let sol = FullRsb {
+            value: at_rs,
+            q,
+            m,
+            iterations: 0,
+            gradient: 0.0,
+        };
+        let e = energy_at_field(&xi, beta, h, &s, &sol);
+        let d = 1e-3;
+        let de = (rs_field(&xi, beta + d, h).free_energy - rs_field(&xi, beta - d, h).free_energy)
+            / (2.0 * d);
+        assert!((e - de).abs() < 1e-5, "{e} vs {de}");
+        let (beta, h) = (1.5, 0.1);
+        let rs = rs_field(&xi, beta, h);
+        assert!(rs.at > 1.0, "{}", rs.at);
+        let sol = free_energy_field(&xi, beta, h, &s);
+        assert!(
+            sol.value < rs.free_energy - 1e-5,
+            "{} vs {}",
+            sol.value,
+            rs.free_energy
+        );
+    }
 
     /// E(β) = dP/dβ: β/2 on SK at high temperature (the annealed value, Aizenman, Lebowitz &
     /// Ruelle 1987); at β = 1.5 the envelope value agrees with a central difference of the
@@ -1033,7 +1138,7 @@ mod tests {
         let s = FullSettings::default();
         let k = 8;
         let q: Vec<f64> = (0..=k).map(|j| j as f64 / k as f64).collect();
-        let p = Problem::new(&xi, &q, &s, None);
+        let p = Problem::new(&xi, &q, &s, None, 0.0);
         let m: Vec<f64> = (0..k).map(|j| 0.5 + 0.4 * j as f64).collect();
         let (_, g) = p.value_grad(&m);
         for j in [0, 3, 7] {

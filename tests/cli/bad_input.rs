@@ -365,6 +365,35 @@ fn family_keys_are_required_and_refused_where_they_do_not_apply() {
     );
 }
 
+/// The uniform field: a number, |h| ≤ 100, and only on the ±1 families.
+#[test]
+fn field_is_checked() {
+    refuse(
+        &family_spec(
+            "family = \"sphere\"\nxi = { 3 = 1.0 }\nfield = 0.5",
+            "[16]",
+            "kind = \"gradient\"",
+        ),
+        &[
+            "line 7",
+            "key `model.field`",
+            "does not apply to the `sphere` family",
+        ],
+    );
+    refuse(
+        &family_spec(
+            "family = \"sk\"\nfield = \"up\"",
+            "[16]",
+            "kind = \"descent\"",
+        ),
+        &["key `model.field`", "expected a number"],
+    );
+    refuse(
+        &family_spec("family = \"sk\"\nfield = 1e9", "[16]", "kind = \"descent\""),
+        &["key `model.field`", "out of range"],
+    );
+}
+
 #[test]
 fn family_sizes_and_couplings_are_checked() {
     refuse(

@@ -8,6 +8,7 @@ mod bad_input;
 mod cluster;
 mod damage;
 mod families;
+mod field;
 mod fitting;
 mod hostile;
 mod leases;

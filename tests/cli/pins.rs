@@ -153,7 +153,7 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
     .expect("a model")
 }
 
-fn digest(out: &Output) -> String {
+pub fn digest(out: &Output) -> String {
     let mut h = Sha256::new();
     h.update(out.spins.iter().map(|&s| s as u8).collect::<Vec<_>>());
     if let Some(p) = &out.point {

@@ -108,7 +108,9 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
     let d = match inst {
         Instance::Sphere(m) | Instance::Cube(m) => m.dense().expect("a p = 2 term"),
         Instance::Sk(d) => d,
-        Instance::Graph(_) | Instance::Spins(_) => panic!("reference_top takes dense instances"),
+        Instance::Graph(_) | Instance::Spins(_) | Instance::Fielded(..) => {
+            panic!("reference_top takes dense instances without a field")
+        }
     };
     let n = d.n();
     let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);
