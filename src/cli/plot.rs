@@ -124,6 +124,17 @@ fn reference_lines(
                     format!("Algorithmic value ∫₀¹ √ξ''(q) dq = {alg:.6} computed by kiln (Subag, arXiv:1812.04588)."),
                 ));
             }
+            for &beta in gibbs_betas {
+                if let Some(e) = crate::theory::sphere::gibbs_energy_pure2(xi, beta) {
+                    v.push((
+                        e,
+                        format!("Gibbs energy at β = {beta}: {e:.4}"),
+                        format!(
+                            "Gibbs mean energy per spin at β = {beta}: {e:.6}, the closed form of spherical SK (Kosterlitz, Thouless & Jones 1976)."
+                        ),
+                    ));
+                }
+            }
             v
         }
     })
@@ -181,12 +192,25 @@ fn sampler_overlaps(
     Ok(out)
 }
 
-/// For each sampler on a cube model: (β, the Gibbs mean energy per spin E(β)).
+/// For each sampler on a cube model, or on spherical SK: (β, the Gibbs mean energy per spin
+/// E(β)).
 fn sampler_energies(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
     samplers: &BTreeMap<String, f64>,
 ) -> anyhow::Result<BTreeMap<String, (f64, f64)>> {
+    if let Some(xi) = model
+        .filter(|m| !m.family.spins())
+        .and_then(|m| m.mixture())
+    {
+        return Ok(samplers
+            .iter()
+            .filter_map(|(label, &beta)| {
+                let e = crate::theory::sphere::gibbs_energy_pure2(xi, beta)?;
+                Some((label.clone(), (beta, e)))
+            })
+            .collect());
+    }
     let Some((m, xi)) = model
         .filter(|m| m.family.spins())
         .and_then(|m| Some(m).zip(m.mixture()))
@@ -298,7 +322,7 @@ fn trace_figures(
         );
         let target = targets.get(label).map(|&(beta, e)| {
             caption += &format!(
-                " Dashed: the Gibbs mean energy per spin E(β) = {e:.4} at β = {beta}, dP/dβ of kiln's Parisi free energy."
+                " Dashed: the Gibbs mean energy per spin E(β) = {e:.4} at β = {beta} (kiln's theory: dP/dβ of the Parisi free energy on the cube, the closed form on spherical SK)."
             );
             csv = csv.replacen(
                 "\nalgorithm,n,",

@@ -209,6 +209,21 @@ pub fn ground_state_full(xi: &Mixture, k: usize) -> FullCs {
     FullCs { value, b, q, m }
 }
 
+/// The Gibbs mean energy per spin lim (1/n) E⟨H⟩ at inverse temperature β on the sphere, for
+/// the pure p = 2 mixtures ξ = a q² (spherical SK), where it is known in closed form: with
+/// s = √(2a), E = s·e(βs), e(b) = b/2 for b ≤ 1 and 1 − 1/(2b) above (the free energy b²/4 and
+/// b − 3/4 − (log b)/2; Kosterlitz, Thouless & Jones, PRL 36, 1217 (1976), recalled from
+/// memory). It tends to the ground state s as β → ∞. None for other mixtures.
+pub fn gibbs_energy_pure2(xi: &Mixture, beta: f64) -> Option<f64> {
+    let a = match xi.terms.iter().filter(|t| t.1 > 0.0).collect::<Vec<_>>()[..] {
+        [&(2, a)] => a,
+        _ => return None,
+    };
+    let s = (2.0 * a).sqrt();
+    let b = beta * s;
+    Some(s * if b <= 1.0 { 0.5 * b } else { 1.0 - 0.5 / b })
+}
+
 /// ALG = ∫₀¹ √ξ''(q) dq and whether Subag's condition (ξ''^{-1/2} concave on (0, 1]) holds,
 /// so that ALG is also the ground state.
 pub fn algorithmic(xi: &Mixture) -> (f64, bool) {
@@ -226,6 +241,35 @@ pub fn algorithmic(xi: &Mixture) -> (f64, bool) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Spherical SK: E(β) is the annealed β ξ(1) = β/2 at high temperature, continuous at the
+    /// critical β = 1, and tends to kiln's own ground state (1 for ξ = q²/2) as β → ∞; scaling ξ
+    /// by 4 doubles H, so E at β equals twice E at 2β of the unscaled model. Mixtures with
+    /// another term get none.
+    #[test]
+    fn spherical_sk_gibbs_energy() {
+        let sk = Mixture {
+            terms: vec![(2, 0.5)],
+        };
+        let e = |b| gibbs_energy_pure2(&sk, b).unwrap();
+        assert_eq!(e(0.5), 0.25);
+        assert!((e(1.0 - 1e-9) - e(1.0 + 1e-9)).abs() < 1e-8);
+        let gs = ground_state_full(&sk, 16).value;
+        assert!((e(1e6) - gs).abs() < 1e-5, "{} vs {gs}", e(1e6));
+        let big = Mixture {
+            terms: vec![(2, 2.0)],
+        };
+        assert!((gibbs_energy_pure2(&big, 0.7).unwrap() - 2.0 * e(1.4)).abs() < 1e-12);
+        assert!(
+            gibbs_energy_pure2(
+                &Mixture {
+                    terms: vec![(2, 0.5), (3, 0.1)]
+                },
+                1.0
+            )
+            .is_none()
+        );
+    }
 
     /// Pure spherical 3-spin ground state 1.657 (Crisanti & Sommers, Z. Phys. B 87, 341
     /// (1992)); p = 2 in SK normalisation is half the semicircle edge, 1 (Füredi & Komlós 1981).

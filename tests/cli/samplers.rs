@@ -452,3 +452,59 @@ beta = 0.5
         "{r2} ± {se} vs {want}"
     );
 }
+
+/// Spherical SK: figures of a Langevin sampler draw the closed-form Gibbs energy at its β,
+/// E = 1 − 1/(2β) = 0.75 at β = 2 (Kosterlitz, Thouless & Jones 1976, recalled from memory)
+/// on the energy figure and on the traces figure, whose data rise towards it.
+#[test]
+fn spherical_samplers_get_their_gibbs_energy_line() {
+    let w = Work::new();
+    let spec = w.spec(
+        "sph.toml",
+        r#"[experiment]
+name = "sph"
+[model]
+family = "sphere"
+xi = { 2 = 0.5 }
+[sweep]
+sizes = [60, 120]
+seeds = 2
+epsilons = [0.0]
+[[algorithm]]
+label = "lv"
+kind = "langevin"
+beta = 2.0
+steps = 400
+"#,
+    );
+    w.run_json(&spec, &[]);
+    let o = w.kiln(&["plot", "sph.toml"]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let csv = std::fs::read_to_string(
+        w.path()
+            .join("results/sph/figures/energy-sphere-gaussian.csv"),
+    )
+    .unwrap();
+    let line = csv
+        .lines()
+        .find(|l| l.contains("Gibbs energy at β = 2") && l.contains(",reference,"))
+        .unwrap_or_else(|| panic!("no Gibbs line in\n{csv}"));
+    assert_eq!(line.split(',').nth(4), Some("0.75"), "{line}");
+    let traces =
+        std::fs::read_to_string(w.path().join("results/sph/figures/traces-lv.csv")).unwrap();
+    assert!(
+        traces
+            .lines()
+            .next()
+            .unwrap()
+            .contains("gibbs_energy=0.75;"),
+        "{traces}"
+    );
+    assert!(traces.lines().next().unwrap().contains("time_unit=step"));
+    let e: Vec<f64> = traces
+        .lines()
+        .skip(2)
+        .map(|l| l.rsplit(',').next().unwrap().parse().unwrap())
+        .collect();
+    assert!(e.len() > 100 && e[e.len() - 1] > e[0], "{e:?}");
+}
