@@ -221,6 +221,11 @@ fn sweeps_small<const RANDOM: bool>(
     let (offsets, nbr) = g.csr();
     let n = s.len();
     assert!(offsets.len() == n + 1 && nbr.len() == w.len());
+    // Checked once here, so the neighbour updates below index `h` without a bounds check.
+    assert!(nbr.iter().all(|&j| (j as usize) < n));
+    // A regular graph's neighbour lists start at i·d: no offsets to load per flip.
+    let degree = (n > 0 && offsets.windows(2).all(|o| o[1] - o[0] == offsets[1]))
+        .then(|| offsets[1] as usize);
     let mut h: Vec<i8> = (0..n)
         .map(|i| {
             let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
@@ -254,9 +259,13 @@ fn sweeps_small<const RANDOM: bool>(
                 change -= 2 * s[i] as i64 * x;
                 s[i] = -s[i];
                 let c = 2 * s[i];
-                let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
+                let (a, b) = match degree {
+                    Some(d) => (i * d, i * d + d),
+                    None => (offsets[i] as usize, offsets[i + 1] as usize),
+                };
                 for (&j, &wj) in nbr[a..b].iter().zip(&w[a..b]) {
-                    let v = &mut h[j as usize];
+                    // SAFETY: every neighbour index is below n = h.len() (asserted above).
+                    let v = unsafe { h.get_unchecked_mut(j as usize) };
                     *v = v.wrapping_add(c.wrapping_mul(wj));
                 }
                 flips += 1;

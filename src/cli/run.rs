@@ -234,6 +234,34 @@ impl Outputs<'_> {
         })
     }
 
+    /// Records computed before `magnetisation` existed, completed from the cached spins of
+    /// their reference cell (`base`), so a table rewritten from an older cache has the column
+    /// too; None when no record needs it. A record whose reference spins are gone keeps it empty.
+    fn with_magnetisation(
+        &self,
+        records: &HashMap<crate::cell::Key, crate::store::cache::Record>,
+    ) -> Option<HashMap<crate::cell::Key, crate::store::cache::Record>> {
+        use crate::store::cache::Lookup;
+        if !self.spec.model.family.spins() || records.values().all(|r| r.magnetisation.is_some()) {
+            return None;
+        }
+        let mut by_base: HashMap<String, Option<f64>> = HashMap::new();
+        let mut out = records.clone();
+        for r in out.values_mut().filter(|r| r.magnetisation.is_none()) {
+            let m = by_base.entry(r.base.clone()).or_insert_with(|| {
+                let key = crate::cell::Key::from_hex(&r.base)?;
+                match self.cache.read_spins(&key) {
+                    Ok(Lookup::Hit(s)) if !s.is_empty() => {
+                        Some(s.iter().map(|&x| x as i64).sum::<i64>() as f64 / s.len() as f64)
+                    }
+                    _ => None,
+                }
+            });
+            r.magnetisation = *m;
+        }
+        Some(out)
+    }
+
     /// Writes the table (plan order) and the manifest naming the tables' checksums; returns
     /// (table, manifest, rows).
     fn write(
@@ -242,6 +270,8 @@ impl Outputs<'_> {
         counts: &crate::store::manifest::CellCounts,
     ) -> anyhow::Result<(std::path::PathBuf, std::path::PathBuf, usize)> {
         let spec = self.spec;
+        let patched = self.with_magnetisation(records);
+        let records = patched.as_ref().unwrap_or(records);
         let rows: Vec<table::Row> = self
             .plan
             .cells

@@ -267,3 +267,57 @@ fn a_field_gives_its_pinned_outputs() {
         got.join(",\n")
     );
 }
+
+/// A record computed before `magnetisation` existed (the key removed, its checksum redone)
+/// still gets the column when the table is rewritten: from its reference cell's cached spins,
+/// the same number a fresh record holds, for the reference row and for its ε row.
+#[test]
+fn old_records_get_their_magnetisation_from_the_cached_spins() {
+    use sha2::{Digest, Sha256};
+    let w = Work::new();
+    let spec = w.spec(
+        "old.toml",
+        "[experiment]\nname = \"old\"\n[model]\nfamily = \"sk\"\n[sweep]\nsizes = [40]\nseeds = 3\nepsilons = [0.0, 0.1]\n[[algorithm]]\nkind = \"descent\"\n",
+    );
+    w.run_json(&spec, &[]);
+    let read = || -> Vec<f64> {
+        table::read(&w.path().join("results/old/cells.parquet"))
+            .unwrap()
+            .column("magnetisation")
+            .unwrap()
+            .f64()
+            .unwrap()
+            .into_no_null_iter()
+            .collect()
+    };
+    let fresh = read();
+    assert_eq!(fresh.len(), 6);
+    let mut stripped = 0;
+    for e in walk(&w.path().join("results/.cache/records")) {
+        let text = std::fs::read_to_string(&e).unwrap();
+        let body = text.split_once('\n').unwrap().1.trim_end();
+        let mut v: serde_json::Value = serde_json::from_str(body).unwrap();
+        assert!(v.as_object_mut().unwrap().remove("magnetisation").is_some());
+        let body = serde_json::to_string(&v).unwrap();
+        let sum = hex::encode(Sha256::digest(body.as_bytes()));
+        std::fs::write(&e, format!("kiln-record 1 sha256={sum}\n{body}\n")).unwrap();
+        stripped += 1;
+    }
+    assert_eq!(stripped, 6);
+    let v = w.run_json(&spec, &[]);
+    assert_eq!(v["cells"]["computed"].as_u64(), Some(0), "{v}");
+    assert_eq!(read(), fresh);
+}
+
+fn walk(dir: &std::path::Path) -> Vec<std::path::PathBuf> {
+    let mut out = Vec::new();
+    for e in std::fs::read_dir(dir).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_dir() {
+            out.extend(walk(&p));
+        } else if p.extension().is_some_and(|x| x == "rec") {
+            out.push(p);
+        }
+    }
+    out
+}
