@@ -14,6 +14,17 @@ pub struct Experiment {
     pub model: Option<crate::model::ModelSpec>,
     /// Each sampler's label with the inverse temperature it samples at.
     pub sampler_betas: std::collections::BTreeMap<String, f64>,
+    /// Each sampler's label with its kind.
+    pub sampler_kinds: std::collections::BTreeMap<String, String>,
+}
+
+/// Each sampler of the spec by label, with its kind.
+fn sampler_kinds(spec: &crate::spec::Spec) -> std::collections::BTreeMap<String, String> {
+    spec.algorithms
+        .iter()
+        .filter(|a| a.algo.gibbs_beta().is_some())
+        .map(|a| (a.label.clone(), a.algo.kind().to_string()))
+        .collect()
 }
 
 /// Each sampler of the spec by label, with its β.
@@ -48,6 +59,7 @@ impl Experiment {
                     dir: p.clone(),
                     fit: FitSettings::default(),
                     sampler_betas: spec.as_ref().map_or_else(Default::default, sampler_betas),
+                    sampler_kinds: spec.as_ref().map_or_else(Default::default, sampler_kinds),
                     model: spec.map(|s| s.model),
                 }
             }
@@ -55,6 +67,7 @@ impl Experiment {
                 let s = crate::spec::load(p)?;
                 Experiment {
                     sampler_betas: sampler_betas(&s),
+                    sampler_kinds: sampler_kinds(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,
@@ -65,6 +78,7 @@ impl Experiment {
                 let s = crate::spec::default_spec();
                 Experiment {
                     sampler_betas: sampler_betas(&s),
+                    sampler_kinds: sampler_kinds(&s),
                     dir: results.join(&s.name),
                     name: s.name,
                     fit: s.fit,

@@ -490,6 +490,153 @@ fn overlap_figures(
     Ok(written)
 }
 
+/// `scan-<kind>`: for a sampler kind run at three or more inverse temperatures, the mean
+/// coupled distance at the smallest ε > 0 and the mean energy per spin against β, one curve per
+/// n, with the Gibbs energy E(β) kiln computes (cube: dP/dβ of the Parisi free energy; spherical
+/// SK: the closed form) joined over the sampled β.
+#[allow(clippy::too_many_arguments)]
+fn scan_figures(
+    exp: &super::cells::Experiment,
+    energies: &crate::store::table::EnergySamples,
+    distances: &crate::store::table::DistanceSamples,
+    cache: &Path,
+    figdir: &Path,
+    size: Size,
+    name: &str,
+    spec_hash: &str,
+) -> anyhow::Result<Vec<PathBuf>> {
+    let mut by_kind: BTreeMap<&str, Vec<(f64, &String)>> = BTreeMap::new();
+    for (label, kind) in &exp.sampler_kinds {
+        if let Some(&b) = exp.sampler_betas.get(label) {
+            by_kind.entry(kind).or_default().push((b, label));
+        }
+    }
+    let targets = sampler_energies(exp.model.as_ref(), cache, &exp.sampler_betas)?;
+    let modulo_flip = exp.model.as_ref().is_some_and(|m| m.symmetric());
+    let mut written = Vec::new();
+    for (kind, mut members) in by_kind {
+        members.sort_by(|a, b| a.0.total_cmp(&b.0));
+        members.dedup_by(|a, b| a.0 == b.0);
+        if members.len() < 3 {
+            continue;
+        }
+        let mut csv = format!(
+            "# kiln figure data: {kind} against inverse temperature; experiment={name}; spec_hash={spec_hash}\npanel,n,beta,value,se,seeds\n"
+        );
+        let eps = members
+            .iter()
+            .filter_map(|(_, l)| distances.get(*l))
+            .flat_map(|by_n| by_n.values().flat_map(|m| m.keys().copied()))
+            .map(f64::from_bits)
+            .filter(|&e| e > 0.0)
+            .fold(f64::INFINITY, f64::min);
+        let mut dist: BTreeMap<u64, Vec<(f64, f64, f64)>> = BTreeMap::new();
+        let mut energy: BTreeMap<u64, Vec<(f64, f64, f64)>> = BTreeMap::new();
+        for &(beta, label) in &members {
+            if let Some(by_n) = distances.get(label) {
+                for (n, by_eps) in by_n {
+                    if let Some(ds) = by_eps.get(&eps.to_bits()) {
+                        let (m, se) = fit::mean_se(ds);
+                        csv += &csv_line(&[
+                            "distance".into(),
+                            n.to_string(),
+                            format!("{beta:?}"),
+                            format!("{m:?}"),
+                            format!("{se:?}"),
+                            ds.len().to_string(),
+                        ]);
+                        dist.entry(*n).or_default().push((beta, m, se));
+                    }
+                }
+            }
+            for by_label in energies.values() {
+                if let Some(es) = by_label.get(label) {
+                    let mut per_n: BTreeMap<u64, Vec<f64>> = BTreeMap::new();
+                    for &(n, e) in es {
+                        per_n.entry(n).or_default().push(e);
+                    }
+                    for (n, v) in per_n {
+                        let (m, se) = fit::mean_se(&v);
+                        csv += &csv_line(&[
+                            "energy".into(),
+                            n.to_string(),
+                            format!("{beta:?}"),
+                            format!("{m:?}"),
+                            format!("{se:?}"),
+                            v.len().to_string(),
+                        ]);
+                        energy.entry(n).or_default().push((beta, m, se));
+                    }
+                }
+            }
+        }
+        let theory: Vec<(f64, f64)> = members
+            .iter()
+            .filter_map(|(b, l)| targets.get(*l).map(|&(_, e)| (*b, e)))
+            .collect();
+        for (b, e) in &theory {
+            csv += &csv_line(&[
+                "gibbs_energy".into(),
+                "inf".into(),
+                format!("{b:?}"),
+                format!("{e:?}"),
+                String::new(),
+                String::new(),
+            ]);
+        }
+        let series = |m: BTreeMap<u64, Vec<(f64, f64, f64)>>| -> Vec<figures::ScanSeries> {
+            m.into_iter()
+                .map(|(n, v)| (format!("n = {n}"), v))
+                .collect()
+        };
+        let mut panels = Vec::new();
+        if eps.is_finite() {
+            panels.push(figures::ScanPanel {
+                y_label: format!(
+                    "distance at ε = {eps}{}",
+                    if modulo_flip { "  (mod ±)" } else { "" }
+                ),
+                series: series(dist),
+                theory: None,
+            });
+        }
+        panels.push(figures::ScanPanel {
+            y_label: "energy per spin  H/n".into(),
+            series: series(energy),
+            theory: (!theory.is_empty()).then(|| (theory.clone(), "E(β), kiln's theory".into())),
+        });
+        let caption = format!(
+            "{kind} at {} inverse temperatures. {}Right: mean energy per spin at ε = 0 over seeds (1 SE){}.",
+            members.len(),
+            if eps.is_finite() {
+                format!(
+                    "Left: mean distance {} between the samples on the original and on the 1 − ε correlated disorder with the same sampler randomness (coupled runs), ε = {eps}, 1 SE over seeds, one curve per n. ",
+                    if modulo_flip {
+                        "min(‖σ − σ'‖, ‖σ + σ'‖)/√n"
+                    } else {
+                        "‖σ − σ'‖/√n"
+                    }
+                )
+            } else {
+                String::new()
+            },
+            if theory.is_empty() {
+                String::new()
+            } else {
+                "; dashed: the Gibbs mean energy E(β) kiln computes at each β (cube: dP/dβ of the Parisi free energy; spherical SK: the closed form)".into()
+            }
+        );
+        let fig = figures::ScanFigure { panels, caption };
+        written.extend(write_all(
+            &figdir.join(format!("scan-{}", file_safe(kind))),
+            size,
+            &csv,
+            &fig,
+        )?);
+    }
+    Ok(written)
+}
+
 /// A label as a file-name part: letters, digits, `-` and `_` kept, anything else `_`.
 fn file_safe(label: &str) -> String {
     label
@@ -649,6 +796,9 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
         }
     }
+    written.extend(scan_figures(
+        &exp, &energies, &distances, &cache, &figdir, size, &name, &spec_hash,
+    )?);
     let overlaps_path = dir.join("overlaps.parquet");
     if overlaps_path.is_file() {
         let order = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;

@@ -153,18 +153,7 @@ impl super::Figure for TraceFigure {
         .draw()
         .map_err(err)?;
         if let Some((e, label)) = &self.target {
-            chart
-                .draw_series(DashedLineSeries::new(
-                    vec![(xlo / 1.3, *e), (xhi * 1.3, *e)],
-                    pt(3.0) as u32,
-                    pt(2.0) as u32,
-                    BLACK.stroke_width(3),
-                ))
-                .map_err(err)?
-                .label(label.clone())
-                .legend(|(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3))
-                });
+            theory_line(&mut chart, vec![(xlo / 1.3, *e), (xhi * 1.3, *e)], label)?;
         }
         for (i, s) in self.series.iter().enumerate() {
             let color = PALETTE[1 + i % (PALETTE.len() - 1)];
@@ -193,6 +182,113 @@ impl super::Figure for TraceFigure {
         house_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         root.present().map_err(err)
     }
+}
+
+/// A labelled series of (x, mean, se) points.
+pub type ScanSeries = (String, Vec<(f64, f64, f64)>);
+
+/// One panel of a temperature scan: per n, (β, mean, se) points joined by lines, and a dashed
+/// theory curve (β, value) where kiln has one.
+#[derive(Clone, Debug)]
+pub struct ScanPanel {
+    pub y_label: String,
+    pub series: Vec<ScanSeries>,
+    pub theory: Option<(Vec<(f64, f64)>, String)>,
+}
+
+/// A sampler kind run at several inverse temperatures: panels side by side against β.
+#[derive(Clone, Debug)]
+pub struct ScanFigure {
+    pub panels: Vec<ScanPanel>,
+    pub caption: String,
+}
+
+impl super::Figure for ScanFigure {
+    fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
+    where
+        DB::ErrorType: 'static,
+    {
+        let main = with_caption(&root, &self.caption)?;
+        let areas = main.split_evenly((1, self.panels.len().max(1)));
+        for (panel, area) in self.panels.iter().zip(&areas) {
+            draw_scan_panel(area, panel)?;
+        }
+        root.present().map_err(err)
+    }
+}
+
+fn draw_scan_panel<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    p: &ScanPanel,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let (mut x0, mut x1, mut lo, mut hi) = (f64::MAX, f64::MIN, f64::MAX, f64::MIN);
+    for (_, pts) in &p.series {
+        for &(x, y, e) in pts {
+            x0 = x0.min(x);
+            x1 = x1.max(x);
+            lo = lo.min(y - e);
+            hi = hi.max(y + e);
+        }
+    }
+    if let Some((pts, _)) = &p.theory {
+        for &(_, y) in pts {
+            lo = lo.min(y);
+            hi = hi.max(y);
+        }
+    }
+    if x0 > x1 {
+        return Err("no points to draw".into());
+    }
+    let pad = 0.05 * (x1 - x0).max(1e-3);
+    // Headroom above the data for the legend.
+    let (lo, hi) = (lo.min(0.0), hi + 0.5 * (hi - lo.min(0.0)).max(1e-3));
+    let mut chart = ChartBuilder::on(area)
+        .margin(pt(5.0) as u32)
+        .x_label_area_size(pt(20.0) as u32)
+        .y_label_area_size(pt(28.0) as u32)
+        .build_cartesian_2d(x0 - pad..x1 + pad, lo..hi)
+        .map_err(err)?;
+    house_mesh(
+        &mut chart.configure_mesh(),
+        "inverse temperature β",
+        &p.y_label,
+        (5, 5),
+    )
+    .draw()
+    .map_err(err)?;
+    if let Some((pts, label)) = &p.theory {
+        theory_line(&mut chart, pts.clone(), label)?;
+    }
+    for (i, (label, pts)) in p.series.iter().enumerate() {
+        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        chart
+            .draw_series(LineSeries::new(
+                pts.iter().map(|q| (q.0, q.1)),
+                color.stroke_width(2),
+            ))
+            .map_err(err)?
+            .label(label.clone())
+            .legend(move |(x, y)| {
+                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
+            });
+        for &(x, y, e) in pts {
+            chart
+                .draw_series(std::iter::once(ErrorBar::new_vertical(
+                    x,
+                    y - e,
+                    y,
+                    y + e,
+                    color.stroke_width(2),
+                    pt(3.0) as u32,
+                )))
+                .map_err(err)?;
+            marker(chart.plotting_area(), i, (x, y), color)?;
+        }
+    }
+    house_legend(&mut chart, SeriesLabelPosition::UpperLeft)
 }
 
 /// Density histogram of values in [−1, 1] with `bins` equal bins.
@@ -335,16 +431,7 @@ impl OverlapFigure {
             .draw()
             .map_err(err)?;
         let (corners, label) = &d.parisi;
-        chart
-            .draw_series(DashedLineSeries::new(
-                corners.clone(),
-                pt(3.0) as u32,
-                pt(2.0) as u32,
-                BLACK.stroke_width(3),
-            ))
-            .map_err(err)?
-            .label(label.clone())
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+        theory_line(&mut chart, corners.clone(), label)?;
         for (i, v) in d.samples.iter().enumerate() {
             let color = PALETTE[1 + i % (PALETTE.len() - 1)];
             chart
@@ -509,16 +596,7 @@ where
     .draw()
     .map_err(err)?;
     for (v, label) in &fig.theory {
-        chart
-            .draw_series(DashedLineSeries::new(
-                vec![(0.0, *v), (xmax, *v)],
-                pt(3.0) as u32,
-                pt(2.0) as u32,
-                BLACK.stroke_width(3),
-            ))
-            .map_err(err)?
-            .label(label.clone())
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+        theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
     }
     for (i, s) in fig.series.iter().enumerate() {
         let color = PALETTE[1 + i % (PALETTE.len() - 1)];
@@ -700,6 +778,31 @@ where
         .label_style(("sans-serif", pt(7.0)))
         .axis_desc_style(("sans-serif", pt(8.0)))
         .axis_style(BLACK.stroke_width(2))
+}
+
+/// A dashed black theory line through `pts`, with its legend entry.
+fn theory_line<'a, DB, X, Y>(
+    chart: &mut ChartContext<'a, DB, plotters::coord::cartesian::Cartesian2d<X, Y>>,
+    pts: Vec<(f64, f64)>,
+    label: &str,
+) -> Result<(), String>
+where
+    DB: DrawingBackend + 'a,
+    DB::ErrorType: 'static,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+{
+    chart
+        .draw_series(DashedLineSeries::new(
+            pts,
+            pt(3.0) as u32,
+            pt(2.0) as u32,
+            BLACK.stroke_width(3),
+        ))
+        .map_err(err)?
+        .label(label.to_string())
+        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+    Ok(())
 }
 
 /// The legend box every figure uses.

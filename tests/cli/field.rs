@@ -110,14 +110,7 @@ sweeps = 150
     let m_rs = v["temperature_rs"][0]["magnetisation"].as_f64().unwrap();
     let e_rs = v["temperature"][0]["energy"].as_f64().unwrap();
     let df = table::read(&w.path().join("results/field/cells.parquet")).unwrap();
-    let col = |c: &str| -> Vec<f64> {
-        df.column(c)
-            .unwrap()
-            .f64()
-            .unwrap()
-            .into_no_null_iter()
-            .collect()
-    };
+    let col = |c: &str| crate::util::floats(&df, c);
     let (eps, mag, energy, field) = (
         col("epsilon"),
         col("magnetisation"),
@@ -161,14 +154,7 @@ fn every_kind_runs_with_a_field_and_zero_is_no_field() {
     let v = w.run_json(&spec, &[]);
     assert_eq!(v["cells"]["failed"].as_u64(), Some(0), "{v}");
     let df = table::read(&w.path().join("results/all/cells.parquet")).unwrap();
-    let labels: Vec<String> = df
-        .column("algorithm")
-        .unwrap()
-        .str()
-        .unwrap()
-        .iter()
-        .map(|s| s.unwrap().to_string())
-        .collect();
+    let labels = crate::util::strings(&df, "algorithm");
     let seeds: Vec<u64> = df
         .column("seed")
         .unwrap()
@@ -176,14 +162,7 @@ fn every_kind_runs_with_a_field_and_zero_is_no_field() {
         .unwrap()
         .into_no_null_iter()
         .collect();
-    let col = |c: &str| -> Vec<f64> {
-        df.column(c)
-            .unwrap()
-            .f64()
-            .unwrap()
-            .into_no_null_iter()
-            .collect()
-    };
+    let col = |c: &str| crate::util::floats(&df, c);
     let (energy, mag) = (col("energy"), col("magnetisation"));
     for seed in 0..6 {
         let best = (0..labels.len())

@@ -275,14 +275,7 @@ kind = "descent"
     );
     w.run_json(&spec, &[]);
     let df = table::read(&w.path().join("results/mix/cells.parquet")).unwrap();
-    let labels: Vec<String> = df
-        .column("algorithm")
-        .unwrap()
-        .str()
-        .unwrap()
-        .iter()
-        .map(|s| s.unwrap().to_string())
-        .collect();
+    let labels = crate::util::strings(&df, "algorithm");
     let opt = |name: &str| -> Vec<Option<f64>> {
         df.column(name).unwrap().f64().unwrap().iter().collect()
     };
@@ -507,4 +500,96 @@ steps = 400
         .map(|l| l.rsplit(',').next().unwrap().parse().unwrap())
         .collect();
     assert!(e.len() > 100 && e[e.len() - 1] > e[0], "{e:?}");
+}
+
+/// A sampler kind at three or more β gets `scan-<kind>`: per n and β the mean coupled
+/// distance at the smallest ε > 0 and the mean energy over seeds (recomputed here from the
+/// table), and E(β) = β/2 on SK below β = 1 (Aizenman, Lebowitz & Ruelle 1987). A kind at one
+/// β gets none.
+#[test]
+fn a_temperature_scan_gets_its_figure() {
+    let w = Work::new();
+    let spec = w.spec(
+        "scan.toml",
+        r#"[experiment]
+name = "scan"
+[model]
+family = "sk"
+[sweep]
+sizes = [40, 80]
+seeds = 3
+epsilons = [0.0, 0.05, 0.2]
+[[algorithm]]
+label = "a"
+kind = "glauber"
+beta = 0.3
+sweeps = 20
+[[algorithm]]
+label = "b"
+kind = "glauber"
+beta = 0.6
+sweeps = 20
+[[algorithm]]
+label = "c"
+kind = "glauber"
+beta = 0.9
+sweeps = 20
+[[algorithm]]
+kind = "localization"
+beta = 0.5
+steps = 5
+"#,
+    );
+    w.run_json(&spec, &[]);
+    let o = w.kiln(&["plot", "scan.toml"]);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    let figs = w.path().join("results/scan/figures");
+    assert!(!figs.join("scan-localization.csv").exists());
+    let csv = std::fs::read_to_string(figs.join("scan-glauber.csv")).unwrap();
+    let rows: Vec<Vec<&str>> = csv
+        .lines()
+        .skip(2)
+        .map(|l| l.split(',').collect())
+        .collect();
+    let df = table::read(&w.path().join("results/scan/cells.parquet")).unwrap();
+    let labels = crate::util::strings(&df, "algorithm");
+    let col = |c: &str| crate::util::floats(&df, c);
+    let ns: Vec<u64> = df
+        .column("n")
+        .unwrap()
+        .u64()
+        .unwrap()
+        .into_no_null_iter()
+        .collect();
+    let (eps, dist, energy) = (col("epsilon"), col("distance_sym"), col("energy"));
+    for (label, beta) in [("a", 0.3), ("b", 0.6), ("c", 0.9)] {
+        for n in [40u64, 80] {
+            let pick = |e: f64, v: &[f64]| -> Vec<f64> {
+                (0..labels.len())
+                    .filter(|&i| labels[i] == label && ns[i] == n && eps[i] == e)
+                    .map(|i| v[i])
+                    .collect()
+            };
+            for (panel, e, v) in [("distance", 0.05, &dist), ("energy", 0.0, &energy)] {
+                let want = mean_se(&pick(e, v)).0;
+                let row = rows
+                    .iter()
+                    .find(|r| r[0] == panel && r[1] == n.to_string() && r[2] == format!("{beta:?}"))
+                    .unwrap_or_else(|| panic!("no {panel} row for β = {beta}, n = {n}\n{csv}"));
+                let got: f64 = row[3].parse().unwrap();
+                assert!(
+                    (got - want).abs() < 1e-12,
+                    "{panel} β = {beta} n = {n}: {got} vs {want}"
+                );
+            }
+        }
+        let g = rows
+            .iter()
+            .find(|r| r[0] == "gibbs_energy" && r[2] == format!("{beta:?}"))
+            .unwrap();
+        assert!(
+            (g[3].parse::<f64>().unwrap() - beta / 2.0).abs() < 1e-6,
+            "{g:?}"
+        );
+    }
 }

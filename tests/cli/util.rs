@@ -163,3 +163,24 @@ impl Lcg {
         (self.0 >> 33) % n.max(1)
     }
 }
+
+/// A string column of a table.
+pub fn strings(df: &polars::prelude::DataFrame, name: &str) -> Vec<String> {
+    df.column(name)
+        .unwrap()
+        .str()
+        .unwrap()
+        .iter()
+        .map(|s| s.unwrap_or("").to_string())
+        .collect()
+}
+
+/// A float column of a table without nulls.
+pub fn floats(df: &polars::prelude::DataFrame, name: &str) -> Vec<f64> {
+    df.column(name)
+        .unwrap()
+        .f64()
+        .unwrap()
+        .into_no_null_iter()
+        .collect()
+}
