@@ -73,7 +73,13 @@ fn cell_key(dir: &Path, row: usize) -> String {
 fn replay_passes_on_every_committed_example() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("results");
     let w = Work::new();
-    for e in ["default", "sk-algorithms", "sk-stability", "cube-mixture"] {
+    for e in [
+        "default",
+        "sk-algorithms",
+        "sk-stability",
+        "cube-mixture",
+        "sk-gibbs-transition",
+    ] {
         let dir = root.join(e);
         let o = w.kiln(&[
             "replay",
