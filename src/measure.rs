@@ -1,6 +1,16 @@
 //! Measurements on outputs: overlap and distance (spins: integer sums, so exact; points: f64
 //! sums in a fixed order).
 
+/// Σσ_i of a ±1 configuration (exact).
+pub fn spin_sum(s: &[i8]) -> i64 {
+    s.iter().map(|&x| x as i64).sum()
+}
+
+/// The magnetisation Σσ_i/n (0 for n = 0).
+pub fn magnetisation(s: &[i8]) -> f64 {
+    spin_sum(s) as f64 / s.len().max(1) as f64
+}
+
 /// σ·τ/n.
 pub fn overlap(a: &[i8], b: &[i8]) -> f64 {
     assert_eq!(a.len(), b.len());

@@ -435,8 +435,7 @@ pub(crate) fn with_field(h: f64, value: f64, x: &[f64], grad: &mut [f64]) -> f64
 /// The output of a run on the couplings alone (which cannot tell σ from −σ) turned toward a
 /// field h: of σ and −σ, the one with hΣσ ≥ 0 (the point flipped with it).
 pub(crate) fn toward_field(mut out: Output, h: f64) -> Output {
-    let m: i64 = out.spins.iter().map(|&s| s as i64).sum();
-    if h * (m as f64) < 0.0 {
+    if h * (crate::measure::spin_sum(&out.spins) as f64) < 0.0 {
         out.spins.iter_mut().for_each(|s| *s = -*s);
         if let Some(x) = &mut out.point {
             x.iter_mut().for_each(|v| *v = -*v);

@@ -251,9 +251,7 @@ impl Outputs<'_> {
             let m = by_base.entry(r.base.clone()).or_insert_with(|| {
                 let key = crate::cell::Key::from_hex(&r.base)?;
                 match self.cache.read_spins(&key) {
-                    Ok(Lookup::Hit(s)) if !s.is_empty() => {
-                        Some(s.iter().map(|&x| x as i64).sum::<i64>() as f64 / s.len() as f64)
-                    }
+                    Ok(Lookup::Hit(s)) if !s.is_empty() => Some(crate::measure::magnetisation(&s)),
                     _ => None,
                 }
             });

@@ -463,7 +463,7 @@ fn magnetisation(spec: &Spec, spins: &[i8]) -> Option<f64> {
     spec.model
         .family
         .spins()
-        .then(|| spins.iter().map(|&s| s as i64).sum::<i64>() as f64 / spins.len().max(1) as f64)
+        .then(|| measure::magnetisation(spins))
 }
 
 /// H/n of an output: at the point on the sphere, at the spins elsewhere.

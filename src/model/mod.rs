@@ -279,12 +279,6 @@ impl ModelSpec {
         ModelSpec::new(families::sphere::Sphere { xi }, couplings)
     }
 
-    /// The same model with a uniform field h (H + h Σσ_i).
-    pub fn with_field(mut self, h: f64) -> ModelSpec {
-        self.field = h;
-        self
-    }
-
     /// The family's name.
     pub fn name(&self) -> &'static str {
         self.family.name()
@@ -461,7 +455,7 @@ impl<M: SpinModel + ?Sized> SpinModel for Fielded<'_, M> {
         h.iter_mut().for_each(|x| *x += self.h);
     }
     fn energy(&self, s: &[i8]) -> f64 {
-        self.inner.energy(s) + self.h * s.iter().map(|&x| x as i64).sum::<i64>() as f64
+        self.inner.energy(s) + self.h * crate::measure::spin_sum(s) as f64
     }
     #[inline(always)]
     fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
@@ -519,9 +513,7 @@ impl Instance {
             Instance::Sphere(m) => m.value(s),
             Instance::Graph(g) => g.energy(s),
             Instance::Spins(b) => b.energy(s),
-            Instance::Fielded(i, h) => {
-                i.energy(s) + h * s.iter().map(|&x| x as i64).sum::<i64>() as f64
-            }
+            Instance::Fielded(i, h) => i.energy(s) + h * crate::measure::spin_sum(s) as f64,
         }
     }
     /// H(x) at a real point (sphere); for ±1 families x must be ±1.
