@@ -357,7 +357,7 @@ fn overlap_figures(
     name: &str,
     spec_hash: &str,
     order: &BTreeMap<String, OrderParameter>,
-    symmetric: bool,
+    (symmetric, spins): (bool, bool),
 ) -> anyhow::Result<Vec<PathBuf>> {
     let df = crate::store::table::read(path)?;
     let algs: Vec<String> = df
@@ -407,7 +407,10 @@ fn overlap_figures(
         let series: Vec<figures::OverlapSeries> = per_n
             .iter()
             .map(|(n, v)| {
-                let bins = figures::histogram(v, 40);
+                // ±1 overlaps lie on the lattice 2k/n − 1; on the sphere they are continuous.
+                let lattice = spins.then(|| 2.0 / *n as f64);
+                let bins =
+                    figures::histogram_width(v, figures::overlap_bin_width(v, lattice), lattice);
                 for b in &bins {
                     csv += &csv_line(&[
                         "density".into(),
@@ -424,7 +427,7 @@ fn overlap_figures(
                 }
             })
             .collect();
-        let mut caption = "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n.".to_string();
+        let mut caption = "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n; bin width by the Freedman–Diaconis rule, for ±1 states rounded to whole lattice steps 2/n.".to_string();
         let theory = order.get(label);
         let markers = theory.map(|o| {
             let (beta, q) = (o.beta, o.q_max);
@@ -803,6 +806,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     if overlaps_path.is_file() {
         let order = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
         let symmetric = exp.model.as_ref().is_none_or(|m| m.symmetric());
+        let spins = exp.model.as_ref().is_none_or(|m| m.family.spins());
         written.extend(overlap_figures(
             &overlaps_path,
             &figdir,
@@ -810,7 +814,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             &name,
             &spec_hash,
             &order,
-            symmetric,
+            (symmetric, spins),
         )?);
     }
     let traces_path = dir.join("traces.parquet");
