@@ -163,65 +163,48 @@ fn order_parameter_corners(sol: &crate::theory::full::FullRsb) -> Vec<(f64, f64)
     v
 }
 
-/// For each sampler on a cube model: its Parisi order parameter at β, from `theory --beta`'s
-/// cached solution.
-fn sampler_overlaps(
-    model: Option<&crate::model::ModelSpec>,
-    cache: &Path,
-    samplers: &BTreeMap<String, f64>,
-) -> anyhow::Result<BTreeMap<String, OrderParameter>> {
-    let Some((m, xi)) = model
-        .filter(|m| m.family.spins())
-        .and_then(|m| Some(m).zip(m.mixture()))
-    else {
-        return Ok(BTreeMap::new());
-    };
-    let store = crate::store::cache::Cache::new(cache);
-    let mut out = BTreeMap::new();
-    for (label, &beta) in samplers {
-        let (sol, _) = crate::theory::cached::at_temperature(&store, xi, beta, m.field)?;
-        out.insert(
-            label.clone(),
-            OrderParameter {
-                beta,
-                q_max: crate::theory::full::largest_overlap(&sol),
-                corners: order_parameter_corners(&sol),
-            },
-        );
-    }
-    Ok(out)
+/// What kiln's theory says at a sampler's β: the Gibbs mean energy per spin E(β) and, on the
+/// cube, the Parisi order parameter.
+struct SamplerTheory {
+    beta: f64,
+    energy: f64,
+    order: Option<OrderParameter>,
 }
 
-/// For each sampler on a cube model, or on spherical SK: (β, the Gibbs mean energy per spin
-/// E(β)).
-fn sampler_energies(
+/// For each sampler with a theory line: on a cube model `theory --beta`'s cached solution
+/// (E = dP/dβ and the order parameter), on spherical SK the closed-form E(β); none elsewhere.
+fn sampler_theory(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
     samplers: &BTreeMap<String, f64>,
-) -> anyhow::Result<BTreeMap<String, (f64, f64)>> {
-    if let Some(xi) = model
-        .filter(|m| !m.family.spins())
-        .and_then(|m| m.mixture())
-    {
-        return Ok(samplers
-            .iter()
-            .filter_map(|(label, &beta)| {
-                let e = crate::theory::sphere::gibbs_energy_pure2(xi, beta)?;
-                Some((label.clone(), (beta, e)))
-            })
-            .collect());
-    }
-    let Some((m, xi)) = model
-        .filter(|m| m.family.spins())
-        .and_then(|m| Some(m).zip(m.mixture()))
-    else {
+) -> anyhow::Result<BTreeMap<String, SamplerTheory>> {
+    let Some((m, xi)) = model.and_then(|m| Some(m).zip(m.mixture())) else {
         return Ok(BTreeMap::new());
     };
     let store = crate::store::cache::Cache::new(cache);
     let mut out = BTreeMap::new();
     for (label, &beta) in samplers {
-        let (_, e) = crate::theory::cached::at_temperature(&store, xi, beta, m.field)?;
-        out.insert(label.clone(), (beta, e));
+        let theory = if m.family.spins() {
+            let (sol, energy) = crate::theory::cached::at_temperature(&store, xi, beta, m.field)?;
+            Some(SamplerTheory {
+                beta,
+                energy,
+                order: Some(OrderParameter {
+                    beta,
+                    q_max: crate::theory::full::largest_overlap(&sol),
+                    corners: order_parameter_corners(&sol),
+                }),
+            })
+        } else {
+            crate::theory::sphere::gibbs_energy_pure2(xi, beta).map(|energy| SamplerTheory {
+                beta,
+                energy,
+                order: None,
+            })
+        };
+        if let Some(t) = theory {
+            out.insert(label.clone(), t);
+        }
     }
     Ok(out)
 }
@@ -234,39 +217,22 @@ fn trace_figures(
     size: Size,
     name: &str,
     spec_hash: &str,
-    targets: &BTreeMap<String, (f64, f64)>,
+    theory: &BTreeMap<String, SamplerTheory>,
 ) -> anyhow::Result<Vec<PathBuf>> {
     let df = crate::store::table::read(path)?;
-    let strs = |c: &str| -> anyhow::Result<Vec<String>> {
-        Ok(df
-            .column(c)?
-            .str()?
-            .iter()
-            .map(|x| x.unwrap_or("").to_string())
-            .collect())
-    };
-    let ints = |c: &str| -> anyhow::Result<Vec<u64>> {
-        Ok(df
-            .column(c)?
-            .u64()?
-            .iter()
-            .map(|x| x.unwrap_or(0))
-            .collect())
-    };
-    let (algs, units) = (strs("algorithm")?, strs("time_unit")?);
-    let (ns, seeds, ends) = (ints("n")?, ints("seed")?, ints("time_end")?);
+    let (algs, units) = (col_str(&df, "algorithm")?, col_str(&df, "time_unit")?);
+    let (ns, seeds, ends) = (
+        col_u64(&df, "n")?,
+        col_u64(&df, "seed")?,
+        col_u64(&df, "time_end")?,
+    );
     let reps: Vec<u32> = df
         .column("replica")?
         .u32()?
         .iter()
         .map(|x| x.unwrap_or(0))
         .collect();
-    let es: Vec<f64> = df
-        .column("energy")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
+    let es = col_f64(&df, "energy")?;
     // algorithm → n → (seed, points) of the smallest seed's replica 0.
     type Traces = BTreeMap<u64, (u64, Vec<(f64, f64)>)>;
     let mut by: BTreeMap<String, Traces> = BTreeMap::new();
@@ -320,7 +286,8 @@ fn trace_figures(
             "Energy per spin along one run of the sampler on one instance per n (the smallest seed, replica 0): means over blocks of consecutive {unit}s (at most {} blocks; up to {block} {unit}s per block), plotted at each block's end.",
             crate::algo::EnergyTrace::POINTS
         );
-        let target = targets.get(label).map(|&(beta, e)| {
+        let target = theory.get(label).map(|t| {
+            let (beta, e) = (t.beta, t.energy);
             caption += &format!(
                 " Dashed: the Gibbs mean energy per spin E(β) = {e:.4} at β = {beta} (kiln's theory: dP/dβ of the Parisi free energy on the cube, the closed form on spherical SK)."
             );
@@ -356,34 +323,12 @@ fn overlap_figures(
     size: Size,
     name: &str,
     spec_hash: &str,
-    order: &BTreeMap<String, OrderParameter>,
+    theory: &BTreeMap<String, SamplerTheory>,
     (symmetric, spins): (bool, bool),
 ) -> anyhow::Result<Vec<PathBuf>> {
     let df = crate::store::table::read(path)?;
-    let algs: Vec<String> = df
-        .column("algorithm")?
-        .str()?
-        .iter()
-        .map(|x| x.unwrap_or("").to_string())
-        .collect();
-    let ns: Vec<u64> = df
-        .column("n")?
-        .u64()?
-        .iter()
-        .map(|x| x.unwrap_or(0))
-        .collect();
-    let qs: Vec<f64> = df
-        .column("overlap")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
-    let sym: Vec<f64> = df
-        .column("overlap_sym")?
-        .f64()?
-        .iter()
-        .map(|x| x.unwrap_or(f64::NAN))
-        .collect();
+    let (algs, ns) = (col_str(&df, "algorithm")?, col_u64(&df, "n")?);
+    let (qs, sym) = (col_f64(&df, "overlap")?, col_f64(&df, "overlap_sym")?);
     let mut by: BTreeMap<String, BTreeMap<u64, Vec<f64>>> = BTreeMap::new();
     let mut by_sym: BTreeMap<String, BTreeMap<u64, Vec<f64>>> = BTreeMap::new();
     for i in 0..qs.len() {
@@ -428,7 +373,7 @@ fn overlap_figures(
             })
             .collect();
         let mut caption = "Histogram (density) of the overlaps σᵃ·σᵇ/n between independent runs of the algorithm on the same instance (replicas), pooled over instance seeds, one outline per n; bin width by the Freedman–Diaconis rule, for ±1 states rounded to whole lattice steps 2/n.".to_string();
-        let theory = order.get(label);
+        let theory = theory.get(label).and_then(|t| t.order.as_ref());
         let markers = theory.map(|o| {
             let (beta, q) = (o.beta, o.q_max);
             caption += &format!(
@@ -502,7 +447,7 @@ fn scan_figures(
     exp: &super::cells::Experiment,
     energies: &crate::store::table::EnergySamples,
     distances: &crate::store::table::DistanceSamples,
-    cache: &Path,
+    targets: &BTreeMap<String, SamplerTheory>,
     figdir: &Path,
     size: Size,
     name: &str,
@@ -514,7 +459,6 @@ fn scan_figures(
             by_kind.entry(kind).or_default().push((b, label));
         }
     }
-    let targets = sampler_energies(exp.model.as_ref(), cache, &exp.sampler_betas)?;
     let modulo_flip = exp.model.as_ref().is_some_and(|m| m.symmetric());
     let mut written = Vec::new();
     for (kind, mut members) in by_kind {
@@ -553,29 +497,27 @@ fn scan_figures(
                 }
             }
             for by_label in energies.values() {
-                if let Some(es) = by_label.get(label) {
-                    let mut per_n: BTreeMap<u64, Vec<f64>> = BTreeMap::new();
-                    for &(n, e) in es {
-                        per_n.entry(n).or_default().push(e);
-                    }
-                    for (n, v) in per_n {
-                        let (m, se) = fit::mean_se(&v);
-                        csv += &csv_line(&[
-                            "energy".into(),
-                            n.to_string(),
-                            format!("{beta:?}"),
-                            format!("{m:?}"),
-                            format!("{se:?}"),
-                            v.len().to_string(),
-                        ]);
-                        energy.entry(n).or_default().push((beta, m, se));
-                    }
+                for p in by_label
+                    .get(label)
+                    .map(|es| fit::points(es))
+                    .unwrap_or_default()
+                {
+                    let n = p.n as u64;
+                    csv += &csv_line(&[
+                        "energy".into(),
+                        n.to_string(),
+                        format!("{beta:?}"),
+                        format!("{:?}", p.mean),
+                        format!("{:?}", p.se),
+                        p.count.to_string(),
+                    ]);
+                    energy.entry(n).or_default().push((beta, p.mean, p.se));
                 }
             }
         }
         let theory: Vec<(f64, f64)> = members
             .iter()
-            .filter_map(|(b, l)| targets.get(*l).map(|&(_, e)| (*b, e)))
+            .filter_map(|(b, l)| targets.get(*l).map(|t| (*b, t.energy)))
             .collect();
         for (b, e) in &theory {
             csv += &csv_line(&[
@@ -638,6 +580,36 @@ fn scan_figures(
         )?);
     }
     Ok(written)
+}
+
+/// A string column of a side table (nulls as "").
+fn col_str(df: &polars::prelude::DataFrame, name: &str) -> anyhow::Result<Vec<String>> {
+    Ok(df
+        .column(name)?
+        .str()?
+        .iter()
+        .map(|x| x.unwrap_or("").to_string())
+        .collect())
+}
+
+/// An unsigned column of a side table (nulls as 0).
+fn col_u64(df: &polars::prelude::DataFrame, name: &str) -> anyhow::Result<Vec<u64>> {
+    Ok(df
+        .column(name)?
+        .u64()?
+        .iter()
+        .map(|x| x.unwrap_or(0))
+        .collect())
+}
+
+/// A float column of a side table (nulls as NaN).
+fn col_f64(df: &polars::prelude::DataFrame, name: &str) -> anyhow::Result<Vec<f64>> {
+    Ok(df
+        .column(name)?
+        .f64()?
+        .iter()
+        .map(|x| x.unwrap_or(f64::NAN))
+        .collect())
 }
 
 /// A label as a file-name part: letters, digits, `-` and `_` kept, anything else `_`.
@@ -799,12 +771,12 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
         }
     }
+    let theory = sampler_theory(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
     written.extend(scan_figures(
-        &exp, &energies, &distances, &cache, &figdir, size, &name, &spec_hash,
+        &exp, &energies, &distances, &theory, &figdir, size, &name, &spec_hash,
     )?);
     let overlaps_path = dir.join("overlaps.parquet");
     if overlaps_path.is_file() {
-        let order = sampler_overlaps(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
         let symmetric = exp.model.as_ref().is_none_or(|m| m.symmetric());
         let spins = exp.model.as_ref().is_none_or(|m| m.family.spins());
         written.extend(overlap_figures(
@@ -813,20 +785,19 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             size,
             &name,
             &spec_hash,
-            &order,
+            &theory,
             (symmetric, spins),
         )?);
     }
     let traces_path = dir.join("traces.parquet");
     if traces_path.is_file() {
-        let targets = sampler_energies(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
         written.extend(trace_figures(
             &traces_path,
             &figdir,
             size,
             &name,
             &spec_hash,
-            &targets,
+            &theory,
         )?);
     }
     if a.json {

@@ -155,13 +155,7 @@ fn every_kind_runs_with_a_field_and_zero_is_no_field() {
     assert_eq!(v["cells"]["failed"].as_u64(), Some(0), "{v}");
     let df = table::read(&w.path().join("results/all/cells.parquet")).unwrap();
     let labels = crate::util::strings(&df, "algorithm");
-    let seeds: Vec<u64> = df
-        .column("seed")
-        .unwrap()
-        .u64()
-        .unwrap()
-        .into_no_null_iter()
-        .collect();
+    let seeds = crate::util::unsigned(&df, "seed");
     let col = |c: &str| crate::util::floats(&df, c);
     let (energy, mag) = (col("energy"), col("magnetisation"));
     for seed in 0..6 {

@@ -306,16 +306,10 @@ kind = "descent"
     // `glauber::tests::mean_energy_at_high_temperature_is_the_annealed_value`):
     // checked to 4 SE over the 6 instances plus 3/n for the quenched-annealed difference.
     let t = table::read(&w.path().join("results/mix/traces.parquet")).unwrap();
-    let col = |name: &str| t.column(name).unwrap().clone();
-    let alg: Vec<String> = col("algorithm")
-        .str()
-        .unwrap()
-        .iter()
-        .map(|s| s.unwrap().to_string())
-        .collect();
-    let seeds: Vec<u64> = col("seed").u64().unwrap().into_no_null_iter().collect();
-    let ends: Vec<u64> = col("time_end").u64().unwrap().into_no_null_iter().collect();
-    let es: Vec<f64> = col("energy").f64().unwrap().into_no_null_iter().collect();
+    let alg = crate::util::strings(&t, "algorithm");
+    let seeds = crate::util::unsigned(&t, "seed");
+    let ends = crate::util::unsigned(&t, "time_end");
+    let es = crate::util::floats(&t, "energy");
     assert!(!alg.iter().any(|a| a == "descent"));
     let mut late = Vec::new();
     for label in ["hot", "cold"] {
@@ -554,13 +548,7 @@ steps = 5
     let df = table::read(&w.path().join("results/scan/cells.parquet")).unwrap();
     let labels = crate::util::strings(&df, "algorithm");
     let col = |c: &str| crate::util::floats(&df, c);
-    let ns: Vec<u64> = df
-        .column("n")
-        .unwrap()
-        .u64()
-        .unwrap()
-        .into_no_null_iter()
-        .collect();
+    let ns = crate::util::unsigned(&df, "n");
     let (eps, dist, energy) = (col("epsilon"), col("distance_sym"), col("energy"));
     for (label, beta) in [("a", 0.3), ("b", 0.6), ("c", 0.9)] {
         for n in [40u64, 80] {
@@ -631,13 +619,7 @@ sweeps = 1000
     let q_max = v["temperature"][0]["q_max"].as_f64().unwrap();
     let df = table::read(&w.path().join("results/peak/overlaps.parquet")).unwrap();
     let q = crate::util::floats(&df, "overlap_sym");
-    let seeds: Vec<u64> = df
-        .column("seed")
-        .unwrap()
-        .u64()
-        .unwrap()
-        .into_no_null_iter()
-        .collect();
+    let seeds = crate::util::unsigned(&df, "seed");
     let peak = |pick: &[usize]| -> f64 {
         let mut counts = [0f64; 33];
         for &i in pick {

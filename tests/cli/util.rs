@@ -184,3 +184,13 @@ pub fn floats(df: &polars::prelude::DataFrame, name: &str) -> Vec<f64> {
         .into_no_null_iter()
         .collect()
 }
+
+/// An unsigned column of a table without nulls.
+pub fn unsigned(df: &polars::prelude::DataFrame, name: &str) -> Vec<u64> {
+    df.column(name)
+        .unwrap()
+        .u64()
+        .unwrap()
+        .into_no_null_iter()
+        .collect()
+}
