@@ -137,7 +137,7 @@ impl Algorithm for Params {
                 },
                 rng,
             ),
-            Instance::Spins(_) => {
+            Instance::Spins(_) | Instance::Clauses(_) => {
                 return Err(super::not_for(KIND.name, "the instance has no gradient"));
             }
             Instance::Cube(m) => run_cube(

@@ -183,7 +183,9 @@ impl Algorithm for Params {
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
             Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
-            Instance::Spins(_) => Err(super::not_for(KIND.name, "H is not quadratic")),
+            Instance::Spins(_) | Instance::Clauses(_) => {
+                Err(super::not_for(KIND.name, "H is not quadratic"))
+            }
             Instance::Fielded(..) => unreachable!("split above"),
         };
         out.map(|o| super::toward_field(o, h))

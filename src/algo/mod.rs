@@ -16,6 +16,7 @@ pub mod localization;
 pub mod lowrank;
 pub mod spectral;
 pub mod tempering;
+pub mod walksat;
 
 use std::collections::BTreeMap;
 
@@ -174,6 +175,7 @@ const BUILTIN: &[Kind] = &[
     glauber::KIND,
     langevin::KIND,
     localization::KIND,
+    walksat::KIND,
 ];
 
 /// The kinds: the built-in list, then those registered at run time.
@@ -358,6 +360,7 @@ macro_rules! on_cube {
             Instance::Cube($d) => Ok($body),
             Instance::Graph($d) => Ok($body),
             Instance::Spins($d) => Ok($body),
+            Instance::Clauses($d) => Ok($body),
             Instance::Fielded(inner, h) => {
                 let h = *h;
                 match &**inner {

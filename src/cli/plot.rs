@@ -438,6 +438,83 @@ fn overlap_figures(
     Ok(written)
 }
 
+/// The threshold view of a constraint family swept over densities: per algorithm, the
+/// fraction of formulas whose output satisfies every constraint (energy 0) at ε = 0 against
+/// the density α, one curve per n, with binomial standard errors. Where the curves for
+/// growing n cross is the finite-size estimate of the algorithm's threshold.
+fn threshold_figures(
+    cells: &crate::store::table::Cells,
+    order: &[String],
+    figdir: &Path,
+    size: Size,
+    name: &str,
+    spec_hash: &str,
+) -> anyhow::Result<Vec<PathBuf>> {
+    // label → n → α bits → (solved, formulas)
+    type Counts<'a> = BTreeMap<&'a String, BTreeMap<u64, BTreeMap<u64, (u64, u64)>>>;
+    let mut counts: Counts = BTreeMap::new();
+    for i in 0..cells.len() {
+        let Some(alpha) = cells.density[i] else {
+            continue;
+        };
+        if cells.epsilon[i] != 0.0 {
+            continue;
+        }
+        let c = counts
+            .entry(&cells.algorithm[i])
+            .or_default()
+            .entry(cells.n[i])
+            .or_default()
+            .entry(alpha.to_bits())
+            .or_default();
+        c.0 += (cells.energy[i] == 0.0) as u64;
+        c.1 += 1;
+    }
+    let mut written = Vec::new();
+    for label in order.iter().filter(|l| counts.contains_key(l)) {
+        let by_n = &counts[label];
+        if by_n.values().all(|m| m.len() < 2) {
+            continue;
+        }
+        let mut csv = format!(
+            "# kiln figure data: fraction of formulas solved against the density; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nn,density,solved,formulas,fraction,fraction_se\n"
+        );
+        let mut series = Vec::new();
+        for (n, by_alpha) in by_n {
+            let mut pts = Vec::new();
+            for (a, &(k, t)) in by_alpha {
+                let alpha = f64::from_bits(*a);
+                let p = k as f64 / t as f64;
+                let se = (p * (1.0 - p) / t as f64).sqrt();
+                csv += &csv_line(&[
+                    n.to_string(),
+                    format!("{alpha:?}"),
+                    k.to_string(),
+                    t.to_string(),
+                    format!("{p:?}"),
+                    format!("{se:?}"),
+                ]);
+                pts.push((alpha, p, se));
+            }
+            series.push((format!("n = {n}"), pts));
+        }
+        let fig = figures::ScanFigure {
+            panels: vec![figures::ScanPanel {
+                x_label: "density α = m/n".into(),
+                y_label: "fraction solved".into(),
+                series,
+                theory: None,
+            }],
+            caption: format!(
+                "{label}: fraction of formulas whose output satisfies every constraint, against the density α, at ε = 0; error bars 1 binomial SE; one curve per n."
+            ),
+        };
+        let base = figdir.join(format!("threshold-{}", file_safe(label)));
+        written.extend(write_all(&base, size, &csv, &fig)?);
+    }
+    Ok(written)
+}
+
 /// `scan-<kind>`: for a sampler kind run at three or more inverse temperatures, the mean
 /// coupled distance at the smallest ε > 0 and the mean energy per spin against β, one curve per
 /// n, with the Gibbs energy E(β) kiln computes (cube: dP/dβ of the Parisi free energy; spherical
@@ -537,6 +614,7 @@ fn scan_figures(
         let mut panels = Vec::new();
         if eps.is_finite() {
             panels.push(figures::ScanPanel {
+                x_label: "inverse temperature β".into(),
                 y_label: format!(
                     "distance at ε = {eps}{}",
                     if modulo_flip { "  (mod ±)" } else { "" }
@@ -546,6 +624,7 @@ fn scan_figures(
             });
         }
         panels.push(figures::ScanPanel {
+            x_label: "inverse temperature β".into(),
             y_label: "energy per spin  H/n".into(),
             series: series(energy),
             theory: (!theory.is_empty()).then(|| (theory.clone(), "E(β), kiln's theory".into())),
@@ -721,7 +800,10 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             theory: refs.iter().map(|r| (r.0, r.1.clone())).collect(),
             caption,
         };
-        let base = figdir.join(format!("energy-{family}-{couplings}"));
+        let base = figdir.join(format!(
+            "energy-{}-{couplings}",
+            file_safe(&family.replace(" α=", "-density-"))
+        ));
         written.extend(write_all(&base, size, &csv, &fig)?);
     }
     for label in order.iter().filter(|l| distances.contains_key(*l)) {
@@ -765,11 +847,23 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             ),
             modulo_flip,
         };
-        let base = figdir.join(format!("stability-{}", file_safe(label)));
+        let base = figdir.join(format!(
+            "stability-{}",
+            file_safe(&label.replace(" α=", "-density-"))
+        ));
         match write_all(&base, size, &csv, &fig) {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
         }
+    }
+    if exp
+        .model
+        .as_ref()
+        .is_some_and(|m| m.family.counts_violations())
+    {
+        written.extend(threshold_figures(
+            &cells, &order, &figdir, size, &name, &spec_hash,
+        )?);
     }
     let theory = sampler_theory(exp.model.as_ref(), &cache, &exp.sampler_betas)?;
     written.extend(scan_figures(

@@ -262,6 +262,7 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
         .map(|&(i, r)| table::Row {
             symmetric: spec.model.symmetric(),
             field: spec.model.field,
+            violations: spec.model.family.counts_violations(),
             experiment: &spec.name,
             label: &spec.algorithms[plan.cells[i].algo].label,
             record: r,

@@ -279,6 +279,7 @@ impl Outputs<'_> {
                 records.get(&cell.key).map(|r| table::Row {
                     symmetric: spec.model.symmetric(),
                     field: spec.model.field,
+                    violations: spec.model.family.counts_violations(),
                     experiment: &spec.name,
                     label: &spec.algorithms[cell.algo].label,
                     record: r,

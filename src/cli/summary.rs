@@ -1,7 +1,8 @@
 //! The short text table `kiln run` prints: per algorithm and size, the mean energy per spin
 //! over seeds with its standard error, and the mean distance at each ε (after rounding, and
 //! before it for algorithms with a pre-rounding point), modulo the global flip for models
-//! where σ and −σ are one state.
+//! where σ and −σ are one state. Constraint families (k-SAT) add the density α and the
+//! fraction of instances whose output satisfies every constraint.
 
 use crate::cell::Key;
 use crate::spec::Spec;
@@ -20,10 +21,16 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
         .max()
         .unwrap_or(9)
         .max(9);
-    let mut s = format!(
-        "{:<width$}  {:>7}  {:>17}",
-        "algorithm", "n", "energy/n ± se"
-    );
+    let density = spec.model.family.density().is_some();
+    let counts = spec.model.family.counts_violations();
+    let mut s = format!("{:<width$}", "algorithm");
+    if density {
+        s += &format!("  {:>7}", "α");
+    }
+    s += &format!("  {:>7}  {:>17}", "n", "energy/n ± se");
+    if counts {
+        s += &format!("  {:>16}", "solved ± se");
+    }
     let points = records.values().any(|r| r.distance_point.is_some());
     // Distances modulo the global flip where σ and −σ are one state (the `_sym` columns).
     let flip = spec.model.symmetric();
@@ -44,49 +51,62 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
     }
     s += "\n";
     for (ai, a) in spec.algorithms.iter().enumerate() {
-        for &(n, _) in &spec.sizes {
-            let rows: Vec<&Record> = plan
-                .cells
-                .iter()
-                .filter(|c| c.algo == ai && c.n == n && c.replica == 0)
-                .filter_map(|c| records.get(&c.key))
-                .collect();
-            let energies: Vec<f64> = rows
-                .iter()
-                .filter(|r| r.epsilon == 0.0)
-                .map(|r| r.energy)
-                .collect();
-            if energies.is_empty() {
-                continue;
-            }
-            let (m, se) = mean_se(&energies);
-            s += &format!("{:<width$}  {n:>7}  {m:>8.4} ± {se:<6.4}", a.label);
-            if !eps.is_empty() {
-                // Mean of one column per ε level ("-" where no record has it).
-                let means = |f: &dyn Fn(&Record) -> Option<f64>| -> String {
-                    eps.iter()
-                        .map(|&e| {
-                            let d: Vec<f64> = rows
-                                .iter()
-                                .filter(|r| r.epsilon == e)
-                                .filter_map(|r| f(r))
-                                .collect();
-                            if d.is_empty() {
-                                format!(" {:>6}", "-")
-                            } else {
-                                format!(" {:>6.3}", mean_se(&d).0)
-                            }
-                        })
-                        .collect()
-                };
-                s += &" ".repeat(head.chars().count());
-                s += &means(&|r| Some(sym(r.distance)));
-                if points {
-                    s += "  ";
-                    s += &means(&|r| r.distance_point.map(sym));
+        for (mi, model) in spec.models.iter().enumerate() {
+            for &(n, _) in &spec.sizes {
+                let rows: Vec<&Record> = plan
+                    .cells
+                    .iter()
+                    .filter(|c| c.algo == ai && c.model == mi && c.n == n && c.replica == 0)
+                    .filter_map(|c| records.get(&c.key))
+                    .collect();
+                let energies: Vec<f64> = rows
+                    .iter()
+                    .filter(|r| r.epsilon == 0.0)
+                    .map(|r| r.energy)
+                    .collect();
+                if energies.is_empty() {
+                    continue;
                 }
+                let (m, se) = mean_se(&energies);
+                s += &format!("{:<width$}", a.label);
+                if let Some(alpha) = model.family.density().filter(|_| density) {
+                    s += &format!("  {alpha:>7}");
+                }
+                s += &format!("  {n:>7}  {m:>8.4} ± {se:<6.4}");
+                if counts {
+                    // Solved: energy 0 (no constraint violated); binomial standard error.
+                    let k = energies.iter().filter(|&&e| e == 0.0).count() as f64;
+                    let t = energies.len() as f64;
+                    let p = k / t;
+                    s += &format!("  {:>7.3} ± {:<6.3}", p, (p * (1.0 - p) / t).sqrt());
+                }
+                if !eps.is_empty() {
+                    // Mean of one column per ε level ("-" where no record has it).
+                    let means = |f: &dyn Fn(&Record) -> Option<f64>| -> String {
+                        eps.iter()
+                            .map(|&e| {
+                                let d: Vec<f64> = rows
+                                    .iter()
+                                    .filter(|r| r.epsilon == e)
+                                    .filter_map(|r| f(r))
+                                    .collect();
+                                if d.is_empty() {
+                                    format!(" {:>6}", "-")
+                                } else {
+                                    format!(" {:>6.3}", mean_se(&d).0)
+                                }
+                            })
+                            .collect()
+                    };
+                    s += &" ".repeat(head.chars().count());
+                    s += &means(&|r| Some(sym(r.distance)));
+                    if points {
+                        s += "  ";
+                        s += &means(&|r| r.distance_point.map(sym));
+                    }
+                }
+                s += "\n";
             }
-            s += "\n";
         }
     }
     s

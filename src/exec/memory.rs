@@ -2,10 +2,16 @@
 
 use crate::spec::{Spec, SpecError};
 
-/// Peak bytes of one cell of size n for algorithm `algo` (instance + work space + a margin
-/// of 1 MiB for the rest).
+/// Peak bytes of one cell of size n for algorithm `algo` (instance at the spec's largest
+/// density + work space + a margin of 1 MiB for the rest).
 pub fn cell_bytes(spec: &Spec, algo: usize, n: u64) -> u128 {
-    spec.model.instance_bytes(n) + spec.algorithms[algo].algo.work_bytes(n) + (1 << 20)
+    let instance = spec
+        .models
+        .iter()
+        .map(|m| m.instance_bytes(n))
+        .max()
+        .unwrap_or(0);
+    instance + spec.algorithms[algo].algo.work_bytes(n) + (1 << 20)
 }
 
 /// The largest cell of the spec: (bytes, n).

@@ -207,7 +207,7 @@ pub fn execute(
     let cost = |c: &&Cell| {
         spec.algorithms[c.algo]
             .algo
-            .cost(c.n, spec.model.flip_cost(c.n))
+            .cost(c.n, spec.models[c.model].flip_cost(c.n))
     };
     phase_base.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
     phase_eps.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
@@ -480,7 +480,8 @@ fn run_reference(
     cell: &Cell,
 ) -> Result<(crate::algo::Output, f64, Extras), CellError> {
     let n = cell.n as usize;
-    let inst = spec.model.sample(n, &cell.instance, 0.0);
+    let model = &spec.models[cell.model];
+    let inst = model.sample(n, &cell.instance, 0.0);
     let mut rng = stream(&cell.run, Purpose::Algorithm, cell.replica as u64);
     let out = spec.algorithms[cell.algo]
         .algo
@@ -492,7 +493,7 @@ fn run_reference(
         ));
     }
     let energy = energy_of(spec, &inst, &out);
-    let extras = spec.model.extras(&inst, energy);
+    let extras = model.extras(&inst, energy);
     Ok((out, energy, extras))
 }
 
@@ -534,6 +535,7 @@ fn compute_cell(
         autocorrelation_time: None,
         overlap_initial: None,
         magnetisation: None,
+        density: spec.models[cell.model].family.density(),
         replica: cell.replica,
         wall_seconds: 0.0,
         host: prov.host.clone(),
@@ -583,7 +585,7 @@ fn compute_cell(
                 )
             }
         };
-        let inst = spec.model.sample(n, &cell.instance, cell.epsilon);
+        let inst = spec.models[cell.model].sample(n, &cell.instance, cell.epsilon);
         let mut rng = stream(&cell.run, Purpose::Algorithm, cell.replica as u64);
         let out = algo
             .run(&inst, &mut rng)

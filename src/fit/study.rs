@@ -11,7 +11,9 @@ use crate::cell::Canon;
 use crate::rng::{Purpose, stream};
 use crate::store::table::Cells;
 
-/// (family, couplings, ε bits) → algorithm label → (n → seed → energy).
+/// (model, couplings, ε bits) → algorithm label → (n → seed → energy). The model is the
+/// family, with its density for constraint families (`ksat α=4.2`, see
+/// [`Cells::model`]), so rows at different densities are fitted apart.
 type Groups = BTreeMap<(String, String, u64), BTreeMap<String, BTreeMap<u64, BTreeMap<u64, f64>>>>;
 
 /// One fit: a (family, couplings, ε, algorithm) group of the table.
@@ -65,7 +67,7 @@ pub fn extrapolate(
     reference_only: bool,
     bootstrap: usize,
 ) -> Study {
-    let (fam, coup, alg) = (&cells.family, &cells.couplings, &cells.algorithm);
+    let (coup, alg) = (&cells.couplings, &cells.algorithm);
     let (ns, seeds, eps) = (&cells.n, &cells.seed, &cells.epsilon);
     let energy = &cells.energy_perturbed;
     let mut groups: Groups = BTreeMap::new();
@@ -74,7 +76,7 @@ pub fn extrapolate(
             continue;
         }
         groups
-            .entry((fam[i].clone(), coup[i].clone(), eps[i].to_bits()))
+            .entry((cells.model(i), coup[i].clone(), eps[i].to_bits()))
             .or_default()
             .entry(alg[i].clone())
             .or_default()

@@ -10,6 +10,7 @@
 //!   instance, and every ε sees the same perturbation direction (J' moves continuously with ε).
 
 pub mod families;
+pub mod ksat;
 pub mod mixed;
 pub mod sk;
 pub mod sparse;
@@ -115,6 +116,24 @@ pub trait Family: std::fmt::Debug + Send + Sync + 'static {
     fn symmetric(&self) -> bool {
         false
     }
+    /// Whether `[model] field = h` applies (the ±1 families whose H is a spin glass; not the
+    /// constraint families, whose H counts violations).
+    fn takes_field(&self) -> bool {
+        self.spins()
+    }
+    /// The constraint density α = m/n of a constraint family (k-SAT); None for the others.
+    fn density(&self) -> Option<f64> {
+        None
+    }
+    /// The family at another density, for `[sweep] densities`; None for a family without one.
+    fn at_density(&self, _alpha: f64) -> Option<Arc<dyn Family>> {
+        None
+    }
+    /// Whether H = −(violated constraints), so `energy`·n counts them (the table's
+    /// `unsatisfied` and `satisfied` columns).
+    fn counts_violations(&self) -> bool {
+        false
+    }
     /// The covariance ξ of a dense mean-field family (sk: q²/2); None for the others.
     fn mixture(&self) -> Option<&Mixture> {
         None
@@ -181,6 +200,7 @@ const BUILTIN: &[FamilyEntry] = &[
     families::erdos_renyi::ENTRY,
     families::regular::ENTRY,
     families::lattice::ENTRY,
+    families::ksat::ENTRY,
 ];
 
 /// The families: the built-in list, then those registered at run time.
@@ -393,6 +413,11 @@ pub trait SpinModel: Sync {
     fn symmetric(&self) -> bool {
         false
     }
+    /// A value H never exceeds, when one is known (k-SAT: 0, every clause satisfied):
+    /// exhaustive search stops at the first state that reaches it.
+    fn ceiling(&self) -> Option<f64> {
+        None
+    }
 }
 
 impl SpinModel for sparse::Graph {
@@ -436,6 +461,8 @@ pub enum Instance {
     Spins(Box<dyn SpinModel + Send>),
     /// A ±1 instance with a uniform external field h: H + h Σσ_i.
     Fielded(Box<Instance>, f64),
+    /// Random k-SAT (H = −unsatisfied clauses).
+    Clauses(ksat::Formula),
 }
 
 /// A ±1 model with a uniform field h added: fields h_i + h, energy H + h Σσ_i. Flips move only
@@ -485,6 +512,9 @@ impl SpinModel for Box<dyn SpinModel + Send> {
     fn symmetric(&self) -> bool {
         (**self).symmetric()
     }
+    fn ceiling(&self) -> Option<f64> {
+        (**self).ceiling()
+    }
 }
 
 impl Instance {
@@ -495,6 +525,7 @@ impl Instance {
             Instance::Graph(g) => g.n(),
             Instance::Spins(b) => b.n(),
             Instance::Fielded(i, _) => i.n(),
+            Instance::Clauses(f) => f.n(),
         }
     }
 
@@ -514,6 +545,7 @@ impl Instance {
             Instance::Graph(g) => g.energy(s),
             Instance::Spins(b) => b.energy(s),
             Instance::Fielded(i, h) => i.energy(s) + h * crate::measure::spin_sum(s) as f64,
+            Instance::Clauses(f) => SpinModel::energy(f, s),
         }
     }
     /// H(x) at a real point (sphere); for ±1 families x must be ±1.

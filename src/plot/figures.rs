@@ -187,16 +187,19 @@ impl super::Figure for TraceFigure {
 /// A labelled series of (x, mean, se) points.
 pub type ScanSeries = (String, Vec<(f64, f64, f64)>);
 
-/// One panel of a temperature scan: per n, (β, mean, se) points joined by lines, and a dashed
-/// theory curve (β, value) where kiln has one.
+/// One panel of a scan along a parameter (β for samplers, the density α for constraint
+/// families): per n, (x, mean, se) points joined by lines, and a dashed theory curve (x, value)
+/// where kiln has one.
 #[derive(Clone, Debug)]
 pub struct ScanPanel {
+    pub x_label: String,
     pub y_label: String,
     pub series: Vec<ScanSeries>,
     pub theory: Option<(Vec<(f64, f64)>, String)>,
 }
 
-/// A sampler kind run at several inverse temperatures: panels side by side against β.
+/// Panels side by side against one parameter: a sampler kind at several inverse
+/// temperatures, or the fraction of formulas solved against the density.
 #[derive(Clone, Debug)]
 pub struct ScanFigure {
     pub panels: Vec<ScanPanel>,
@@ -251,14 +254,9 @@ where
         .y_label_area_size(pt(28.0) as u32)
         .build_cartesian_2d(x0 - pad..x1 + pad, lo..hi)
         .map_err(err)?;
-    house_mesh(
-        &mut chart.configure_mesh(),
-        "inverse temperature β",
-        &p.y_label,
-        (5, 5),
-    )
-    .draw()
-    .map_err(err)?;
+    house_mesh(&mut chart.configure_mesh(), &p.x_label, &p.y_label, (5, 5))
+        .draw()
+        .map_err(err)?;
     if let Some((pts, label)) = &p.theory {
         theory_line(&mut chart, pts.clone(), label)?;
     }

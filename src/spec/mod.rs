@@ -87,6 +87,8 @@ struct RawSweep {
     epsilons: Option<Spanned<Vec<Spanned<f64>>>>,
     #[serde(default)]
     replicas: Option<Spanned<i64>>,
+    #[serde(default)]
+    densities: Option<Spanned<Vec<Spanned<f64>>>>,
 }
 
 /// One `[[algorithm]]` table, kept as parsed values with their positions: which keys apply
@@ -126,7 +128,11 @@ pub struct Spec {
     pub text: String,
     pub name: String,
     pub note: String,
+    /// The model (at the first density when the sweep lists densities).
     pub model: ModelSpec,
+    /// The model at each density of `[sweep] densities`, in the listed order; just `model`
+    /// when the sweep has no densities. Cells name theirs by index ([`plan::Cell::model`]).
+    pub models: Vec<ModelSpec>,
     /// Sizes with their place in the file (for messages about a size).
     pub sizes: Vec<(u64, Range<usize>)>,
     pub seeds: Vec<u64>,
@@ -229,7 +235,7 @@ pub fn model_of(body: &str) -> Result<ModelSpec, SpecError> {
         text: &text,
     };
     let doc: Doc = toml::from_str(&text).map_err(|e| serde_error(&loc, &e))?;
-    model::resolve(&doc.model, &loc)
+    model::resolve(&doc.model, &loc, None)
 }
 
 /// The first line (1-based) where nesting is deepest, and that depth: dots of a dotted key or
@@ -331,11 +337,19 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         ));
     }
 
-    // [model]
-    let model = model::resolve(&raw.model, loc)?;
+    // [model], and the sweep's densities
+    let axis = raw.sweep.densities.as_ref();
+    let model = model::resolve(&raw.model, loc, axis.and_then(|d| d.get_ref().first()))?;
+    let models = match axis {
+        None => vec![model.clone()],
+        Some(d) => sweep::densities(d, &model, loc)?,
+    };
 
     // [sweep]
-    let sizes = sweep::sizes(&raw.sweep.sizes, &model, loc)?;
+    let mut sizes = Vec::new();
+    for m in &models {
+        sizes = sweep::sizes(&raw.sweep.sizes, m, loc)?;
+    }
     let seeds = sweep::seeds_from(&raw.sweep.seeds, loc)?;
     let replicas = match &raw.sweep.replicas {
         None => 1,
@@ -378,6 +392,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     }
 
     let cells = sizes.len() as u128
+        * models.len() as u128
         * seeds.len() as u128
         * epsilons.len() as u128
         * replicas as u128
@@ -403,6 +418,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         name,
         note: raw.experiment.note.unwrap_or_default(),
         model,
+        models,
         sizes,
         seeds,
         epsilons,

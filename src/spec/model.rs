@@ -36,8 +36,13 @@ fn text(
     }
 }
 
-/// Resolves `[model]`.
-pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpec, SpecError> {
+/// Resolves `[model]`. `axis` is the first of `[sweep] densities`, if the sweep lists them: it
+/// stands for the family's `density`, which the table must then not give itself.
+pub(super) fn resolve(
+    raw: &Spanned<RawModel>,
+    loc: &Locator,
+    axis: Option<&Spanned<f64>>,
+) -> Result<ModelSpec, SpecError> {
     let table = raw.get_ref();
     let names = crate::model::family_names();
     let Some((name, fspan)) = text(table, "family", loc)? else {
@@ -57,7 +62,11 @@ pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpe
         ));
     };
     let couplings = match text(table, "couplings", loc)? {
-        None => Couplings::Gaussian,
+        None => entry
+            .couplings
+            .first()
+            .copied()
+            .unwrap_or(Couplings::Gaussian),
         Some((c, span)) => {
             let law = Couplings::parse(&c).ok_or_else(|| {
                 loc.at(
@@ -133,6 +142,21 @@ pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpe
         }
         settings.insert(key.clone(), v.clone());
     }
+    if let Some(a) = axis {
+        if let Some(v) = settings.get("density") {
+            return Err(loc.at(
+                Some(v.span()),
+                "model.density",
+                "the density is given both here and as `[sweep] densities`",
+                Some("give one density here, or the list under [sweep]; not both".into()),
+            ));
+        }
+        if entry.keys.iter().any(|k| k.name == "density") {
+            // Pointed at the list's entry, so messages name the sweep's line.
+            let v = Spanned::new(a.span(), toml::Value::Float(*a.get_ref()));
+            settings.insert("density".into(), v);
+        }
+    }
     let family = (entry.parse)(&Settings {
         at: "model".into(),
         loc,
@@ -140,7 +164,7 @@ pub(super) fn resolve(raw: &Spanned<RawModel>, loc: &Locator) -> Result<ModelSpe
         anchor: Some(fspan),
     })?;
     let field = match field_raw {
-        Some(v) => read_field(v, family.spins(), &name, loc)?,
+        Some(v) => read_field(v, family.takes_field(), &name, loc)?,
         None => 0.0,
     };
     Ok(ModelSpec {
@@ -177,7 +201,7 @@ fn read_field(
             Some(v.span()),
             "model.field",
             format!("`field` does not apply to the `{family}` family"),
-            Some("the uniform field h Σσ_i is for the ±1 families; remove it".into()),
+            Some("the uniform field h Σσ_i is for the ±1 spin-glass families (not the sphere, not constraint families); remove it".into()),
         ));
     }
     if !(h.is_finite() && h.abs() <= 100.0) {

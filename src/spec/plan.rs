@@ -1,4 +1,5 @@
-//! Expansion of a spec into its plan: one cell per (algorithm, n, seed, ε), each with its key.
+//! Expansion of a spec into its plan: one cell per (algorithm, density, n, seed, ε), each with
+//! its key (the density only for a sweep over `[sweep] densities`; it is part of the model).
 //!
 //! Identities (all SHA-256 over canonical encodings, see [`crate::cell`]):
 //! - instance = {model (with revision), n, seed}: names the disorder; every algorithm and every
@@ -15,7 +16,8 @@
 //!   and K on J' (`chaos.parquet`).
 //!
 //! Labels, notes, the experiment name and the order of entries in the spec are not part of any
-//! key. Plans are ordered by (algorithm as listed, n as listed, seed as listed, ε as listed).
+//! key. Plans are ordered by (algorithm as listed, density as listed, n as listed, seed as
+//! listed, ε as listed).
 
 use super::Spec;
 use crate::cell::{Canon, Key};
@@ -26,6 +28,8 @@ use crate::rng::Id;
 pub struct Cell {
     /// Index into `spec.algorithms`.
     pub algo: usize,
+    /// Index into `spec.models` (the density, for a sweep over densities; else 0).
+    pub model: usize,
     pub n: u64,
     pub seed: u64,
     pub epsilon: f64,
@@ -63,9 +67,9 @@ pub struct Plan {
     pub spec_hash: Key,
 }
 
-pub fn instance_id(spec: &Spec, n: u64, seed: u64) -> Id {
+pub fn instance_id(spec: &Spec, model: usize, n: u64, seed: u64) -> Id {
     Canon::map()
-        .with("model", spec.model.disorder_canon())
+        .with("model", spec.models[model].disorder_canon())
         .with("n", n)
         .with("seed", seed)
         .hash("instance")
@@ -75,75 +79,81 @@ pub fn expand(spec: &Spec) -> Plan {
     let mut cells = Vec::new();
     for (ai, entry) in spec.algorithms.iter().enumerate() {
         let algo = entry.algo.canon();
-        for &(n, _) in &spec.sizes {
-            for &seed in &spec.seeds {
-                let instance = instance_id(spec, n, seed);
-                let run = Canon::map()
-                    .with("instance", hex::encode(instance))
-                    .with("algorithm", algo.clone())
-                    .hash("run");
-                let cell_key = |eps: f64| {
-                    Key(Canon::map()
-                        .with("model", spec.model.canon())
-                        .with("n", n)
-                        .with("seed", seed)
+        for (mi, model) in spec.models.iter().enumerate() {
+            let model_canon = model.canon();
+            for &(n, _) in &spec.sizes {
+                for &seed in &spec.seeds {
+                    let instance = instance_id(spec, mi, n, seed);
+                    let run = Canon::map()
+                        .with("instance", hex::encode(instance))
                         .with("algorithm", algo.clone())
-                        .with("epsilon", eps)
-                        .hash("cell"))
-                };
-                let base = cell_key(0.0);
-                for &epsilon in &spec.epsilons {
-                    cells.push(Cell {
-                        algo: ai,
-                        n,
-                        seed,
-                        epsilon,
-                        key: if epsilon == 0.0 {
-                            base
-                        } else {
-                            cell_key(epsilon)
-                        },
-                        base,
-                        instance,
-                        run,
-                        replica: 0,
-                    });
-                }
-                for r in 1..spec.replicas {
-                    let replica_key = |eps: f64| {
+                        .hash("run");
+                    let cell_key = |eps: f64| {
                         Key(Canon::map()
-                            .with("model", spec.model.canon())
+                            .with("model", model_canon.clone())
                             .with("n", n)
                             .with("seed", seed)
                             .with("algorithm", algo.clone())
                             .with("epsilon", eps)
-                            .with("replica", r as u64)
                             .hash("cell"))
                     };
-                    let base = replica_key(0.0);
-                    cells.push(Cell {
-                        algo: ai,
-                        n,
-                        seed,
-                        epsilon: 0.0,
-                        key: base,
-                        base,
-                        instance,
-                        run,
-                        replica: r,
-                    });
-                    for &epsilon in spec.epsilons.iter().filter(|&&e| e > 0.0) {
+                    let base = cell_key(0.0);
+                    for &epsilon in &spec.epsilons {
                         cells.push(Cell {
                             algo: ai,
+                            model: mi,
                             n,
                             seed,
                             epsilon,
-                            key: replica_key(epsilon),
+                            key: if epsilon == 0.0 {
+                                base
+                            } else {
+                                cell_key(epsilon)
+                            },
+                            base,
+                            instance,
+                            run,
+                            replica: 0,
+                        });
+                    }
+                    for r in 1..spec.replicas {
+                        let replica_key = |eps: f64| {
+                            Key(Canon::map()
+                                .with("model", model_canon.clone())
+                                .with("n", n)
+                                .with("seed", seed)
+                                .with("algorithm", algo.clone())
+                                .with("epsilon", eps)
+                                .with("replica", r as u64)
+                                .hash("cell"))
+                        };
+                        let base = replica_key(0.0);
+                        cells.push(Cell {
+                            algo: ai,
+                            model: mi,
+                            n,
+                            seed,
+                            epsilon: 0.0,
+                            key: base,
                             base,
                             instance,
                             run,
                             replica: r,
                         });
+                        for &epsilon in spec.epsilons.iter().filter(|&&e| e > 0.0) {
+                            cells.push(Cell {
+                                algo: ai,
+                                model: mi,
+                                n,
+                                seed,
+                                epsilon,
+                                key: replica_key(epsilon),
+                                base,
+                                instance,
+                                run,
+                                replica: r,
+                            });
+                        }
                     }
                 }
             }
@@ -152,6 +162,11 @@ pub fn expand(spec: &Spec) -> Plan {
     let spec_hash = Key(Canon::map()
         .with("name", spec.name.as_str())
         .with("model", spec.model.canon())
+        .with_if(
+            spec.models.len() > 1,
+            "models",
+            Canon::List(spec.models.iter().map(|m| m.canon()).collect()),
+        )
         .with(
             "sizes",
             spec.sizes.iter().map(|s| s.0).collect::<Vec<u64>>(),

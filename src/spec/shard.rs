@@ -54,7 +54,7 @@ pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> Assignment {
     for c in plan.distinct() {
         *groups.entry(c.base).or_default() += spec.algorithms[c.algo]
             .algo
-            .cost(c.n, spec.model.flip_cost(c.n));
+            .cost(c.n, spec.models[c.model].flip_cost(c.n));
     }
     let mut order: Vec<(Key, f64)> = groups.into_iter().collect();
     order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
@@ -137,7 +137,7 @@ sweeps = 50
                 .map(|c| {
                     spec.algorithms[c.algo]
                         .algo
-                        .cost(c.n, spec.model.flip_cost(c.n))
+                        .cost(c.n, spec.models[c.model].flip_cost(c.n))
                 })
                 .sum()
         };

@@ -164,3 +164,68 @@ pub(super) fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<
         other => Err(err(format!("`{other}` is not a seed count, list or range"))),
     }
 }
+
+/// `[sweep] densities`: the model at each listed density α (each in (0, 10⁴], listed once), in
+/// order. Only a family with a density (k-SAT) takes them.
+pub(super) fn densities(
+    raw: &Spanned<Vec<Spanned<f64>>>,
+    model: &ModelSpec,
+    loc: &Locator,
+) -> Result<Vec<ModelSpec>, SpecError> {
+    let key = "sweep.densities";
+    if model.family.density().is_none() {
+        let owners: Vec<&str> = crate::model::families()
+            .iter()
+            .filter(|f| f.keys.iter().any(|k| k.name == "density"))
+            .map(|f| f.name)
+            .collect();
+        return Err(loc.at(
+            Some(raw.span()),
+            key,
+            format!("the `{}` family has no constraint density", model.name()),
+            Some(format!(
+                "densities are an axis of {}; remove the list",
+                super::quoted(&owners)
+            )),
+        ));
+    }
+    if raw.get_ref().is_empty() {
+        return Err(loc.at(
+            Some(raw.span()),
+            key,
+            "no densities given",
+            Some("list at least one density α = m/n, e.g. densities = [3.8, 4.2]".into()),
+        ));
+    }
+    let mut seen = HashSet::new();
+    let mut models = Vec::new();
+    for a in raw.get_ref() {
+        let x = *a.get_ref();
+        if !(x > 0.0 && x <= 1e4) {
+            return Err(loc.at(
+                Some(a.span()),
+                key,
+                format!("density {x} is not in (0, 10⁴]"),
+                Some("α = m/n is the number of constraints per variable, e.g. 4.2".into()),
+            ));
+        }
+        if !seen.insert(x.to_bits()) {
+            return Err(loc.at(
+                Some(a.span()),
+                key,
+                format!("density {x} is listed twice"),
+                Some("list each density once".into()),
+            ));
+        }
+        let family = model
+            .family
+            .at_density(x)
+            .expect("a family with a density moves along it");
+        models.push(ModelSpec {
+            family,
+            couplings: model.couplings,
+            field: model.field,
+        });
+    }
+    Ok(models)
+}

@@ -75,6 +75,9 @@ pub struct Record {
     /// Σσ_i/n of the reference output (±1 families; absent from records written before it).
     #[serde(default, with = "nonfinite_opt")]
     pub magnetisation: Option<f64>,
+    /// The constraint density α = m/n of a constraint family (k-SAT); absent elsewhere.
+    #[serde(default, with = "nonfinite_opt")]
+    pub density: Option<f64>,
     /// 0 for the reference run and ε cells; r ≥ 1 for an extra replica run at ε = 0.
     #[serde(default)]
     pub replica: u32,
@@ -532,6 +535,7 @@ mod tests {
             autocorrelation_time: None,
             overlap_initial: None,
             magnetisation: None,
+            density: None,
             replica: 0,
             wall_seconds: 0.5,
             host: "h".into(),

@@ -15,11 +15,12 @@ use std::path::Path;
 
 /// Version of the table layout (2: `energy_reduced`, `cut_fraction` and `relaxation` added;
 /// 3: `distance_point`; 4: `overlap_sym`, `distance_sym`, `distance_point_sym`;
-/// 5: `autocorrelation_time`, `overlap_initial`; 6: `field`, `magnetisation`).
-pub const TABLE_FORMAT: &str = "kiln-cells/6";
+/// 5: `autocorrelation_time`, `overlap_initial`; 6: `field`, `magnetisation`; 7: `density`,
+/// `unsatisfied`, `satisfied`).
+pub const TABLE_FORMAT: &str = "kiln-cells/7";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. field = the uniform field h of the model (H includes h sum_i sigma_i; 0 for none); magnetisation = sum_i sigma_i/n of the reference output (+-1 families). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. field = the uniform field h of the model (H includes h sum_i sigma_i; 0 for none); magnetisation = sum_i sigma_i/n of the reference output (+-1 families). Constraint families (ksat): H = -(unsatisfied constraints), so energy = -unsatisfied/n; density = alpha = m/n; unsatisfied = the reference output's count; satisfied = (unsatisfied = 0). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
@@ -30,9 +31,18 @@ pub struct Row<'a> {
     pub symmetric: bool,
     /// The model's uniform field h (0 for none).
     pub field: f64,
+    /// Whether H = −(violated constraints) (the `unsatisfied` and `satisfied` columns).
+    pub violations: bool,
     pub experiment: &'a str,
     pub label: &'a str,
     pub record: &'a Record,
+}
+
+/// The reference output's violated constraints, −energy·n (exact: H is an integer), for a
+/// constraint family.
+fn unsatisfied(r: &Row) -> Option<u64> {
+    r.violations
+        .then(|| (-r.record.energy * r.record.n as f64).round().max(0.0) as u64)
 }
 
 /// Builds the table as a DataFrame (column order is part of the format).
@@ -81,6 +91,9 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("overlap_initial", |r: &Row| r.record.overlap_initial),
         col!("field", |r: &Row| r.field),
         col!("magnetisation", |r: &Row| r.record.magnetisation),
+        col!("density", |r: &Row| r.record.density),
+        col!("unsatisfied", |r: &Row| unsatisfied(r)),
+        col!("satisfied", |r: &Row| unsatisfied(r).map(|u| u == 0)),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),
@@ -586,6 +599,9 @@ pub struct Cells {
     pub distance: Vec<f64>,
     /// Whether `distance` was read from `distance_sym`.
     pub distance_is_sym: bool,
+    /// The clause density α of constraint families (k-SAT); None elsewhere and in tables
+    /// written before the column.
+    pub density: Vec<Option<f64>>,
 }
 
 impl Cells {
@@ -623,7 +639,12 @@ impl Cells {
                 .map(|x| x.unwrap_or(f64::NAN))
                 .collect())
         };
+        let density: Vec<Option<f64>> = match df.column("density") {
+            Ok(c) => c.f64().map_err(|e| bad("density", e))?.iter().collect(),
+            Err(_) => vec![None; df.height()],
+        };
         Ok(Cells {
+            density,
             family: strs("family")?,
             couplings: strs("couplings")?,
             algorithm: strs("algorithm")?,
@@ -641,12 +662,23 @@ impl Cells {
         self.n.len()
     }
 
+    /// How row i's model is named in groups of figures: the family, with its density when it
+    /// has one (`ksat α=4.2`), so rows at different densities are never pooled.
+    pub fn model(&self, i: usize) -> String {
+        match self.density[i] {
+            Some(a) => format!("{} α={a}", self.family[i]),
+            None => self.family[i].clone(),
+        }
+    }
+
     pub fn is_empty(&self) -> bool {
         self.n.is_empty()
     }
 
-    /// The rows grouped for figures: the algorithm labels in table order; (family, couplings)
-    /// → label → (n, energy) samples at ε = 0; label → n → ε bits → distances at ε > 0.
+    /// The rows grouped for figures: the algorithm labels in table order; (model, couplings)
+    /// → label → (n, energy) samples at ε = 0; label → n → ε bits → distances at ε > 0 (the
+    /// label with its density, `walksat α=4`, for a sweep over densities; listed in the order
+    /// too).
     pub fn groups(&self) -> (Vec<String>, EnergySamples, DistanceSamples) {
         let mut energies: EnergySamples = BTreeMap::new();
         let mut distances: DistanceSamples = BTreeMap::new();
@@ -657,16 +689,24 @@ impl Cells {
             if seen.insert(label.clone()) {
                 order.push(label.clone());
             }
+            // Stability at several densities is drawn per (algorithm, density).
+            let stability_label = match self.density[i] {
+                Some(a) => format!("{label} α={a}"),
+                None => label.clone(),
+            };
+            if self.epsilon[i] != 0.0 && seen.insert(stability_label.clone()) {
+                order.push(stability_label.clone());
+            }
             if self.epsilon[i] == 0.0 {
                 energies
-                    .entry((self.family[i].clone(), self.couplings[i].clone()))
+                    .entry((self.model(i), self.couplings[i].clone()))
                     .or_default()
                     .entry(label.clone())
                     .or_default()
                     .push((self.n[i], self.energy[i]));
             } else {
                 distances
-                    .entry(label.clone())
+                    .entry(stability_label)
                     .or_default()
                     .entry(self.n[i])
                     .or_default()

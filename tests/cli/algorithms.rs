@@ -423,6 +423,10 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             cube.clone(),
             AlgoSpec::new(kiln::algo::localization::Params::default()),
         ),
+        (
+            kiln::spec::model_of("family = \"ksat\"\nk = 3\ndensity = 4.5").expect("a model"),
+            AlgoSpec::new(kiln::algo::walksat::Params::default()),
+        ),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {

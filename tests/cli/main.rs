@@ -21,5 +21,6 @@ mod reliability;
 mod replay;
 mod rerun;
 mod samplers;
+mod satisfiability;
 mod tables;
 mod theory;

@@ -135,6 +135,7 @@ const ALGORITHM_PINS: &[Pin] = &[
         "0.038895251188661294",
         "76a80fe1deb7c0da",
     ),
+    ("walksat", 1, "ksat", 24, "0.0", "353e1607881689cb"),
 ];
 
 /// The model of a pin: its family with the parameters of the pin table, through the spec
@@ -144,6 +145,7 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
         "cube" | "sphere" => "xi = { 2 = 0.5, 3 = 0.25 }",
         "erdos-renyi" | "regular" => "degree = 3",
         "lattice" => "dimension = 2",
+        "ksat" => "k = 3\ndensity = 4.5",
         _ => "",
     };
     kiln::spec::model_of(&format!(
@@ -151,6 +153,16 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
         couplings.name()
     ))
     .expect("a model")
+}
+
+/// The coupling law of an algorithm pin's model: gaussian, or the family's only law.
+fn model_law(family: &str) -> Couplings {
+    let entry = kiln::model::find(family).expect("a family");
+    if entry.couplings.contains(&Couplings::Gaussian) {
+        Couplings::Gaussian
+    } else {
+        entry.couplings[0]
+    }
 }
 
 pub fn digest(out: &Output) -> String {
@@ -206,7 +218,7 @@ fn every_kind_gives_its_pinned_output() {
         .iter()
         .map(|&(kind, _, family, n, _, _)| {
             let algo = settings_of(kind);
-            let m = model(family, Couplings::Gaussian);
+            let m = model(family, model_law(family));
             let inst = m.sample(n, &id("pin-instance", 0), 0.0);
             let out = algo
                 .run(
@@ -315,6 +327,15 @@ const COPY_PINS: &[CopyPin] = &[
         "-0.06401104041339106",
         "0.09502005088667705",
         "5a7232e703eda126",
+    ),
+    (
+        "ksat",
+        "pm1",
+        1,
+        24,
+        "-0.7083333333333334",
+        "-0.6666666666666666",
+        "42ec62b6c1b98cf2",
     ),
 ];
 

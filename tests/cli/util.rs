@@ -108,7 +108,7 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
     let d = match inst {
         Instance::Sphere(m) | Instance::Cube(m) => m.dense().expect("a p = 2 term"),
         Instance::Sk(d) => d,
-        Instance::Graph(_) | Instance::Spins(_) | Instance::Fielded(..) => {
+        Instance::Graph(_) | Instance::Spins(_) | Instance::Fielded(..) | Instance::Clauses(_) => {
             panic!("reference_top takes dense instances without a field")
         }
     };

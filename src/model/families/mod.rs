@@ -4,6 +4,7 @@
 
 pub mod cube;
 pub mod erdos_renyi;
+pub mod ksat;
 pub mod lattice;
 pub mod regular;
 pub mod sk;
