@@ -19,13 +19,16 @@
 //!   on SK (n as given, instances first .. first + reps − 1) and ns per attempt on a ±1
 //!   3-regular graph with n = 10⁶ (scripts/bench-samplers.sh runs it beside
 //!   scripts/perf/heatbath.c).
+//! - walksat: kiln's WalkSAT on random 3-SAT, n = 10⁶, α = 4.0, noise 0.567, `reps` flips per
+//!   variable: ns per flip, the initial clause state included (scripts/bench-walksat.sh runs it
+//!   beside scripts/perf/walksat.c).
 //!
 //! Instances are generated outside the timed region. `cargo run --release --example
 //! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings] [first=0]`;
 //! the dense part uses instances first .. first + reps − 1 (scripts/bench.sh, which runs it
 //! next to the references, gives each round its own instances, as it does the C programs).
 
-use kiln::algo::{anneal, descent, glauber};
+use kiln::algo::{anneal, descent, glauber, walksat};
 use kiln::linalg::top_eigen;
 use kiln::model::Couplings;
 use kiln::model::sk::sample;
@@ -60,6 +63,9 @@ fn main() {
     }
     if parts.contains(&"glauber") {
         heat_bath(n, reps, first);
+    }
+    if parts.contains(&"walksat") {
+        walk(reps as u64, first as u64);
     }
     if parts.contains(&"sparse") {
         sparse(reps.min(3));
@@ -99,6 +105,25 @@ fn heat_bath(n: usize, reps: usize, first: usize) {
     println!(
         "prog=kiln_glauber_sparse n={big} degree=3 sweeps=200 beta=1 ns_per_attempt={:.3}",
         t.elapsed().as_secs_f64() * 1e9 / (big as f64 * 200.0)
+    );
+}
+
+fn walk(flips: u64, seed: u64) {
+    use kiln::model::ksat::Formula;
+    let n = 1_000_000;
+    let f = Formula::sample(n, 3, 4 * n, &[seed as u8; 32], 0.0);
+    let p = walksat::Params {
+        noise: 0.567,
+        flips,
+    };
+    let t = Instant::now();
+    let out = walksat::run(&p, &f, &mut stream(&[61; 32], Purpose::Algorithm, seed));
+    let secs = t.elapsed().as_secs_f64();
+    println!(
+        "prog=kiln_walksat n={n} alpha=4 noise=0.567 flips={} solved={} seconds={secs:.3} ns_per_flip={:.3}",
+        out.info.iterations,
+        out.info.converged as u8,
+        secs * 1e9 / out.info.iterations.max(1) as f64
     );
 }
 

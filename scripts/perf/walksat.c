@@ -2,8 +2,9 @@
  * speed comparison in scripts/bench-walksat.sh. The same rule (a uniformly chosen
  * unsatisfied clause; a free move when a variable breaks nothing, else a random variable
  * with probability `noise`, else a least-breaking one, ties uniformly), the same state (per
- * clause the true-literal count and the XOR of the true variables; the unsatisfied clauses
- * as a list with positions) and the same bookkeeping of the best assignment (a flip log
+ * clause the true-literal count and the XOR of the true variables, packed in one 64-bit word;
+ * the unsatisfied clauses
+ * as a list with positions; occurrences as clause << 1 | negated) and the same bookkeeping of the best assignment (a flip log
  * folded every 2n flips). Its own random 3-SAT formula (same law, its own generator).
  *
  *   walksat N ALPHA NOISE FLIPS_PER_VARIABLE SEED
@@ -44,21 +45,23 @@ int main(int argc, char **argv) {
     long *fill = malloc(sizeof(long) * (n + 1));
     memcpy(fill, start, sizeof(long) * (n + 1));
     uint32_t *occ = malloc(sizeof(uint32_t) * m * k);
-    for (long p = 0; p < m * k; p++) occ[fill[lit[p] >> 1]++] = (uint32_t)p;
+    for (long p = 0; p < m * k; p++) occ[fill[lit[p] >> 1]++] = (uint32_t)(p / k) << 1 | (lit[p] & 1);
 
     double t0 = now();
     int8_t *s = malloc(n), *base = malloc(n), *kept = malloc(n);
     for (int v = 0; v < n; v++) s[v] = (rng_next(&r) >> 63) ? -1 : 1;
     memcpy(base, s, n);
     memcpy(kept, s, n);
-    uint32_t *count = calloc(m, 4), *xr = calloc(m, 4), *unsat = malloc(4 * m), *place = malloc(4 * m);
+    const uint64_t ONE = 1ull << 32;
+    uint64_t *st = calloc(m, 8);
+    uint32_t *unsat = malloc(4 * m), *place = malloc(4 * m);
     long nu = 0;
     for (long c = 0; c < m; c++) {
         for (int j = 0; j < k; j++) {
             uint32_t l = lit[c * k + j];
-            if ((s[l >> 1] < 0) == (l & 1)) { count[c]++; xr[c] ^= l >> 1; }
+            if ((s[l >> 1] < 0) == (l & 1)) { st[c] += ONE; st[c] ^= l >> 1; }
         }
-        if (!count[c]) { place[c] = nu; unsat[nu++] = c; }
+        if (!(st[c] >> 32)) { place[c] = nu; unsat[nu++] = c; }
     }
     uint32_t *log = malloc(sizeof(uint32_t) * 2 * n);
     long nlog = 0, best = nu, best_at = -1, flips = 0;
@@ -68,8 +71,8 @@ int main(int argc, char **argv) {
         for (int j = 0; j < k; j++) {
             uint32_t v = lit[c * k + j] >> 1, b = 0;
             for (long q = start[v]; q < start[v + 1]; q++) {
-                uint32_t d = occ[q] / k;
-                b += count[d] == 1 && xr[d] == v;
+                uint32_t d = occ[q] >> 1;
+                b += st[d] == (ONE | v);
             }
             if (b < fewest) { fewest = b; pick = v; ties = 1; }
             else if (b == fewest && rng_below(&r, ++ties) == 0) pick = v;
@@ -77,18 +80,19 @@ int main(int argc, char **argv) {
         if (fewest > 0 && rng_unif(&r) < noise) pick = lit[c * k + rng_below(&r, k)] >> 1;
         int plain_true = s[pick] > 0;
         for (long q = start[pick]; q < start[pick + 1]; q++) {
-            uint32_t p = occ[q], d = p / k;
-            int was_true = plain_true == !(lit[p] & 1);
-            xr[d] ^= pick;
+            uint32_t o = occ[q], d = o >> 1;
+            int was_true = plain_true == !(o & 1);
+            st[d] ^= pick;
             if (was_true) {
-                if (--count[d] == 0) { place[d] = nu; unsat[nu++] = d; }
+                st[d] -= ONE;
+                if (!(st[d] >> 32)) { place[d] = nu; unsat[nu++] = d; }
             } else {
-                if (count[d] == 0) {
+                if (!(st[d] >> 32)) {
                     uint32_t last = unsat[--nu];
                     unsat[place[d]] = last;
                     place[last] = place[d];
                 }
-                count[d]++;
+                st[d] += ONE;
             }
         }
         s[pick] = -s[pick];

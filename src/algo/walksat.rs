@@ -6,9 +6,10 @@
 //! at a satisfying assignment (`converged`) or after `flips`·n flips; the output is the
 //! assignment with the fewest unsatisfied clauses seen (the first one reaching that count).
 //!
-//! State per clause: its number of true literals and the XOR of their variables, so a clause
-//! with one true literal names its critical variable at once and a variable's break count is
-//! one pass over its occurrences (common practice in fast focused local search). The walk
+//! State per clause: its number of true literals and the XOR of their variables, packed in one
+//! word (one cache line visited per clause), so a clause with one true literal names its
+//! critical variable at once and a variable's break count is one pass over its occurrences
+//! (common practice in fast focused local search). The walk
 //! keeps the flips since a snapshot of the best assignment, so recovering it costs O(n)
 //! memory whatever the budget.
 
@@ -100,18 +101,20 @@ impl Algorithm for Params {
     }
 }
 
-/// The walk's state: the assignment, per clause its true-literal count and the XOR of its
-/// true variables, and the unsatisfied clauses as a list with each one's place in it.
+/// The walk's state: the assignment, per clause its true-literal count (high 32 bits) and the
+/// XOR of its true variables (low 32 bits), and the unsatisfied clauses as a list with each
+/// one's place in it.
 struct Walk<'a> {
     f: &'a Formula,
     s: Vec<i8>,
-    count: Vec<u32>,
-    xor: Vec<u32>,
+    state: Vec<u64>,
     unsat: Vec<u32>,
     place: Vec<u32>,
 }
 
 const NOWHERE: u32 = u32::MAX;
+/// A count of one true literal in the packed clause state.
+const ONE: u64 = 1 << 32;
 
 impl<'a> Walk<'a> {
     fn new(f: &'a Formula, s: Vec<i8>) -> Walk<'a> {
@@ -120,19 +123,18 @@ impl<'a> Walk<'a> {
         let mut w = Walk {
             f,
             s,
-            count: vec![0; m],
-            xor: vec![0; m],
+            state: vec![0; m],
             unsat: Vec::new(),
             place: vec![NOWHERE; m],
         };
         for (c, lits) in f.literals().chunks_exact(k).enumerate() {
             for &l in lits {
                 if Formula::is_true(l, &w.s) {
-                    w.count[c] += 1;
-                    w.xor[c] ^= l >> 1;
+                    w.state[c] += ONE;
+                    w.state[c] ^= (l >> 1) as u64;
                 }
             }
-            if w.count[c] == 0 {
+            if w.state[c] >> 32 == 0 {
                 w.place[c] = w.unsat.len() as u32;
                 w.unsat.push(c as u32);
             }
@@ -143,32 +145,29 @@ impl<'a> Walk<'a> {
     /// The clauses v's flip would turn unsatisfied: those where v is the only true literal.
     #[inline(always)]
     fn breaks(&self, v: u32) -> u32 {
-        let k = self.f.k() as u32;
         let mut b = 0;
-        for &p in self.f.occurrences(v as usize) {
-            let c = (p / k) as usize;
-            b += (self.count[c] == 1 && self.xor[c] == v) as u32;
+        for &o in self.f.occurrences(v as usize) {
+            let c = (o >> 1) as usize;
+            b += (self.state[c] == ONE | v as u64) as u32;
         }
         b
     }
 
     #[inline(always)]
     fn flip(&mut self, v: u32) {
-        let k = self.f.k() as u32;
-        let lits = self.f.literals();
         let plain_true_before = self.s[v as usize] > 0;
-        for &p in self.f.occurrences(v as usize) {
-            let c = (p / k) as usize;
-            let was_true = plain_true_before == (lits[p as usize] & 1 == 0);
-            self.xor[c] ^= v;
+        for &o in self.f.occurrences(v as usize) {
+            let c = (o >> 1) as usize;
+            let was_true = plain_true_before == (o & 1 == 0);
+            self.state[c] ^= v as u64;
             if was_true {
-                self.count[c] -= 1;
-                if self.count[c] == 0 {
+                self.state[c] -= ONE;
+                if self.state[c] >> 32 == 0 {
                     self.place[c] = self.unsat.len() as u32;
                     self.unsat.push(c as u32);
                 }
             } else {
-                if self.count[c] == 0 {
+                if self.state[c] >> 32 == 0 {
                     let at = self.place[c] as usize;
                     let last = *self.unsat.last().expect("c is listed");
                     self.unsat[at] = last;
@@ -176,7 +175,7 @@ impl<'a> Walk<'a> {
                     self.unsat.pop();
                     self.place[c] = NOWHERE;
                 }
-                self.count[c] += 1;
+                self.state[c] += ONE;
             }
         }
         self.s[v as usize] = -self.s[v as usize];

@@ -6,7 +6,8 @@
 //! a satisfying assignment scores 0.
 //!
 //! Storage: the clauses flat, one u32 per literal (variable << 1 | negated), and per variable
-//! the positions c·k + j of its literals (CSR), so a flip costs O(occurrences · k).
+//! its occurrences as clause << 1 | negated (CSR), so a flip costs O(occurrences · k) and
+//! finding a clause needs no division by k.
 //!
 //! As a ±1 model (the [`SpinModel`] every spin algorithm uses) H is the multilinear polynomial
 //! −Σ_c Π_{l ∈ c} (1 − s_l σ_l)/2, with s_l = +1 for a plain and −1 for a negated literal. Its
@@ -41,7 +42,7 @@ pub struct Formula {
     k: usize,
     /// Literal j of clause c at c·k + j: variable << 1 | negated.
     lits: Vec<u32>,
-    /// occ[start[v]..start[v+1]] are the positions c·k + j of v's literals, increasing.
+    /// occ[start[v]..start[v+1]] are v's occurrences, clause c << 1 | negated, c increasing.
     start: Vec<usize>,
     occ: Vec<u32>,
 }
@@ -103,8 +104,8 @@ impl Formula {
     pub fn from_literals(n: usize, k: usize, lits: Vec<u32>) -> Formula {
         assert!(k >= 1 && lits.len().is_multiple_of(k), "ragged clause list");
         assert!(
-            lits.len() < u32::MAX as usize,
-            "too many literals for u32 positions"
+            lits.len() / k < 1 << 31,
+            "too many clauses for 31-bit indices"
         );
         let mut start = vec![0usize; n + 1];
         for &l in &lits {
@@ -119,7 +120,7 @@ impl Formula {
         let mut occ = vec![0u32; lits.len()];
         for (p, &l) in lits.iter().enumerate() {
             let v = (l >> 1) as usize;
-            occ[fill[v]] = p as u32;
+            occ[fill[v]] = ((p / k) as u32) << 1 | (l & 1);
             fill[v] += 1;
         }
         Formula {
@@ -146,7 +147,7 @@ impl Formula {
     pub fn literals(&self) -> &[u32] {
         &self.lits
     }
-    /// The positions c·k + j of variable v's literals.
+    /// Variable v's occurrences: clause c << 1 | 1 where v is negated in c.
     #[inline(always)]
     pub fn occurrences(&self, v: usize) -> &[u32] {
         &self.occ[self.start[v]..self.start[v + 1]]
@@ -210,13 +211,11 @@ impl SpinModel for Formula {
     fn flip(&self, s: &mut [i8], h: &mut [f64], v: usize) {
         let k = self.k;
         let was_true_plain = s[v] > 0;
-        for &p in self.occurrences(v) {
-            let p = p as usize;
-            let c = p / k;
+        for &o in self.occurrences(v) {
+            let c = (o >> 1) as usize;
             let clause = &self.lits[c * k..c * k + k];
-            let own = clause[p - c * k];
             // Whether v's literal in c is true before the flip.
-            let before = was_true_plain == (own & 1 == 0);
+            let before = was_true_plain == (o & 1 == 0);
             let mut z = 0;
             let mut last = 0u32;
             for &l in clause {

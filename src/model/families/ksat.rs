@@ -134,7 +134,7 @@ impl Family for Ksat {
                 format!("m = round({}·{n}) = 0 clauses", self.density),
                 "use a larger n or density so that the formula has clauses".into(),
             ))
-        } else if m.saturating_mul(self.k as u64) >= u32::MAX as u64 {
+        } else if m >= 1 << 31 || m.saturating_mul(self.k as u64) >= u32::MAX as u64 {
             Some((
                 format!("{m} clauses of width {} exceed 2³² literals", self.k),
                 "kiln indexes literals with 32 bits; use a smaller n or density".into(),
