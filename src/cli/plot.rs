@@ -45,6 +45,42 @@ pub const SPHERE_INTERVALS: usize = 64;
 /// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
 /// cube (and SK) the Parisi value and, where it lies below, the algorithmic threshold; on the sphere the ground state and the algorithmic
 /// value. Graph and lattice families have no line.
+/// The large-density asymptote of MAX-k-SAT on a k-SAT energy figure (group `ksat α=…`),
+/// where it is below 0 (√α > c_k); an asymptote in α, and the caption says so.
+fn ksat_line(
+    model: Option<&crate::model::ModelSpec>,
+    group: &str,
+    cache: &Path,
+) -> anyhow::Result<Vec<(f64, String, String)>> {
+    let Some(f) = model.and_then(|m| {
+        m.family
+            .as_any()
+            .downcast_ref::<crate::model::families::ksat::Ksat>()
+    }) else {
+        return Ok(vec![]);
+    };
+    let Some(alpha) = group
+        .strip_prefix("ksat α=")
+        .and_then(|a| a.parse::<f64>().ok())
+    else {
+        return Ok(vec![]);
+    };
+    let k = f.k as u32;
+    let store = crate::store::cache::Cache::new(cache);
+    let (c, how) = crate::theory::ksat::parisi_value(&store, k, crate::theory::ksat::MAX_STEPS)?;
+    let e = crate::theory::ksat::asymptote(k, alpha, c);
+    if e >= 0.0 {
+        return Ok(vec![]);
+    }
+    Ok(vec![(
+        e,
+        format!("large-α asymptote: {e:.4}"),
+        format!(
+            "Dashed: the large-density asymptote −(α − √α·c_k)/2^k = {e:.6} of MAX-{k}-SAT at α = {alpha}, c_{k} = {c:.6} the zero-temperature Parisi value of ξ_k(q) = (1 + q)^k − 1 computed by kiln ({how}; Panchenko 2018, arXiv:1608.06256): a limit as α → ∞ with o(√α) corrections, not a finite-α value."
+        ),
+    )])
+}
+
 fn reference_lines(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
@@ -772,7 +808,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         let refs = if *family == exp.model.as_ref().map_or("", |m| m.family.name()) {
             reference_lines(exp.model.as_ref(), &cache, &exp.gibbs_betas())?
         } else {
-            vec![]
+            ksat_line(exp.model.as_ref(), family, &cache)?
         };
         for (v, l, _) in &refs {
             csv += &csv_line(&[

@@ -69,6 +69,80 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
     Ok(Mixture { terms })
 }
 
+/// The widths k for which `kiln theory` on a k-SAT spec prints c_k.
+const KSAT_WIDTHS: std::ops::RangeInclusive<u32> = 2..=5;
+
+/// `kiln theory` on a k-SAT spec: c_k, the zero-temperature Parisi value of ξ_k(q) = (1 + q)^k
+/// − 1 (a mixture with a p = 1 term), for k = 2…5, and the large-density asymptote at the
+/// spec's densities (see [`crate::theory::ksat`]).
+fn ksat(a: &TheoryArgs, spec: &crate::spec::Spec, k: u32) -> anyhow::Result<ExitCode> {
+    if !a.beta.is_empty() || a.field.is_some() {
+        return Err(InputError(
+            "--beta and --field are for mean-field mixtures; a k-SAT spec gives its zero-temperature asymptote"
+                .into(),
+        )
+        .into());
+    }
+    if !(1..=6).contains(&a.k) {
+        return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
+    }
+    let cache = crate::store::cache::Cache::new(a.folders.cache_dir());
+    let mut rows = Vec::new();
+    for w in KSAT_WIDTHS.chain(std::iter::once(k)) {
+        if rows.iter().any(|r: &(u32, f64, String)| r.0 == w) {
+            continue;
+        }
+        let (c, how) = crate::theory::ksat::parisi_value(&cache, w, a.k)?;
+        rows.push((w, c, how));
+    }
+    let c_k = rows.iter().find(|r| r.0 == k).expect("the spec's k").1;
+    let alphas: Vec<f64> = spec
+        .models
+        .iter()
+        .filter_map(|m| m.family.density())
+        .collect();
+    if a.json {
+        let v = serde_json::json!({
+            "ksat": {
+                "k": k,
+                "c": rows.iter().map(|(w, c, how)| serde_json::json!({"k": w, "value": c, "solution": how})).collect::<Vec<_>>(),
+                "asymptote": alphas.iter().map(|&al| serde_json::json!({"density": al, "energy": crate::theory::ksat::asymptote(k, al, c_k)})).collect::<Vec<_>>(),
+            }
+        });
+        out(&format!("{v}\n"));
+        return Ok(ExitCode::SUCCESS);
+    }
+    let mut o = String::from(
+        "random k-SAT at large density: fewest unsatisfied clauses per variable\n  α/2^k − √α·c_k/2^k + o(√α), c_k the zero-temperature Parisi value of ξ_k(q) = (1 + q)^k − 1\n  (Panchenko 2018, arXiv:1608.06256)\n\n",
+    );
+    o += &format!("  {:>3}  {:>10}  {}\n", "k", "c_k", "lowest of");
+    for (w, c, how) in &rows {
+        let mark = if *w == k { "  ← the spec's k" } else { "" };
+        o += &format!("  {w:>3}  {c:>10.7}  {how}{mark}\n");
+    }
+    o += &format!(
+        "\n{}: k = {k}; energy = −unsatisfied/n on the asymptote (a large-α limit, not a finite-α value)\n",
+        spec.name
+    );
+    o += &format!("  {:>8}  {:>12}\n", "α", "energy");
+    for al in &alphas {
+        let e = crate::theory::ksat::asymptote(k, *al, c_k);
+        if e < 0.0 {
+            o += &format!("  {al:>8}  {e:>12.6}\n");
+        } else {
+            o += &format!("  {al:>8}  {:>12}\n", "—");
+        }
+    }
+    if alphas.iter().any(|&al| al.sqrt() <= c_k) {
+        o += &format!(
+            "  (—: α ≤ c_k² = {:.3}, where the asymptote is not below 0 and says nothing)\n",
+            c_k * c_k
+        );
+    }
+    out(&o);
+    Ok(ExitCode::SUCCESS)
+}
+
 pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let mut spec_field = 0.0;
     let (xi, experiment) = match &a.mixture {
@@ -78,9 +152,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 Some(p) => crate::spec::load(p)?,
                 None => crate::spec::default_spec(),
             };
+            if let Some(f) = spec
+                .model
+                .family
+                .as_any()
+                .downcast_ref::<crate::model::families::ksat::Ksat>()
+            {
+                return ksat(a, &spec, f.k as u32);
+            }
             let Some(xi) = spec.model.mixture().cloned() else {
                 return Err(InputError(format!(
-                    "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere); {} is `{}`",
+                    "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere) and the k-SAT asymptote (ksat); {} is `{}`",
                     spec.origin,
                     spec.model.name()
                 ))

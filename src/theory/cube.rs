@@ -10,6 +10,9 @@
 //! cubic interpolation (linear extrapolation outside, where Ψ grows like |x|). The penalty is
 //! ½ Σ_j m_j [g(q_{j+1}) − g(q_j)] with g(t) = t ξ'(t) − ξ(t).
 //!
+//! A p = 1 term of ξ (a Gaussian field of variance ξ'(0) on every spin, as in the k-SAT
+//! mixtures of [`super::ksat`]) enters as an expectation of Ψ(0, ·) over that field.
+//!
 //! Solutions offered: replica-symmetric (γ ≡ 0: √(2ξ'(1)/π)), the constant-γ one-step form
 //! (q₀ = 0), and k-step RSB with γ = 0 on [0, q_1) and increasing m_1 ≤ … ≤ m_k on the k
 //! intervals above, minimised over q and m by Nelder–Mead.
@@ -94,18 +97,31 @@ pub fn functional(xi: &Mixture, steps: &Steps, s: &Settings, rule: &[(f64, f64)]
     let a: Vec<f64> = (0..k)
         .map(|j| (xi.d1(qs[j + 1]) - xi.d1(qs[j])).max(0.0).sqrt())
         .collect();
+    let field = xi.d1(0.0);
+    // With a field term (k-SAT mixtures) the optimiser can wander where a tilt m_j·a_j puts
+    // the tilted Gaussian's mass beyond the quadrature: such steps are refused (the bound of
+    // the full-RSB lattice, MAX_TILT = 8). Mixtures without a field are evaluated as before.
+    if field > 0.0 && steps.m.iter().zip(&a).any(|(m, a)| m * a > 8.0) {
+        return f64::INFINITY;
+    }
+    // There too, a tilt m_j below 1e-6 is an expectation (m = 0): (log E e^{mΨ})/m loses every
+    // digit to rounding as m → 0, and the optimiser does drive some m_j there.
+    let m_of = |j: usize| {
+        let m = steps.m[j];
+        if field > 0.0 && m < 1e-6 { 0.0 } else { m }
+    };
     let half = s.half_width * xi.d1(1.0).sqrt();
     let dx = 2.0 * half / (s.grid - 1) as f64;
     let xs: Vec<f64> = (0..s.grid).map(|i| -half + i as f64 * dx).collect();
     // Last interval from |x|, in closed form.
-    let (m, aa) = (steps.m[k - 1], a[k - 1]);
+    let (m, aa) = (m_of(k - 1), a[k - 1]);
     let mut cur = Grid {
         x0: -half,
         dx,
         v: xs.iter().map(|&x| last_level(x, m, aa)).collect(),
     };
     for j in (0..k - 1).rev() {
-        let (m, aa) = (steps.m[j], a[j]);
+        let (m, aa) = (m_of(j), a[j]);
         if aa == 0.0 {
             continue;
         }
@@ -131,14 +147,23 @@ pub fn functional(xi: &Mixture, steps: &Steps, s: &Settings, rule: &[(f64, f64)]
     }
     let g = |t: f64| t * xi.d1(t) - xi.xi(t);
     let penalty: f64 = (0..k)
-        .map(|j| 0.5 * steps.m[j] * (g(qs[j + 1]) - g(qs[j])))
+        .map(|j| 0.5 * m_of(j) * (g(qs[j + 1]) - g(qs[j])))
         .sum();
-    cur.at(0.0) - penalty
+    // A p = 1 term c₁² q is a Gaussian field of variance ξ'(0) = c₁² on every spin: Ψ(0, ·)
+    // averaged over it (an expectation, γ = 0 below q = 0). Without one ξ'(0) = 0 and this is
+    // Ψ(0, 0), as before.
+    let start = if field > 0.0 {
+        let sd = field.sqrt();
+        rule.iter().map(|&(z, w)| w * cur.at(sd * z)).sum()
+    } else {
+        cur.at(0.0)
+    };
+    start - penalty
 }
 
 /// The last step from Ψ(1, x) = |x| in closed form: m^{-1} log E exp(m|x + aZ|) (E|x + aZ| for
 /// m = 0).
-pub(crate) fn last_level(x: f64, m: f64, aa: f64) -> f64 {
+pub fn last_level(x: f64, m: f64, aa: f64) -> f64 {
     if aa == 0.0 {
         x.abs()
     } else if m == 0.0 {
@@ -165,8 +190,23 @@ pub struct Solution {
     pub steps: Steps,
 }
 
-/// Constant γ ≡ m on [0, 1) (one step with q₀ = 0): min_m [m ξ(1)/2 + log(2Φ(m√ξ'(1)))/m].
+/// Constant γ ≡ m on [0, 1) (one step with q₀ = 0): min_m [m ξ(1)/2 + log(2Φ(m√ξ'(1)))/m];
+/// with a p = 1 term (ξ'(0) > 0) through [`functional`], which averages over the field.
 pub fn constant_gamma(xi: &Mixture) -> Solution {
+    if xi.d1(0.0) > 0.0 {
+        let s = Settings::default();
+        let rule = gauss_hermite(s.nodes);
+        let steps = |m: f64| Steps {
+            q: vec![0.0],
+            m: vec![m],
+        };
+        let f = |m: f64| functional(xi, &steps(m), &s, &rule);
+        let m = super::golden_section(f, 1e-6, 50.0, 120);
+        return Solution {
+            value: f(m),
+            steps: steps(m),
+        };
+    }
     let f = |m: f64| 0.5 * m * xi.xi(1.0) + (2.0 * normal_cdf(m * xi.d1(1.0).sqrt())).ln() / m;
     let m = super::golden_section(f, 1e-6, 50.0, 200);
     Solution {

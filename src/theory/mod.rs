@@ -8,6 +8,7 @@
 pub mod cached;
 pub mod cube;
 pub mod full;
+pub mod ksat;
 pub mod quad;
 pub mod sphere;
 pub mod temperature;
