@@ -93,9 +93,16 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
     )
     .context("writing the LaTeX table")?;
 
+    // The threshold view of a constraint family swept over densities.
+    let solved = fit::study::solved(&cells);
     if a.json {
         let v = serde_json::json!({
             "experiment": name,
+            "solved": solved.iter().map(|r| {
+                let (p, se) = r.fraction();
+                serde_json::json!({"algorithm": r.algorithm, "n": r.n, "density": r.density,
+                    "solved": r.solved, "formulas": r.formulas, "fraction": p, "fraction_se": se})
+            }).collect::<Vec<_>>(),
             "fits": rows.iter().map(|r| serde_json::json!({
                 "family": r.family, "couplings": r.couplings, "algorithm": r.algorithm,
                 "epsilon": r.epsilon, "sizes": r.sizes, "e_inf": r.fit.e_inf,
@@ -115,11 +122,20 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         });
         out(&format!("{v}\n"));
     } else {
-        let mut s = format!(
+        // A sweep over densities fits each density apart: name the model on each row.
+        let models = rows.iter().any(|r| r.family != rows[0].family);
+        let mut s = String::new();
+        if models {
+            s += &format!("{:<16} ", "model");
+        }
+        s += &format!(
             "{:<14} {:>6} {:>5}  {:<16} {:<14} {:<12} {:>9}  {:<14}\n",
             "algorithm", "ε", "sizes", "e∞ (fit)", "e∞ (boot se)", "ω", "χ²/dof", "drop smallest"
         );
         for r in rows {
+            if models {
+                s += &format!("{:<16} ", r.family);
+            }
             let omega = if params.omega == Omega::Fitted {
                 with_error(r.fit.omega, r.fit.omega_se)
             } else {
@@ -142,6 +158,23 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
                     .as_ref()
                     .map_or("-".into(), |d| with_error(d.e_inf, d.e_inf_se)),
             );
+        }
+        if !solved.is_empty() {
+            s += &format!(
+                "\nfraction of formulas solved at ε = 0 (± binomial se):\n{:<14} {:>8} {:>8} {:>9}  {:<14}\n",
+                "algorithm", "α", "n", "solved", "fraction"
+            );
+            for r in &solved {
+                let (p, se) = r.fraction();
+                s += &format!(
+                    "{:<14} {:>8} {:>8} {:>9}  {p:.3} ± {se:.3}\n",
+                    r.algorithm,
+                    r.density,
+                    r.n,
+                    format!("{}/{}", r.solved, r.formulas)
+                );
+            }
+            s += "\n";
         }
         for d in diffs {
             s += &format!(

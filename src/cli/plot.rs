@@ -486,29 +486,21 @@ fn threshold_figures(
     name: &str,
     spec_hash: &str,
 ) -> anyhow::Result<Vec<PathBuf>> {
-    // label → n → α bits → (solved, formulas)
-    type Counts<'a> = BTreeMap<&'a String, BTreeMap<u64, BTreeMap<u64, (u64, u64)>>>;
-    let mut counts: Counts = BTreeMap::new();
-    for i in 0..cells.len() {
-        let Some(alpha) = cells.density[i] else {
-            continue;
-        };
-        if cells.epsilon[i] != 0.0 {
-            continue;
-        }
-        let c = counts
-            .entry(&cells.algorithm[i])
+    // label → n → [(α, solved, formulas)], from the fit's threshold view (one counting).
+    let mut counts: BTreeMap<&str, BTreeMap<u64, Vec<&crate::fit::study::Solved>>> =
+        BTreeMap::new();
+    let view = crate::fit::study::solved(cells);
+    for r in &view {
+        counts
+            .entry(r.algorithm.as_str())
             .or_default()
-            .entry(cells.n[i])
+            .entry(r.n)
             .or_default()
-            .entry(alpha.to_bits())
-            .or_default();
-        c.0 += (cells.energy[i] == 0.0) as u64;
-        c.1 += 1;
+            .push(r);
     }
     let mut written = Vec::new();
-    for label in order.iter().filter(|l| counts.contains_key(l)) {
-        let by_n = &counts[label];
+    for label in order.iter().filter(|l| counts.contains_key(l.as_str())) {
+        let by_n = &counts[label.as_str()];
         if by_n.values().all(|m| m.len() < 2) {
             continue;
         }
@@ -516,21 +508,19 @@ fn threshold_figures(
             "# kiln figure data: fraction of formulas solved against the density; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nn,density,solved,formulas,fraction,fraction_se\n"
         );
         let mut series = Vec::new();
-        for (n, by_alpha) in by_n {
+        for (n, rows) in by_n {
             let mut pts = Vec::new();
-            for (a, &(k, t)) in by_alpha {
-                let alpha = f64::from_bits(*a);
-                let p = k as f64 / t as f64;
-                let se = (p * (1.0 - p) / t as f64).sqrt();
+            for r in rows {
+                let (p, se) = r.fraction();
                 csv += &csv_line(&[
                     n.to_string(),
-                    format!("{alpha:?}"),
-                    k.to_string(),
-                    t.to_string(),
+                    format!("{:?}", r.density),
+                    r.solved.to_string(),
+                    r.formulas.to_string(),
                     format!("{p:?}"),
                     format!("{se:?}"),
                 ]);
-                pts.push((alpha, p, se));
+                pts.push((r.density, p, se));
             }
             series.push((format!("n = {n}"), pts));
         }

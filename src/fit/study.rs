@@ -207,3 +207,68 @@ pub fn extrapolate(
         problems,
     }
 }
+
+/// One (algorithm, n, α) cell of the threshold view of a constraint family: how many of its
+/// formulas the algorithm's reference output (ε = 0) satisfies completely (energy 0).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Solved {
+    pub algorithm: String,
+    pub n: u64,
+    pub density: f64,
+    pub solved: u64,
+    pub formulas: u64,
+}
+
+impl Solved {
+    /// The fraction solved and its binomial standard error √(p(1 − p)/N).
+    pub fn fraction(&self) -> (f64, f64) {
+        let t = self.formulas as f64;
+        let p = self.solved as f64 / t;
+        (p, (p * (1.0 - p) / t).sqrt())
+    }
+}
+
+/// The threshold view of a table: per (algorithm in table order, n, α increasing), the
+/// formulas solved at ε = 0. Empty for tables without a density.
+pub fn solved(cells: &Cells) -> Vec<Solved> {
+    let mut order: Vec<&String> = Vec::new();
+    let mut counts: BTreeMap<(usize, u64, u64), (u64, u64)> = BTreeMap::new();
+    for i in 0..cells.len() {
+        let Some(alpha) = cells.density[i] else {
+            continue;
+        };
+        if cells.epsilon[i] != 0.0 {
+            continue;
+        }
+        let label = &cells.algorithm[i];
+        let a = match order.iter().position(|l| *l == label) {
+            Some(a) => a,
+            None => {
+                order.push(label);
+                order.len() - 1
+            }
+        };
+        let c = counts.entry((a, cells.n[i], alpha.to_bits())).or_default();
+        c.0 += (cells.energy[i] == 0.0) as u64;
+        c.1 += 1;
+    }
+    let mut rows: Vec<Solved> = counts
+        .into_iter()
+        .map(|((a, n, bits), (solved, formulas))| Solved {
+            algorithm: order[a].clone(),
+            n,
+            density: f64::from_bits(bits),
+            solved,
+            formulas,
+        })
+        .collect();
+    // Densities are positive, so their bits order as the numbers do; keep (algorithm, n, α).
+    rows.sort_by(|x, y| {
+        let ax = order.iter().position(|l| **l == x.algorithm);
+        let ay = order.iter().position(|l| **l == y.algorithm);
+        ax.cmp(&ay)
+            .then(x.n.cmp(&y.n))
+            .then(x.density.total_cmp(&y.density))
+    });
+    rows
+}

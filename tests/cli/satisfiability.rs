@@ -257,6 +257,32 @@ fn density_sweep_table() {
         assert_eq!(r[2].parse::<usize>().unwrap(), k, "{r:?}");
         assert_eq!(r[3], "4");
     }
+    // `kiln fit` reports the same counts, and fits each density apart.
+    let o = w.kiln(&["fit", spec.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let fit_rows = v["solved"].as_array().unwrap();
+    assert_eq!(fit_rows.len(), 2 * 2 * 2, "{v}");
+    for r in fit_rows.iter().filter(|r| r["algorithm"] == "exhaustive") {
+        let (nn, a) = (r["n"].as_u64().unwrap(), r["density"].as_f64().unwrap());
+        let csv_row = rows
+            .iter()
+            .find(|x| x[0].parse::<u64>().unwrap() == nn && x[1].parse::<f64>().unwrap() == a)
+            .expect("the figure has the row");
+        assert_eq!(
+            r["solved"].as_u64().unwrap(),
+            csv_row[2].parse::<u64>().unwrap()
+        );
+    }
+    // Every fit is of one density (at α = 3 every formula is solved at every n: zero
+    // variance, which the fit refuses and reports).
+    let fits = v["fits"].as_array().unwrap();
+    assert!(fits.iter().any(|f| f["family"] == "ksat α=6"), "{v}");
+    assert!(
+        fits.iter()
+            .all(|f| ["ksat α=3", "ksat α=6"].contains(&f["family"].as_str().unwrap())),
+        "{v}"
+    );
     for f in [
         "threshold-walksat.svg",
         "energy-ksat-density-3-pm1.csv",
