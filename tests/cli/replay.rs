@@ -79,6 +79,7 @@ fn replay_passes_on_every_committed_example() {
         "sk-stability",
         "cube-mixture",
         "sk-gibbs-transition",
+        "ksat-walk-threshold",
     ] {
         let dir = root.join(e);
         let o = w.kiln(&[
