@@ -24,9 +24,11 @@ pub struct PlotArgs {
     /// Results folder (where results/<experiment>/cells.parquet is).
     #[arg(long, value_name = "DIR", default_value = "results")]
     pub results: PathBuf,
-    /// Correction exponent of the energy plot's x axis and fit. Default: 2/3.
-    #[arg(long, value_name = "X", default_value_t = 2.0 / 3.0)]
-    pub omega: f64,
+    /// Correction exponent of the energy figures' fits: a number, or `fit` to fit it per series
+    /// (the x axis then uses the median fitted ω). Default: the spec's `[fit] omega`, else 2/3,
+    /// so the figure draws the fit `kiln fit` reports (with the spec's `terms` and `min_n`).
+    #[arg(long, value_name = "X|fit")]
+    pub omega: Option<String>,
     /// Cache folder (theory solutions are cached under `<cache>/theory`). Default:
     /// `<results>/.cache`.
     #[arg(long, value_name = "DIR")]
@@ -42,9 +44,6 @@ pub struct PlotArgs {
 /// q-intervals of the spherical ground-state solver used for figures and `kiln theory`.
 pub const SPHERE_INTERVALS: usize = 64;
 
-/// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
-/// cube (and SK) the Parisi value and, where it lies below, the algorithmic threshold; on the sphere the ground state and the algorithmic
-/// value. Graph and lattice families have no line.
 /// The large-density asymptote of MAX-k-SAT on a k-SAT energy figure (group `ksat α=…`),
 /// where it is below 0 (√α > c_k); an asymptote in α, and the caption says so.
 fn ksat_line(
@@ -81,6 +80,9 @@ fn ksat_line(
     )])
 }
 
+/// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
+/// cube (and SK) the Parisi value and, where it lies below, the algorithmic threshold; on the sphere the ground state and the algorithmic
+/// value. Graph and lattice families have no line.
 fn reference_lines(
     model: Option<&crate::model::ModelSpec>,
     cache: &Path,
@@ -743,9 +745,26 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         "two" => Size::TwoColumn,
         w => return Err(InputError(format!("--width {w}: give `one` or `two`")).into()),
     };
-    if !(a.omega > 0.0 && a.omega.is_finite()) {
-        return Err(InputError(format!("--omega {}: give a positive number", a.omega)).into());
-    }
+    // The fit settings of `kiln fit`: the flag, else the spec's [fit], else ω = 2/3, one term,
+    // every size.
+    let omega = match a.omega.as_deref() {
+        None => match exp.fit.omega {
+            Some(None) => Omega::Fitted,
+            Some(Some(x)) => Omega::Fixed(x),
+            None => Omega::Fixed(2.0 / 3.0),
+        },
+        Some("fit") => Omega::Fitted,
+        Some(x) => match x.parse::<f64>() {
+            Ok(v) if v > 0.0 && v.is_finite() => Omega::Fixed(v),
+            _ => {
+                return Err(
+                    InputError(format!("--omega {x}: give a positive number or `fit`")).into(),
+                );
+            }
+        },
+    };
+    let terms = exp.fit.terms.unwrap_or(1);
+    let min_n = exp.fit.min_n.unwrap_or(0);
     let table_path = exp.table()?;
     let cache = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
     let spec_hash = exp.spec_hash();
@@ -757,24 +776,54 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     let figdir = dir.join("figures");
     let mut written: Vec<PathBuf> = Vec::new();
     let params = Params {
-        omega: Omega::Fixed(a.omega),
+        omega,
+        terms,
         ..Params::default()
     };
     for ((family, couplings), by_alg) in &energies {
         let mut series = Vec::new();
+        let labels: Vec<&String> = order.iter().filter(|l| by_alg.contains_key(*l)).collect();
+        // Fits on the sizes `kiln fit` uses (n ≥ min_n); every size is drawn.
+        let fits: Vec<(Vec<fit::Point>, Option<fit::Fit>)> = labels
+            .iter()
+            .map(|l| {
+                let pts = fit::points(&by_alg[*l]);
+                let used: Vec<fit::Point> = pts
+                    .iter()
+                    .filter(|p| p.n >= min_n as f64)
+                    .cloned()
+                    .collect();
+                let f = fit::fit(&used, &params).ok();
+                (pts, f)
+            })
+            .collect();
+        // The axis: the fixed ω, or with ω fitted the median of the series' fitted values.
+        let axis = match omega {
+            Omega::Fixed(x) => x,
+            Omega::Fitted => {
+                let mut ws: Vec<f64> = fits
+                    .iter()
+                    .filter_map(|(_, f)| f.as_ref())
+                    .map(|f| f.omega)
+                    .collect();
+                ws.sort_by(f64::total_cmp);
+                ws.get(ws.len() / 2).copied().unwrap_or(2.0 / 3.0)
+            }
+        };
         let mut csv = format!(
-            "# kiln figure data: energy per spin against n^-omega; experiment={name}; spec_hash={spec_hash}; omega={}\nseries,kind,n,x,y,y_se\n",
-            a.omega
+            "# kiln figure data: energy per spin against n^-omega; experiment={name}; spec_hash={spec_hash}; omega={axis}{}\nseries,kind,n,x,y,y_se\n",
+            match omega {
+                Omega::Fitted => "; omega fitted per series, axis at the median",
+                Omega::Fixed(_) => "",
+            }
         );
-        for label in order.iter().filter(|l| by_alg.contains_key(*l)) {
-            let pts = fit::points(&by_alg[label]);
-            let f = fit::fit(&pts, &params).ok();
+        for (label, (pts, f)) in labels.iter().copied().zip(fits) {
             for p in &pts {
                 csv += &csv_line(&[
                     label.clone(),
                     "mean".into(),
                     format!("{}", p.n),
-                    format!("{:?}", p.n.powf(-a.omega)),
+                    format!("{:?}", p.n.powf(-axis)),
                     format!("{:?}", p.mean),
                     format!("{:?}", p.se),
                 ]);
@@ -810,18 +859,34 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
                 "".into(),
             ]);
         }
+        let how = match omega {
+            Omega::Fixed(x) => format!("ω = {x:.3}"),
+            Omega::Fitted => format!("ω fitted per series (axis at the median, {axis:.3})"),
+        };
+        let how = format!(
+            "{how}{}{}",
+            if terms == 2 {
+                ", with a second term b n^-2ω"
+            } else {
+                ""
+            },
+            if min_n > 0 {
+                format!(", on sizes n ≥ {min_n}")
+            } else {
+                String::new()
+            }
+        );
         let caption = format!(
-            "{} ({} couplings): mean energy per spin over seeds at ε = 0, error bars 1 SE; lines: fits e∞ + a n^-ω with ω = {:.3} and 1σ bands; points at n^-ω = 0: extrapolations. {}",
+            "{} ({} couplings): mean energy per spin over seeds at ε = 0, error bars 1 SE; lines: fits e∞ + a n^-ω with {how} and 1σ bands; points at n^-ω = 0: extrapolations. {}",
             crate::model::find(family).map_or(family.as_str(), |f| f.title),
             couplings,
-            a.omega,
             refs.iter()
                 .map(|r| r.2.clone())
                 .collect::<Vec<_>>()
                 .join(" ")
         );
         let fig = EnergyFigure {
-            omega: a.omega,
+            omega: axis,
             series,
             theory: refs.iter().map(|r| (r.0, r.1.clone())).collect(),
             caption,

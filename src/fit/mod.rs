@@ -98,6 +98,10 @@ pub enum FitError {
     TooFewSizes { sizes: usize, params: usize },
     #[error("a standard error is zero or missing at n = {n}: give at least two seeds per size")]
     NoError { n: f64 },
+    #[error(
+        "every seed gives the same value at n = {n} ({value}), so its standard error is 0 and the fit has no weight for it (a constraint family where every formula is solved reads so): drop that size with min_n, or fit another column"
+    )]
+    Constant { n: f64, value: f64 },
     #[error("the design is degenerate (repeated sizes?)")]
     Degenerate,
 }
@@ -122,6 +126,11 @@ fn weights(points: &[Point]) -> Result<Vec<f64>, FitError> {
         .map(|p| {
             if p.se > 0.0 && p.se.is_finite() {
                 Ok(1.0 / (p.se * p.se))
+            } else if p.count >= 2 && p.se == 0.0 {
+                Err(FitError::Constant {
+                    n: p.n,
+                    value: p.mean,
+                })
             } else {
                 Err(FitError::NoError { n: p.n })
             }
@@ -391,5 +400,19 @@ mod tests {
             fit(&zero, &Params::default()),
             Err(FitError::NoError { .. })
         ));
+        // Several seeds, all equal: said as such, not as a missing seed.
+        let same: Vec<Point> = zero
+            .iter()
+            .map(|p| Point {
+                count: 5,
+                ..p.clone()
+            })
+            .collect();
+        let e = fit(&same, &Params::default()).unwrap_err();
+        assert!(matches!(e, FitError::Constant { .. }));
+        assert!(
+            e.to_string().contains("every seed gives the same value"),
+            "{e}"
+        );
     }
 }

@@ -652,16 +652,25 @@ where
     for (i, s) in fig.series.iter().enumerate() {
         let color = PALETTE[1 + i % (PALETTE.len() - 1)];
         if let Some(f) = &s.fit {
+            // The fit's own x is n^-ω_fit = x^(ω_fit/ω) on this axis (the same x when the
+            // series was fitted at the axis' ω).
+            let at = |x: f64| {
+                if f.omega == fig.omega {
+                    f.at(x)
+                } else {
+                    f.at(x.powf(f.omega / fig.omega))
+                }
+            };
             let grid: Vec<f64> = (0..=60).map(|k| xmax * k as f64 / 60.0).collect();
             let mut band: Vec<(f64, f64)> = grid
                 .iter()
                 .map(|&x| {
-                    let (y, e) = f.at(x);
+                    let (y, e) = at(x);
                     (x, y + e)
                 })
                 .collect();
             band.extend(grid.iter().rev().map(|&x| {
-                let (y, e) = f.at(x);
+                let (y, e) = at(x);
                 (x, y - e)
             }));
             chart
@@ -672,7 +681,7 @@ where
                 .map_err(err)?;
             chart
                 .draw_series(LineSeries::new(
-                    grid.iter().map(|&x| (x, f.at(x).0)),
+                    grid.iter().map(|&x| (x, at(x).0)),
                     color.stroke_width(3),
                 ))
                 .map_err(err)?

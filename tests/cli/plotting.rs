@@ -203,3 +203,47 @@ fn two_column_width() {
     let o = w.kiln(&["plot", s.to_str().unwrap(), "--width", "three"]);
     assert_eq!(o.status.code(), Some(2));
 }
+
+/// The figure draws the fit `kiln fit` reports: with `[fit] omega = 1.0` (and with ω fitted,
+/// `terms`, `min_n`) the energy figure's extrapolated point of each algorithm equals the e∞ of
+/// `kiln fit --json` at ε = 0, and its header and caption name the settings.
+#[test]
+fn the_figure_and_the_table_come_from_one_fit() {
+    for fit in [
+        "omega = 1.0",
+        "omega = \"fit\"\nmin_n = 24",
+        "omega = 0.5\nterms = 2",
+    ] {
+        let w = Work::new();
+        let s = w.spec("f.toml", &format!("{SPEC}\n[fit]\n{fit}\nbootstrap = 0\n"));
+        w.run_json(&s, &[]);
+        let o = w.kiln(&["fit", s.to_str().unwrap(), "--json"]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        let o = w.kiln(&["plot", s.to_str().unwrap()]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let csv =
+            std::fs::read_to_string(w.path().join("results/figs/figures/energy-sk-gaussian.csv"))
+                .unwrap();
+        let mut checked = 0;
+        for line in csv.lines().filter(|l| l.contains(",extrapolated,")) {
+            let cols: Vec<&str> = line.split(',').collect();
+            let e: f64 = cols[4].parse().unwrap();
+            let table = v["fits"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|f| f["algorithm"] == cols[0] && f["epsilon"] == 0.0)
+                .unwrap_or_else(|| panic!("{fit}: no fit of {} in {v}", cols[0]));
+            assert_eq!(e, table["e_inf"].as_f64().unwrap(), "{fit}: {line}");
+            checked += 1;
+        }
+        assert_eq!(checked, 2, "{fit}: {csv}");
+        if fit.contains("1.0") {
+            assert!(
+                csv.starts_with("# ") && csv.lines().next().unwrap().contains("omega=1"),
+                "{csv}"
+            );
+        }
+    }
+}
