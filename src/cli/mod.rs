@@ -4,6 +4,7 @@
 //! (spec or arguments), 130 interrupted by SIGINT (Ctrl-C), 143 by SIGTERM.
 
 mod bundle;
+mod cell;
 mod cells;
 mod check;
 mod compare;
@@ -11,6 +12,7 @@ mod fit;
 mod kinds;
 mod plot;
 mod replay;
+mod rows;
 mod run;
 mod signals;
 mod slurm;
@@ -51,6 +53,11 @@ enum Command {
     Replay(replay::ReplayArgs),
     /// Write a results folder as one reproducible archive for a data deposit.
     Bundle(bundle::BundleArgs),
+    /// The rows of a results table, filtered by any column; or exported as CSV or JSON lines.
+    Rows(rows::RowsArgs),
+    /// One cell of the cache by the first digits of its key: what ran, what it measured, who
+    /// computed it, where its artifacts are.
+    Cell(cell::CellArgs),
     /// Extrapolate energy per spin to n → ∞ (finite-size scaling) with error bars.
     Fit(fit::FitArgs),
     /// Draw publication figures (SVG, PNG, PDF) with their data.
@@ -205,6 +212,8 @@ where
         Command::Compare(a) => compare::run(&a),
         Command::Replay(a) => replay::run(&a),
         Command::Bundle(a) => bundle::run(&a),
+        Command::Rows(a) => rows::run(&a),
+        Command::Cell(a) => cell::run(&a),
         Command::Fit(a) => fit::run(&a),
         Command::Plot(a) => plot::run(&a),
         Command::Theory(a) => theory::run(&a),

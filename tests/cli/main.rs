@@ -24,3 +24,4 @@ mod samplers;
 mod satisfiability;
 mod tables;
 mod theory;
+mod views;

@@ -1,0 +1,131 @@
+//! `kiln rows` (a table's rows, filtered, on screen or exported) and `kiln cell` (one cell of the
+//! cache by the first digits of its key).
+
+use crate::util::{SMALL, Work, floats, stderr, strings, unsigned};
+use kiln::store::table;
+
+fn ran() -> Work {
+    let w = Work::new();
+    let s = w.spec("small.toml", SMALL);
+    w.run_json(&s, &[]);
+    w
+}
+
+/// Exports hold every row and column, numbers exact: the CSV's energies parse back to the
+/// table's bits, the JSON lines have one object per row; filters keep exactly the matching
+/// rows (numbers as numbers, keys by prefix); bad filters and columns are refused (exit 2).
+#[test]
+fn rows_export_exactly_and_filter() {
+    let w = ran();
+    let df = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
+    let energy = floats(&df, "energy");
+    let o = w.kiln(&["rows", "small.toml", "--format", "csv", "-o", "cells.csv"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(w.path().join("cells.csv")).unwrap();
+    let mut lines = csv.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    assert_eq!(header.len(), df.width());
+    let at = header.iter().position(|h| *h == "energy").unwrap();
+    let key_at = header.iter().position(|h| *h == "cell_key").unwrap();
+    // `settings` is quoted JSON with commas: split by a CSV-aware reader of our own.
+    let parse = |l: &str| -> Vec<String> {
+        let (mut out, mut cur, mut quoted, mut chars) =
+            (Vec::new(), String::new(), false, l.chars().peekable());
+        while let Some(c) = chars.next() {
+            match (c, quoted) {
+                ('"', true) if chars.peek() == Some(&'"') => {
+                    cur.push('"');
+                    chars.next();
+                }
+                ('"', _) => quoted = !quoted,
+                (',', false) => out.push(std::mem::take(&mut cur)),
+                (c, _) => cur.push(c),
+            }
+        }
+        out.push(cur);
+        out
+    };
+    let rows: Vec<Vec<String>> = lines.map(parse).collect();
+    assert_eq!(rows.len(), df.height());
+    let keys = strings(&df, "cell_key");
+    for (i, r) in rows.iter().enumerate() {
+        assert_eq!(r.len(), header.len(), "row {i}");
+        assert_eq!(r[at].parse::<f64>().unwrap().to_bits(), energy[i].to_bits());
+        assert_eq!(r[key_at], keys[i]);
+    }
+    let o = w.kiln(&["rows", "small.toml", "--format", "jsonl"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert_eq!(text.lines().count(), df.height());
+    let first: serde_json::Value = serde_json::from_str(text.lines().next().unwrap()).unwrap();
+    assert_eq!(
+        first["energy"].as_f64().unwrap().to_bits(),
+        energy[0].to_bits()
+    );
+    // Filters.
+    let ns = unsigned(&df, "n");
+    let eps = floats(&df, "epsilon");
+    let want = (0..df.height())
+        .filter(|&i| ns[i] == 32 && eps[i] > 0.0)
+        .count();
+    let o = w.kiln(&[
+        "rows",
+        "small.toml",
+        "--where",
+        "n=32",
+        "--where",
+        "epsilon>0",
+        "--format",
+        "jsonl",
+    ]);
+    assert_eq!(String::from_utf8_lossy(&o.stdout).lines().count(), want);
+    let o = w.kiln(&[
+        "rows",
+        "small.toml",
+        "--where",
+        &format!("cell_key={}", &keys[3][..10]),
+    ]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        text.contains(&keys[3][..12]) && text.contains("1 of"),
+        "{text}"
+    );
+    for bad in [
+        vec!["--where", "nn=3"],
+        vec!["--where", "=3"],
+        vec!["--columns", "energy,bogus"],
+        vec!["--table", "nothing"],
+        vec!["--format", "xml"],
+    ] {
+        let mut args = vec!["rows", "small.toml"];
+        args.extend(bad.iter().copied());
+        let o = w.kiln(&args);
+        assert_eq!(o.status.code(), Some(2), "{bad:?}: {}", stderr(&o));
+    }
+}
+
+/// `kiln cell` finds a cell by a prefix of its key and shows its record and artifacts; a
+/// prefix too short, not hex, or matching nothing is refused with exit 2.
+#[test]
+fn one_cell_by_key_prefix() {
+    let w = ran();
+    let df = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
+    let keys = strings(&df, "cell_key");
+    let energy = floats(&df, "energy");
+    let o = w.kiln(&["cell", &keys[0][..12], "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["key"], keys[0].as_str());
+    assert_eq!(v["energy"].as_f64().unwrap().to_bits(), energy[0].to_bits());
+    assert!(
+        std::path::Path::new(&w.path().join(v["artifacts"]["spins"].as_str().unwrap())).is_file()
+    );
+    let o = w.kiln(&["cell", &keys[0][..12]]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    for part in ["what ran", "settings", "who computed it", "artifacts"] {
+        assert!(text.contains(part), "{text}");
+    }
+    for bad in ["ab", "zzzzzz", "0000000000"] {
+        let o = w.kiln(&["cell", bad]);
+        assert_eq!(o.status.code(), Some(2), "{bad}: {}", stderr(&o));
+    }
+}
