@@ -19,12 +19,29 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let (largest, largest_n) = memory::largest_cell(&spec);
     let parallel = jobs.min(fit_in_memory).min(total.max(1));
     let sweep = format!(
-        "{} sizes × {} seeds × {} ε × {} algorithms",
+        "{} sizes × {}{} seeds × {} ε × {} algorithms",
         spec.sizes.len(),
+        if spec.models.len() > 1 {
+            format!("{} densities × ", spec.models.len())
+        } else {
+            String::new()
+        },
         spec.seeds.len(),
         spec.epsilons.len(),
         spec.algorithms.len()
     );
+    // Time: the cost model `kiln slurm` sizes its tasks with (conservative units per second
+    // per job), over the cells still to run, spread over the cells run at once.
+    let cost: f64 = plan
+        .distinct()
+        .filter(|c| !cache.has_record(&c.key))
+        .map(|c| {
+            spec.algorithms[c.algo]
+                .algo
+                .cost(c.n, spec.models[c.model].flip_cost(c.n))
+        })
+        .sum();
+    let bound = cost / super::slurm::COST_PER_SECOND / parallel.max(1) as f64;
     if a.json {
         let v = serde_json::json!({
             "experiment": spec.name,
@@ -38,6 +55,7 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 "total_bytes": (largest * parallel as u128) as u64,
                 "available_bytes": budget,
             },
+            "time": { "upper_bound_seconds": bound, "jobs": parallel },
         });
         out(&format!("{v}\n"));
     } else {
@@ -52,9 +70,22 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
             s += &format!("note        {}\n", spec.note);
         }
         s += &format!(
-            "model       {}, {} couplings\n",
+            "model       {}, {} couplings{}\n",
             spec.model.family.name(),
-            spec.model.couplings.name()
+            spec.model.couplings.name(),
+            if spec.models.len() > 1 {
+                format!(
+                    ", densities {}",
+                    spec.models
+                        .iter()
+                        .filter_map(|m| m.family.density())
+                        .map(|a| a.to_string())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )
+            } else {
+                String::new()
+            }
         );
         s += &format!("sweep       {sweep}\n");
         s += &format!(
@@ -70,7 +101,22 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 memory::human(b as u128)
             ))
         );
+        s += &format!(
+            "time        at most about {} on {parallel} jobs (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
+            duration(bound),
+            super::slurm::COST_PER_SECOND
+        );
         out(&s);
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Seconds as the largest two units: `40 s`, `3 min 20 s`, `2 h 5 min`.
+fn duration(secs: f64) -> String {
+    let s = secs.max(0.0).ceil() as u64;
+    match s {
+        0..60 => format!("{s} s"),
+        60..3600 => format!("{} min {} s", s / 60, s % 60),
+        _ => format!("{} h {} min", s / 3600, (s % 3600) / 60),
+    }
 }

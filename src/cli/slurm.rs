@@ -38,7 +38,7 @@ pub struct SlurmArgs {
 
 /// Conservative throughput for the time estimate: cost units (≈ elementary updates) per second
 /// per CPU. Measured rates here are 5–10× higher; the margin covers slower nodes.
-const COST_PER_SECOND: f64 = 2e8;
+pub(crate) const COST_PER_SECOND: f64 = 2e8;
 
 fn quote(p: &Path) -> String {
     format!("'{}'", p.display().to_string().replace('\'', "'\\''"))

@@ -108,6 +108,10 @@ fn check_reports_the_plan() {
     assert_eq!(v["cells"]["cached"], 0);
     // 32×32 f64 matrix plus work space plus the 1 MiB margin.
     assert!(v["memory"]["largest_cell_bytes"].as_u64().unwrap() > 8 * 32 * 32);
+    // The time estimate from the cost model: positive while cells are to run, 0 once all
+    // are cached (how it compares with real runs is measured in the README, not timed here).
+    let bound = v["time"]["upper_bound_seconds"].as_f64().unwrap();
+    assert!(bound > 0.0, "{v}");
     assert!(!w.path().join("results").exists(), "check wrote something");
     w.run_json(&s, &[]);
     let o = w.kiln(&["check", s.to_str().unwrap()]);
@@ -116,4 +120,6 @@ fn check_reports_the_plan() {
         text.contains("24 in total · 24 cached · 0 to run"),
         "{text}"
     );
+    // With everything cached nothing is left to time.
+    assert!(text.contains("time        at most about 0 s"), "{text}");
 }
