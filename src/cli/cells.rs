@@ -121,3 +121,28 @@ impl Experiment {
             .unwrap_or_else(|| "unknown".into())
     }
 }
+
+/// The correction exponent of `kiln fit` and `kiln plot`: the `--omega` flag (a positive
+/// number or `fit`), else the spec's `[fit] omega` (`Some(None)`: fitted), else 2/3.
+pub fn omega(
+    flag: Option<&str>,
+    spec: Option<Option<f64>>,
+) -> Result<crate::fit::Omega, InputError> {
+    use crate::fit::Omega;
+    Ok(match flag {
+        None => match spec {
+            Some(None) => Omega::Fitted,
+            Some(Some(x)) => Omega::Fixed(x),
+            None => Omega::Fixed(2.0 / 3.0),
+        },
+        Some("fit") => Omega::Fitted,
+        Some(x) => match x.parse::<f64>() {
+            Ok(v) if v > 0.0 && v.is_finite() => Omega::Fixed(v),
+            _ => {
+                return Err(InputError(format!(
+                    "--omega {x}: give a positive number or `fit`"
+                )));
+            }
+        },
+    })
+}

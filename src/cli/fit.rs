@@ -44,22 +44,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
     let min_n = a.min_n.or(settings.min_n).unwrap_or(0);
     let bootstrap = a.bootstrap.or(settings.bootstrap).unwrap_or(1000);
     let table_path = exp.table()?;
-    let omega = match a.omega.as_deref() {
-        None => match settings.omega {
-            Some(None) => Omega::Fitted,
-            Some(Some(x)) => Omega::Fixed(x),
-            None => Omega::Fixed(2.0 / 3.0),
-        },
-        Some("fit") => Omega::Fitted,
-        Some(x) => match x.parse::<f64>() {
-            Ok(v) if v > 0.0 && v.is_finite() => Omega::Fixed(v),
-            _ => {
-                return Err(
-                    InputError(format!("--omega {x}: give a positive number or `fit`")).into(),
-                );
-            }
-        },
-    };
+    let omega = super::cells::omega(a.omega.as_deref(), settings.omega)?;
     if !(1..=2).contains(&terms) {
         return Err(InputError(format!("--terms {terms}: give 1 or 2")).into());
     }

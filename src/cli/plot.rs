@@ -747,22 +747,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     };
     // The fit settings of `kiln fit`: the flag, else the spec's [fit], else ω = 2/3, one term,
     // every size.
-    let omega = match a.omega.as_deref() {
-        None => match exp.fit.omega {
-            Some(None) => Omega::Fitted,
-            Some(Some(x)) => Omega::Fixed(x),
-            None => Omega::Fixed(2.0 / 3.0),
-        },
-        Some("fit") => Omega::Fitted,
-        Some(x) => match x.parse::<f64>() {
-            Ok(v) if v > 0.0 && v.is_finite() => Omega::Fixed(v),
-            _ => {
-                return Err(
-                    InputError(format!("--omega {x}: give a positive number or `fit`")).into(),
-                );
-            }
-        },
-    };
+    let omega = super::cells::omega(a.omega.as_deref(), exp.fit.omega)?;
     let terms = exp.fit.terms.unwrap_or(1);
     let min_n = exp.fit.min_n.unwrap_or(0);
     let table_path = exp.table()?;
