@@ -58,10 +58,7 @@ fn ksat_line(
     }) else {
         return Ok(vec![]);
     };
-    let Some(alpha) = group
-        .strip_prefix("ksat α=")
-        .and_then(|a| a.parse::<f64>().ok())
-    else {
+    let Some(("ksat", alpha)) = crate::store::table::density_of(group) else {
         return Ok(vec![]);
     };
     let k = f.k as u32;
@@ -720,6 +717,14 @@ fn col_f64(df: &polars::prelude::DataFrame, name: &str) -> anyhow::Result<Vec<f6
 }
 
 /// A label as a file-name part: letters, digits, `-` and `_` kept, anything else `_`.
+/// A group's name in a file name: `ksat α=4.2` as `ksat-density-4_2`, others by [`file_safe`].
+fn density_file_name(label: &str) -> String {
+    match crate::store::table::density_of(label) {
+        Some((name, a)) => file_safe(&format!("{name}-density-{a}")),
+        None => file_safe(label),
+    }
+}
+
 fn file_safe(label: &str) -> String {
     label
         .chars()
@@ -876,10 +881,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             theory: refs.iter().map(|r| (r.0, r.1.clone())).collect(),
             caption,
         };
-        let base = figdir.join(format!(
-            "energy-{}-{couplings}",
-            file_safe(&family.replace(" α=", "-density-"))
-        ));
+        let base = figdir.join(format!("energy-{}-{couplings}", density_file_name(family)));
         written.extend(write_all(&base, size, &csv, &fig)?);
     }
     for label in order.iter().filter(|l| distances.contains_key(*l)) {
@@ -923,10 +925,7 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
             ),
             modulo_flip,
         };
-        let base = figdir.join(format!(
-            "stability-{}",
-            file_safe(&label.replace(" α=", "-density-"))
-        ));
+        let base = figdir.join(format!("stability-{}", density_file_name(label)));
         match write_all(&base, size, &csv, &fig) {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),

@@ -308,18 +308,12 @@ pub fn run(a: &RowsArgs) -> anyhow::Result<ExitCode> {
                     shown
                         .iter()
                         .zip(&cols)
-                        .map(|(name, c)| {
-                            let t = text(&cell(c, i));
+                        .map(|(name, c)| match cell(c, i) {
+                            // Reals with a common number of decimals on screen.
+                            AnyValue::Float64(x) => format!("{x:.6}"),
                             // Keys by their first 12 digits, as messages name cells.
-                            if name.ends_with("_key") {
-                                t.chars().take(12).collect()
-                            } else if let Some(x) = number(&cell(c, i))
-                                .filter(|_| matches!(cell(c, i), AnyValue::Float64(_)))
-                            {
-                                format!("{x:.6}")
-                            } else {
-                                t
-                            }
+                            v if name.ends_with("_key") => text(&v).chars().take(12).collect(),
+                            v => text(&v),
                         })
                         .collect()
                 })

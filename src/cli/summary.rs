@@ -75,10 +75,9 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
                 s += &format!("  {n:>7}  {m:>8.4} ± {se:<6.4}");
                 if counts {
                     // Solved: energy 0 (no constraint violated); binomial standard error.
-                    let k = energies.iter().filter(|&&e| e == 0.0).count() as f64;
-                    let t = energies.len() as f64;
-                    let p = k / t;
-                    s += &format!("  {:>7.3} ± {:<6.3}", p, (p * (1.0 - p) / t).sqrt());
+                    let k = energies.iter().filter(|&&e| e == 0.0).count() as u64;
+                    let (p, se) = crate::fit::binomial(k, energies.len() as u64);
+                    s += &format!("  {p:>7.3} ± {se:<6.3}");
                 }
                 if !eps.is_empty() {
                     // Mean of one column per ε level ("-" where no record has it).

@@ -250,6 +250,13 @@ pub fn mean_var(xs: &[f64]) -> (f64, f64) {
     )
 }
 
+/// A fraction k/t and its binomial standard error √(p(1 − p)/t).
+pub fn binomial(k: u64, t: u64) -> (f64, f64) {
+    let t = t as f64;
+    let p = k as f64 / t;
+    (p, (p * (1.0 - p) / t).sqrt())
+}
+
 /// Mean and standard error of the mean (0 for a single value).
 pub fn mean_se(xs: &[f64]) -> (f64, f64) {
     let (m, v) = mean_var(xs);

@@ -222,9 +222,7 @@ pub struct Solved {
 impl Solved {
     /// The fraction solved and its binomial standard error √(p(1 − p)/N).
     pub fn fraction(&self) -> (f64, f64) {
-        let t = self.formulas as f64;
-        let p = self.solved as f64 / t;
-        (p, (p * (1.0 - p) / t).sqrt())
+        super::binomial(self.solved, self.formulas)
     }
 }
 

@@ -88,70 +88,37 @@ pub fn expand(spec: &Spec) -> Plan {
                         .with("instance", hex::encode(instance))
                         .with("algorithm", algo.clone())
                         .hash("run");
-                    let cell_key = |eps: f64| {
+                    // Replica r ≥ 1 adds `replica: r` (replica 0, the reference run, has no
+                    // such field, so its keys are those of a spec without replicas).
+                    let cell_key = |eps: f64, r: u32| {
                         Key(Canon::map()
                             .with("model", model_canon.clone())
                             .with("n", n)
                             .with("seed", seed)
                             .with("algorithm", algo.clone())
                             .with("epsilon", eps)
+                            .with_if(r > 0, "replica", r as u64)
                             .hash("cell"))
                     };
-                    let base = cell_key(0.0);
-                    for &epsilon in &spec.epsilons {
-                        cells.push(Cell {
-                            algo: ai,
-                            model: mi,
-                            n,
-                            seed,
-                            epsilon,
-                            key: if epsilon == 0.0 {
-                                base
-                            } else {
-                                cell_key(epsilon)
-                            },
-                            base,
-                            instance,
-                            run,
-                            replica: 0,
-                        });
-                    }
-                    for r in 1..spec.replicas {
-                        let replica_key = |eps: f64| {
-                            Key(Canon::map()
-                                .with("model", model_canon.clone())
-                                .with("n", n)
-                                .with("seed", seed)
-                                .with("algorithm", algo.clone())
-                                .with("epsilon", eps)
-                                .with("replica", r as u64)
-                                .hash("cell"))
-                        };
-                        let base = replica_key(0.0);
-                        cells.push(Cell {
-                            algo: ai,
-                            model: mi,
-                            n,
-                            seed,
-                            epsilon: 0.0,
-                            key: base,
-                            base,
-                            instance,
-                            run,
-                            replica: r,
-                        });
-                        for &epsilon in spec.epsilons.iter().filter(|&&e| e > 0.0) {
+                    // `spec.epsilons` starts with 0: each replica's base comes first.
+                    for replica in 0..spec.replicas {
+                        let base = cell_key(0.0, replica);
+                        for &epsilon in &spec.epsilons {
                             cells.push(Cell {
                                 algo: ai,
                                 model: mi,
                                 n,
                                 seed,
                                 epsilon,
-                                key: replica_key(epsilon),
+                                key: if epsilon == 0.0 {
+                                    base
+                                } else {
+                                    cell_key(epsilon, replica)
+                                },
                                 base,
                                 instance,
                                 run,
-                                replica: r,
+                                replica,
                             });
                         }
                     }

@@ -584,6 +584,18 @@ pub type EnergySamples = BTreeMap<(String, String), BTreeMap<String, Vec<(u64, f
 /// algorithm → n → ε bits → distances.
 pub type DistanceSamples = BTreeMap<String, BTreeMap<u64, BTreeMap<u64, Vec<f64>>>>;
 
+/// A name at a density, as groups of figures and fits name a model or an algorithm in a sweep
+/// over densities: `ksat α=4.2`. [`density_of`] reads it back.
+pub fn with_density(name: &str, density: f64) -> String {
+    format!("{name} α={density}")
+}
+
+/// The name and the density of a name written by [`with_density`].
+pub fn density_of(label: &str) -> Option<(&str, f64)> {
+    let (name, a) = label.rsplit_once(" α=")?;
+    Some((name, a.parse().ok()?))
+}
+
 /// The columns `fit` and `plot` use, one entry per row.
 pub struct Cells {
     pub family: Vec<String>,
@@ -666,7 +678,7 @@ impl Cells {
     /// has one (`ksat α=4.2`), so rows at different densities are never pooled.
     pub fn model(&self, i: usize) -> String {
         match self.density[i] {
-            Some(a) => format!("{} α={a}", self.family[i]),
+            Some(a) => with_density(&self.family[i], a),
             None => self.family[i].clone(),
         }
     }
@@ -691,7 +703,7 @@ impl Cells {
             }
             // Stability at several densities is drawn per (algorithm, density).
             let stability_label = match self.density[i] {
-                Some(a) => format!("{label} α={a}"),
+                Some(a) => with_density(label, a),
                 None => label.clone(),
             };
             if self.epsilon[i] != 0.0 && seen.insert(stability_label.clone()) {
