@@ -67,17 +67,20 @@ impl Algorithm for Params {
 /// mirrors them), all 2^n otherwise (a field or an odd-p term breaks the symmetry).
 pub fn run<M: SpinModel>(_p: &Params, d: &M) -> Output {
     let n = d.n();
+    let free = if d.symmetric() {
+        n.saturating_sub(1)
+    } else {
+        n
+    };
+    if let Some((best_s, _, done)) = d.exhaustive(free) {
+        return enumerated(best_s, done);
+    }
     let mut s = vec![1i8; n];
     let mut h = vec![0.0; n];
     d.fields(&s, &mut h);
     let mut e = d.energy(&s);
     let mut best = e;
     let mut best_s = s.clone();
-    let free = if d.symmetric() {
-        n.saturating_sub(1)
-    } else {
-        n
-    };
     let steps: u64 = if free == 0 { 0 } else { (1u64 << free) - 1 };
     // A state at the model's ceiling (k-SAT: satisfying) cannot be beaten; it is the first
     // maximiser in Gray-code order, so stopping there changes no output.
@@ -96,6 +99,11 @@ pub fn run<M: SpinModel>(_p: &Params, d: &M) -> Output {
             best_s.copy_from_slice(&s);
         }
     }
+    enumerated(best_s, done)
+}
+
+/// The output of an enumeration: its best state, and its steps as iterations.
+fn enumerated(best_s: Vec<i8>, done: u64) -> Output {
     Output {
         spins: best_s,
         point: None,

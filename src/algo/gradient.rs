@@ -10,8 +10,7 @@
 use super::{Algorithm, Key, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
-use crate::model::mixed::Mixed;
-use crate::model::{Instance, ModelSpec};
+use crate::model::{Instance, ModelSpec, Smooth};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
 
@@ -109,8 +108,9 @@ impl Algorithm for Params {
         300.0 * n as f64 * flip
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (m.mixture().is_none() && !m.family.sparse())
-            .then_some("it needs ∇H: a mean-field mixture (sk, cube, sphere) or a graph")
+        (m.mixture().is_none() && !m.family.sparse() && !m.family.differentiable()).then_some(
+            "it needs ∇H: a mean-field mixture (sk, cube, sphere), a graph, or the perceptron with constraint = \"quadratic\"",
+        )
     }
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         let (inst, h) = inst.split_field();
@@ -137,7 +137,13 @@ impl Algorithm for Params {
                 },
                 rng,
             ),
-            Instance::Spins(_) | Instance::Clauses(_) => {
+            Instance::Patterns(p, crate::model::Domain::Sphere) if p.differentiable() => {
+                run(self, p, rng)
+            }
+            Instance::Patterns(p, crate::model::Domain::Cube) if p.differentiable() => {
+                run_cube(self, p.n(), |x, y| _ = p.value_grad(x, y), rng)
+            }
+            Instance::Spins(_) | Instance::Clauses(_) | Instance::Patterns(..) => {
                 return Err(super::not_for(KIND.name, "the instance has no gradient"));
             }
             Instance::Cube(m) => run_cube(
@@ -190,14 +196,14 @@ pub(crate) fn project(x: &mut [f64]) {
     x.iter_mut().for_each(|v| *v *= s);
 }
 
-pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
+pub fn run<S: Smooth>(p: &Params, m: &S, rng: &mut Stream) -> Output {
     let n = m.n();
     let x: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
     ascend_sphere(p, m, x)
 }
 
 /// Projected ascent on the sphere from the point `x` (any non-zero norm; projected first).
-pub fn ascend_sphere(p: &Params, m: &Mixed, mut x: Vec<f64>) -> Output {
+pub fn ascend_sphere<S: Smooth>(p: &Params, m: &S, mut x: Vec<f64>) -> Output {
     let n = m.n();
     project(&mut x);
     let mut g = vec![0.0; n];

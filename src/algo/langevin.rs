@@ -15,8 +15,7 @@
 use super::{Algorithm, Key, Kind};
 use super::{Info, Output};
 use crate::cell::Canon;
-use crate::model::mixed::Mixed;
-use crate::model::{Instance, ModelSpec};
+use crate::model::{Instance, ModelSpec, Smooth};
 use crate::rng::Stream;
 use crate::spec::{Settings, SpecError};
 
@@ -104,8 +103,9 @@ impl Algorithm for Params {
         n as f64 * flip * self.steps as f64
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
-        (m.family.spins() || m.mixture().is_none())
-            .then_some("Langevin dynamics runs on the sphere family (±1 families: glauber)")
+        (m.family.spins() || (m.mixture().is_none() && !m.family.differentiable())).then_some(
+            "Langevin dynamics runs on the sphere family and the spherical perceptron with constraint = \"quadratic\" (±1 families: glauber)",
+        )
     }
     fn gibbs_beta(&self) -> Option<f64> {
         Some(self.beta)
@@ -113,6 +113,9 @@ impl Algorithm for Params {
     fn run(&self, inst: &Instance, rng: &mut Stream) -> Result<Output, super::AlgoError> {
         match inst {
             Instance::Sphere(m) => Ok(run(self, m, rng)),
+            Instance::Patterns(p, crate::model::Domain::Sphere) if p.differentiable() => {
+                Ok(run(self, p, rng))
+            }
             _ => Err(super::not_for(KIND.name, "it samples on the sphere")),
         }
     }
@@ -129,7 +132,7 @@ fn tangent(v: &mut [f64], x: &[f64]) {
 ///
 /// With the sample it reports the mixing diagnostics: the integrated autocorrelation time of
 /// H over the second half of the run (in steps), and the overlap x_0·x/n with the start.
-pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
+pub fn run<S: Smooth>(p: &Params, m: &S, rng: &mut Stream) -> Output {
     let mut trace = crate::measure::Trace::new(super::glauber::TRACE_BLOCKS);
     run_observed(p, m, rng, |t, e| {
         if t > 0 {
@@ -142,9 +145,9 @@ pub fn run(p: &Params, m: &Mixed, rng: &mut Stream) -> Output {
 /// [`run`], calling `seen(step, H(x))` after every step (H at the new point is computed with
 /// the next gradient, so `seen` lags one step: it gets H before each update, and the last value
 /// after the loop). The draws are the same.
-pub fn run_observed(
+pub fn run_observed<S: Smooth>(
     p: &Params,
-    m: &Mixed,
+    m: &S,
     rng: &mut Stream,
     mut seen: impl FnMut(u64, f64),
 ) -> Output {

@@ -183,7 +183,7 @@ impl Algorithm for Params {
                 _ => Err(super::not_for(KIND.name, "H is not quadratic")),
             },
             Instance::Sphere(_) => Err(super::not_for(KIND.name, "the relaxation is of the cube")),
-            Instance::Spins(_) | Instance::Clauses(_) => {
+            Instance::Spins(_) | Instance::Clauses(_) | Instance::Patterns(..) => {
                 Err(super::not_for(KIND.name, "H is not quadratic"))
             }
             Instance::Fielded(..) => unreachable!("split above"),

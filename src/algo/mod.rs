@@ -12,6 +12,7 @@ pub mod gradient;
 pub mod hessian;
 pub mod iamp;
 pub mod langevin;
+pub mod least_distance;
 pub mod localization;
 pub mod lowrank;
 pub mod spectral;
@@ -176,6 +177,7 @@ const BUILTIN: &[Kind] = &[
     langevin::KIND,
     localization::KIND,
     walksat::KIND,
+    least_distance::KIND,
 ];
 
 /// The kinds: the built-in list, then those registered at run time.
@@ -361,6 +363,7 @@ macro_rules! on_cube {
             Instance::Graph($d) => Ok($body),
             Instance::Spins($d) => Ok($body),
             Instance::Clauses($d) => Ok($body),
+            Instance::Patterns($d, crate::model::Domain::Cube) => Ok($body),
             Instance::Fielded(inner, h) => {
                 let h = *h;
                 match &**inner {
@@ -383,10 +386,9 @@ macro_rules! on_cube {
                     _ => Err(super::not_for($kind, "a field applies to ±1 spins only")),
                 }
             }
-            Instance::Sphere(_) => Err(super::not_for(
-                $kind,
-                "it moves ±1 spins; the sphere has real coordinates",
-            )),
+            Instance::Sphere(_) | Instance::Patterns(_, crate::model::Domain::Sphere) => Err(
+                super::not_for($kind, "it moves ±1 spins; the sphere has real coordinates"),
+            ),
         }
     };
 }

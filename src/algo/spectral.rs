@@ -109,7 +109,7 @@ impl Algorithm for Params {
         let out = match inst {
             Instance::Sk(d) => Ok(run(self, d.n(), |x, y| d.matvec(x, y), rng)?.0),
             Instance::Graph(g) => Ok(run(self, g.n(), |x, y| g.matvec(x, y), rng)?.0),
-            Instance::Spins(_) | Instance::Clauses(_) => {
+            Instance::Spins(_) | Instance::Clauses(_) | Instance::Patterns(..) => {
                 Err(super::not_for(KIND.name, "H is not quadratic"))
             }
             Instance::Cube(m) | Instance::Sphere(m) => match (m.dense(), m.is_quadratic()) {

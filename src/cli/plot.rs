@@ -77,6 +77,36 @@ fn ksat_line(
     )])
 }
 
+/// The perceptron's capacity as a vertical line on its threshold figure, with its caption
+/// sentence: Gardner's α_c(κ) on the sphere at κ ≥ 0, the RS zero-entropy capacity on the
+/// cube (see [`crate::theory::perceptron`]); None for other models.
+fn capacity_line(model: Option<&crate::model::ModelSpec>) -> Option<(f64, String, String)> {
+    let p = model?
+        .family
+        .as_any()
+        .downcast_ref::<crate::model::families::perceptron::Perceptron>()?;
+    let k = p.margin;
+    if p.domain == crate::model::Domain::Sphere {
+        (k >= 0.0).then(|| {
+            let a = crate::theory::perceptron::gardner_capacity(k);
+            (
+                a,
+                format!("capacity α = {a:.4}"),
+                format!(" Dashed: the capacity α = 1/E[(Z + κ)²; Z ≥ −κ] = {a:.6} of the spherical perceptron at κ = {k}, Z standard normal (Gardner 1988, J. Phys. A 21, 257), computed by kiln."),
+            )
+        })
+    } else {
+        let a = crate::theory::perceptron::binary_capacity(k);
+        Some((
+            a,
+            format!("capacity α = {a:.4}"),
+            format!(
+                " Dashed: the capacity α = {a:.6} of the binary perceptron at κ = {k}, where the replica-symmetric entropy of solutions vanishes (Gardner & Derrida 1988; Krauth & Mézard 1989), computed by kiln; finite-n curves cross above it."
+            ),
+        ))
+    }
+}
+
 /// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the
 /// cube (and SK) the Parisi value and, where it lies below, the algorithmic threshold; on the sphere the ground state and the algorithmic
 /// value. Graph and lattice families have no line.
@@ -477,7 +507,9 @@ fn overlap_figures(
 /// fraction of formulas whose output satisfies every constraint (energy 0) at ε = 0 against
 /// the density α, one curve per n, with binomial standard errors. Where the curves for
 /// growing n cross is the finite-size estimate of the algorithm's threshold.
+#[allow(clippy::too_many_arguments)]
 fn threshold_figures(
+    model: Option<&crate::model::ModelSpec>,
     cells: &crate::store::table::Cells,
     order: &[String],
     figdir: &Path,
@@ -497,6 +529,7 @@ fn threshold_figures(
             .or_default()
             .push(r);
     }
+    let capacity = capacity_line(model);
     let mut written = Vec::new();
     for label in order.iter().filter(|l| counts.contains_key(l.as_str())) {
         let by_n = &counts[label.as_str()];
@@ -528,10 +561,13 @@ fn threshold_figures(
                 x_label: "density α = m/n".into(),
                 y_label: "fraction solved".into(),
                 series,
-                theory: None,
+                theory: capacity
+                    .as_ref()
+                    .map(|(a, legend, _)| (vec![(*a, 0.0), (*a, 1.0)], legend.clone())),
             }],
             caption: format!(
-                "{label}: fraction of formulas whose output satisfies every constraint, against the density α, at ε = 0; error bars 1 binomial SE; one curve per n."
+                "{label}: fraction of instances whose output satisfies every constraint, against the density α, at ε = 0; error bars 1 binomial SE; one curve per n.{}",
+                capacity.as_ref().map_or("", |c| c.2.as_str())
             ),
         };
         let base = figdir.join(format!("threshold-{}", file_safe(label)));
@@ -934,10 +970,16 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
     if exp
         .model
         .as_ref()
-        .is_some_and(|m| m.family.counts_violations())
+        .is_some_and(|m| m.family.solved_at_zero())
     {
         written.extend(threshold_figures(
-            &cells, &order, &figdir, size, &name, &spec_hash,
+            exp.model.as_ref(),
+            &cells,
+            &order,
+            &figdir,
+            size,
+            &name,
+            &spec_hash,
         )?);
     }
     let theory = sampler_theory(exp.model.as_ref(), &cache, &exp.sampler_betas)?;

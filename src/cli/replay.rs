@@ -263,6 +263,7 @@ pub fn run(a: &ReplayArgs) -> anyhow::Result<ExitCode> {
             symmetric: spec.model.symmetric(),
             field: spec.model.field,
             violations: spec.model.family.counts_violations(),
+            solved_at_zero: spec.model.family.solved_at_zero(),
             experiment: &spec.name,
             label: &spec.algorithms[plan.cells[i].algo].label,
             record: r,

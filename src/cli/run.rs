@@ -280,6 +280,7 @@ impl Outputs<'_> {
                     symmetric: spec.model.symmetric(),
                     field: spec.model.field,
                     violations: spec.model.family.counts_violations(),
+                    solved_at_zero: spec.model.family.solved_at_zero(),
                     experiment: &spec.name,
                     label: &spec.algorithms[cell.algo].label,
                     record: r,

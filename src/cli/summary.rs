@@ -22,7 +22,7 @@ pub fn render(spec: &Spec, plan: &Plan, records: &HashMap<Key, Record>) -> Strin
         .unwrap_or(9)
         .max(9);
     let density = spec.model.family.density().is_some();
-    let counts = spec.model.family.counts_violations();
+    let counts = spec.model.family.solved_at_zero();
     let mut s = format!("{:<width$}", "algorithm");
     if density {
         s += &format!("  {:>7}", "α");

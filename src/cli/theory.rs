@@ -79,6 +79,94 @@ fn took(secs: f64) -> String {
     }
 }
 
+/// `kiln theory` on a perceptron spec: the capacity at the spec's margin (Gardner's formula on
+/// the sphere at κ ≥ 0, the RS zero-entropy density on the cube), and on the sphere at κ = 0
+/// Cover's exact finite-n probability of a solution at the spec's sizes and densities (see
+/// [`crate::theory::perceptron`]).
+fn perceptron(
+    a: &TheoryArgs,
+    spec: &crate::spec::Spec,
+    p: &crate::model::families::perceptron::Perceptron,
+) -> anyhow::Result<ExitCode> {
+    use crate::theory::perceptron as th;
+    if !a.beta.is_empty() || a.field.is_some() {
+        return Err(InputError(
+            "--beta and --field are for mean-field mixtures; a perceptron spec gives its capacity"
+                .into(),
+        )
+        .into());
+    }
+    let sphere = p.domain == crate::model::Domain::Sphere;
+    let k = p.margin;
+    let capacity = if sphere {
+        (k >= 0.0).then(|| th::gardner_capacity(k))
+    } else {
+        Some(th::binary_capacity(k))
+    };
+    let alphas: Vec<f64> = spec
+        .models
+        .iter()
+        .filter_map(|m| m.family.density())
+        .collect();
+    let cover: Vec<(u64, f64, f64)> = if sphere && k == 0.0 {
+        spec.sizes
+            .iter()
+            .flat_map(|&(n, _)| {
+                alphas.iter().map(move |&al| {
+                    let m = crate::model::perceptron::patterns_at(n, al);
+                    (n, al, th::cover_probability(n, m))
+                })
+            })
+            .collect()
+    } else {
+        vec![]
+    };
+    let domain = if sphere { "sphere" } else { "cube" };
+    if a.json {
+        let v = serde_json::json!({
+            "perceptron": {
+                "domain": domain,
+                "margin": k,
+                "capacity": capacity,
+                "solvable": cover.iter().map(|(n, al, pr)| serde_json::json!({"n": n, "density": al, "probability": pr})).collect::<Vec<_>>(),
+            }
+        });
+        out(&format!("{v}\n"));
+        return Ok(ExitCode::SUCCESS);
+    }
+    let mut o = format!(
+        "{}: perceptron on the {domain}, margin κ = {k}\n",
+        spec.name
+    );
+    match (sphere, capacity) {
+        (true, Some(c)) => {
+            o += &format!(
+                "  capacity α_c = {c:.6}  (1/∫_{{−κ}}^∞ (t + κ)² Dt; Gardner 1988, J. Phys. A 21, 257)\n"
+            )
+        }
+        (true, None) => {
+            o +=
+                "  capacity: no formula kiln trusts at κ < 0 (the solutions are not convex there)\n"
+        }
+        (false, Some(c)) => {
+            o += &format!(
+                "  capacity α_c = {c:.6}  (the replica-symmetric entropy of solutions vanishes; Gardner & Derrida 1988,\n  Krauth & Mézard 1989; not the q → 1 limit of the same equations, {:.4} at κ = 0)\n",
+                4.0 / std::f64::consts::PI
+            )
+        }
+        (false, None) => {}
+    }
+    if !cover.is_empty() {
+        o += "\n  exact at finite n, κ = 0: P(a solution exists) = 2^{1−m} Σ_{k<n} C(m − 1, k), m = round(α·n) (Cover 1965)\n";
+        o += &format!("  {:>8}  {:>8}  {:>10}\n", "n", "α", "P");
+        for (n, al, pr) in &cover {
+            o += &format!("  {n:>8}  {al:>8}  {pr:>10.6}\n");
+        }
+    }
+    out(&o);
+    Ok(ExitCode::SUCCESS)
+}
+
 /// The widths k for which `kiln theory` on a k-SAT spec prints c_k.
 const KSAT_WIDTHS: std::ops::RangeInclusive<u32> = 2..=5;
 
@@ -170,9 +258,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             {
                 return ksat(a, &spec, f.k as u32);
             }
+            if let Some(p) = spec
+                .model
+                .family
+                .as_any()
+                .downcast_ref::<crate::model::families::perceptron::Perceptron>()
+            {
+                return perceptron(a, &spec, p);
+            }
             let Some(xi) = spec.model.mixture().cloned() else {
                 return Err(InputError(format!(
-                    "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere) and the k-SAT asymptote (ksat); {} is `{}`",
+                    "`kiln theory` computes Parisi values for mean-field mixtures (families sk, cube, sphere), the k-SAT asymptote (ksat) and the perceptron's capacity (perceptron); {} is `{}`",
                     spec.origin,
                     spec.model.name()
                 ))

@@ -12,6 +12,7 @@
 pub mod families;
 pub mod ksat;
 pub mod mixed;
+pub mod perceptron;
 pub mod sk;
 pub mod sparse;
 pub mod tensor;
@@ -130,8 +131,18 @@ pub trait Family: std::fmt::Debug + Send + Sync + 'static {
         None
     }
     /// Whether H = −(violated constraints), so `energy`·n counts them (the table's
-    /// `unsatisfied` and `satisfied` columns).
+    /// `unsatisfied` column).
     fn counts_violations(&self) -> bool {
+        false
+    }
+    /// Whether H = 0 exactly when every constraint holds and H < 0 otherwise (the table's
+    /// `satisfied` column and the threshold view): every constraint family.
+    fn solved_at_zero(&self) -> bool {
+        self.counts_violations()
+    }
+    /// Whether H of a family without a mixture or a graph has a gradient the real-point
+    /// algorithms use (the perceptron with its quadratic constraint).
+    fn differentiable(&self) -> bool {
         false
     }
     /// The covariance ξ of a dense mean-field family (sk: q²/2); None for the others.
@@ -201,6 +212,7 @@ const BUILTIN: &[FamilyEntry] = &[
     families::regular::ENTRY,
     families::lattice::ENTRY,
     families::ksat::ENTRY,
+    families::perceptron::ENTRY,
 ];
 
 /// The families: the built-in list, then those registered at run time.
@@ -240,7 +252,7 @@ pub fn family_names() -> Vec<&'static str> {
 /// The `[model]` reference of the families, as Markdown (the README's family section).
 pub fn reference(entries: &[FamilyEntry]) -> String {
     let mut out = String::from(
-        "Every family with ±1 spins (all but `sphere`) also takes `field = h` (a number, |h| ≤ 100; default 0): a uniform external field, H + h Σσ_i. It enters every cell key when non-zero, not the couplings (an instance has the same J at every h), removes the σ ↔ −σ symmetry, and is supported by every kind that runs on the family; `spectral` and `lowrank` relax the couplings alone and let the field choose the output's global sign.\n\n",
+        "Every spin-glass family with ±1 spins (`sk`, `cube`, `erdos-renyi`, `regular`, `lattice`; not `sphere`, nor the constraint families `ksat` and `perceptron`, whose H counts violations) also takes `field = h` (a number, |h| ≤ 100; default 0): a uniform external field, H + h Σσ_i. It enters every cell key when non-zero, not the couplings (an instance has the same J at every h), removes the σ ↔ −σ symmetry, and is supported by every kind that runs on the family; `spectral` and `lowrank` relax the couplings alone and let the field choose the output's global sign.\n\n",
     );
     for f in entries {
         out.push_str(&format!(
@@ -418,6 +430,13 @@ pub trait SpinModel: Sync {
     fn ceiling(&self) -> Option<f64> {
         None
     }
+    /// Exhaustive search by a walk cheaper than the field updates, when the model has one:
+    /// the first best state in Gray-code order with `free` moving spins (the order and the
+    /// stop at [`SpinModel::ceiling`] of [`crate::algo::exhaustive::run`]), its H, and the
+    /// steps taken. None (the default) uses the fields.
+    fn exhaustive(&self, _free: usize) -> Option<(Vec<i8>, f64, u64)> {
+        None
+    }
 }
 
 impl SpinModel for sparse::Graph {
@@ -446,6 +465,23 @@ impl SpinModel for sparse::Graph {
     }
 }
 
+/// What the algorithms on real points (the sphere's gradient ascent, Hessian ascent's polish,
+/// Langevin dynamics) need of an instance: n and the value and gradient of H at a point.
+pub trait Smooth: Sync {
+    fn n(&self) -> usize;
+    /// H(x), with ∇H(x) written into `g`.
+    fn value_grad(&self, x: &[f64], g: &mut [f64]) -> f64;
+}
+
+impl Smooth for mixed::Mixed {
+    fn n(&self) -> usize {
+        mixed::Mixed::n(self)
+    }
+    fn value_grad(&self, x: &[f64], g: &mut [f64]) -> f64 {
+        mixed::Mixed::value_grad(self, x, g)
+    }
+}
+
 /// A sampled instance. Dispatch on the variant happens once per cell, never inside a kernel.
 pub enum Instance {
     /// SK (a dense coupling matrix).
@@ -463,6 +499,15 @@ pub enum Instance {
     Fielded(Box<Instance>, f64),
     /// Random k-SAT (H = −unsatisfied clauses).
     Clauses(ksat::Formula),
+    /// The perceptron (H = −unsatisfied patterns), on the cube or on the sphere.
+    Patterns(perceptron::Patterns, Domain),
+}
+
+/// Where a family's configurations live: ±1 spins, or points with ‖x‖² = n.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Domain {
+    Cube,
+    Sphere,
 }
 
 /// A ±1 model with a uniform field h added: fields h_i + h, energy H + h Σσ_i. Flips move only
@@ -515,6 +560,9 @@ impl SpinModel for Box<dyn SpinModel + Send> {
     fn ceiling(&self) -> Option<f64> {
         (**self).ceiling()
     }
+    fn exhaustive(&self, free: usize) -> Option<(Vec<i8>, f64, u64)> {
+        (**self).exhaustive(free)
+    }
 }
 
 impl Instance {
@@ -526,6 +574,7 @@ impl Instance {
             Instance::Spins(b) => b.n(),
             Instance::Fielded(i, _) => i.n(),
             Instance::Clauses(f) => f.n(),
+            Instance::Patterns(p, _) => p.n(),
         }
     }
 
@@ -546,12 +595,14 @@ impl Instance {
             Instance::Spins(b) => b.energy(s),
             Instance::Fielded(i, h) => i.energy(s) + h * crate::measure::spin_sum(s) as f64,
             Instance::Clauses(f) => SpinModel::energy(f, s),
+            Instance::Patterns(p, _) => SpinModel::energy(p, s),
         }
     }
     /// H(x) at a real point (sphere); for ±1 families x must be ±1.
     pub fn value(&self, x: &[f64]) -> f64 {
         match self {
             Instance::Sphere(m) | Instance::Cube(m) => m.value(x),
+            Instance::Patterns(p, _) => p.value(x),
             _ => {
                 let s: Vec<i8> = x.iter().map(|&v| if v < 0.0 { -1 } else { 1 }).collect();
                 self.energy(&s)

@@ -237,7 +237,9 @@ where
         }
     }
     if let Some((pts, _)) = &p.theory {
-        for &(_, y) in pts {
+        for &(x, y) in pts {
+            x0 = x0.min(x);
+            x1 = x1.max(x);
             lo = lo.min(y);
             hi = hi.max(y);
         }

@@ -20,7 +20,7 @@ use std::path::Path;
 pub const TABLE_FORMAT: &str = "kiln-cells/7";
 
 /// The energy convention, written into the file's metadata and the README.
-pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. field = the uniform field h of the model (H includes h sum_i sigma_i; 0 for none); magnetisation = sum_i sigma_i/n of the reference output (+-1 families). Constraint families (ksat): H = -(unsatisfied constraints), so energy = -unsatisfied/n; density = alpha = m/n; unsatisfied = the reference output's count; satisfied = (unsatisfied = 0). SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
+pub const CONVENTION: &str = "kiln maximises H. energy = H(sigma)/n of the reference run (epsilon = 0) on the original disorder; energy_perturbed = H'(sigma')/n of the run with the same algorithm randomness on the disorder correlated at 1 - epsilon; overlap = sigma.sigma'/n; distance = |sigma - sigma'|/sqrt(n); distance_point = |x - x'|/sqrt(n) of the pre-rounding points (|x|^2 = n) of algorithms that have one; for models with H(-x) = H(x) (no field, no odd-p term), where x and -x are one state, overlap_sym = |overlap|, distance_sym = min(|sigma - sigma'|, |sigma + sigma'|)/sqrt(n) and distance_point_sym likewise, and for other models the _sym columns equal the raw ones; relaxation = value per spin of the pre-rounding point or relaxation; samplers: autocorrelation_time = integrated autocorrelation time of the energy over the second half of the reference run (sweeps, Sokal windowing), overlap_initial = overlap of the reference output with the chain's start. field = the uniform field h of the model (H includes h sum_i sigma_i; 0 for none); magnetisation = sum_i sigma_i/n of the reference output (+-1 families). Constraint families (ksat, perceptron): H = -(unsatisfied constraints), so energy = -unsatisfied/n (the perceptron's quadratic constraint: H = -1/2 sum_a (kappa - t_a)_+^2 instead, and no unsatisfied column); density = alpha = m/n; unsatisfied = the reference output's count; satisfied = (energy = 0), every constraint holds. SK: H(sigma) = n^(-1/2) sum_{i<j} J_ij sigma_i sigma_j; cube and sphere: E[H(x)H(y)] = n xi(x.y/n), xi(q) = sum_p c_p^2 q^p, sums over distinct indices; graphs and lattices: H = sum_{edges} J_ij sigma_i sigma_j, energy_reduced = energy/sqrt(d), cut_fraction = cut edges/edges; sphere: overlap and distance of the points x, |x|^2 = n.";
 
 /// Columns that record how a cell was computed, not what it computed.
 pub const PROVENANCE_COLUMNS: [&str; 4] = ["wall_seconds", "host", "threads", "computed_by"];
@@ -31,8 +31,10 @@ pub struct Row<'a> {
     pub symmetric: bool,
     /// The model's uniform field h (0 for none).
     pub field: f64,
-    /// Whether H = −(violated constraints) (the `unsatisfied` and `satisfied` columns).
+    /// Whether H = −(violated constraints) (the `unsatisfied` column).
     pub violations: bool,
+    /// Whether H = 0 exactly at a solution (the `satisfied` column).
+    pub solved_at_zero: bool,
     pub experiment: &'a str,
     pub label: &'a str,
     pub record: &'a Record,
@@ -93,7 +95,9 @@ pub fn frame(rows: &[Row]) -> PolarsResult<DataFrame> {
         col!("magnetisation", |r: &Row| r.record.magnetisation),
         col!("density", |r: &Row| r.record.density),
         col!("unsatisfied", |r: &Row| unsatisfied(r)),
-        col!("satisfied", |r: &Row| unsatisfied(r).map(|u| u == 0)),
+        col!("satisfied", |r: &Row| r
+            .solved_at_zero
+            .then_some(r.record.energy == 0.0)),
         col!("cell_key", |r: &Row| r.record.key.clone()),
         col!("base_key", |r: &Row| r.record.base.clone()),
         col!("kiln_version", |r: &Row| r.record.kiln_version.clone()),

@@ -9,6 +9,7 @@ pub mod cached;
 pub mod cube;
 pub mod full;
 pub mod ksat;
+pub mod perceptron;
 pub mod quad;
 pub mod sphere;
 pub mod temperature;

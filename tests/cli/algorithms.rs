@@ -427,6 +427,20 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             kiln::spec::model_of("family = \"ksat\"\nk = 3\ndensity = 4.5").expect("a model"),
             AlgoSpec::new(kiln::algo::walksat::Params::default()),
         ),
+        (
+            kiln::spec::model_of(
+                "family = \"perceptron\"\ndomain = \"sphere\"\ndensity = 1.5\nmargin = 0.2",
+            )
+            .expect("a model"),
+            AlgoSpec::new(kiln::algo::least_distance::Params {}),
+        ),
+        (
+            kiln::spec::model_of(
+                "family = \"perceptron\"\ndomain = \"sphere\"\nconstraint = \"quadratic\"\ndensity = 1.5",
+            )
+            .expect("a model"),
+            AlgoSpec::new(kiln::algo::langevin::Params::default()),
+        ),
     ];
     let mut kinds = std::collections::BTreeSet::new();
     for (m, a) in &cases {

@@ -136,7 +136,8 @@ sweeps = 150
 #[test]
 fn every_kind_runs_with_a_field_and_zero_is_no_field() {
     let w = Work::new();
-    // Every kind that runs on SK (not the sphere's, not walksat's clauses).
+    // Every kind that runs on SK (not the sphere's, not walksat's clauses, not the spherical
+    // perceptron's decision).
     let sk = kiln::spec::model_of("family = \"sk\"\nfield = 0.5").unwrap();
     let kinds: Vec<&str> = kiln::algo::kinds_for(&sk);
     assert_eq!(kinds.len(), 11, "{kinds:?}");

@@ -14,6 +14,7 @@ mod hostile;
 mod leases;
 mod mishaps;
 mod numbers;
+mod perceptron;
 mod pins;
 mod plotting;
 mod registry;

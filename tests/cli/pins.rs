@@ -136,17 +136,26 @@ const ALGORITHM_PINS: &[Pin] = &[
         "76a80fe1deb7c0da",
     ),
     ("walksat", 1, "ksat", 24, "0.0", "353e1607881689cb"),
+    (
+        "least-distance",
+        1,
+        "perceptron-sphere",
+        24,
+        "-0.20833333333333334",
+        "3dff24609ca05905",
+    ),
 ];
 
 /// The model of a pin: its family with the parameters of the pin table, through the spec
-/// parser (so the pins also cover how `[model]` is read).
+/// parser (so the pins also cover how `[model]` is read). `perceptron-sphere` is the
+/// perceptron family on the sphere.
 fn model(family: &str, couplings: Couplings) -> ModelSpec {
-    let params = match family {
-        "cube" | "sphere" => "xi = { 2 = 0.5, 3 = 0.25 }",
-        "erdos-renyi" | "regular" => "degree = 3",
-        "lattice" => "dimension = 2",
-        "ksat" => "k = 3\ndensity = 4.5",
-        _ => "",
+    let (family, params) = match family {
+        "perceptron-sphere" => (
+            "perceptron",
+            "density = 1.0\nmargin = 0.25\ndomain = \"sphere\"",
+        ),
+        f => (f, params_of(f)),
     };
     kiln::spec::model_of(&format!(
         "family = \"{family}\"\ncouplings = \"{}\"\n{params}",
@@ -155,8 +164,21 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
     .expect("a model")
 }
 
+/// The `[model]` parameters of a family's pins.
+fn params_of(family: &str) -> &'static str {
+    match family {
+        "cube" | "sphere" => "xi = { 2 = 0.5, 3 = 0.25 }",
+        "erdos-renyi" | "regular" => "degree = 3",
+        "lattice" => "dimension = 2",
+        "ksat" => "k = 3\ndensity = 4.5",
+        "perceptron" => "density = 0.9\nmargin = 0.1",
+        _ => "",
+    }
+}
+
 /// The coupling law of an algorithm pin's model: gaussian, or the family's only law.
 fn model_law(family: &str) -> Couplings {
+    let family = family.strip_suffix("-sphere").unwrap_or(family);
     let entry = kiln::model::find(family).expect("a family");
     if entry.couplings.contains(&Couplings::Gaussian) {
         Couplings::Gaussian
@@ -336,6 +358,15 @@ const COPY_PINS: &[CopyPin] = &[
         "-0.7083333333333334",
         "-0.6666666666666666",
         "42ec62b6c1b98cf2",
+    ),
+    (
+        "perceptron",
+        "gaussian",
+        1,
+        24,
+        "-0.5",
+        "-0.5833333333333334",
+        "2936783d3f827bce",
     ),
 ];
 

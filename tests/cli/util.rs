@@ -108,7 +108,11 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
     let d = match inst {
         Instance::Sphere(m) | Instance::Cube(m) => m.dense().expect("a p = 2 term"),
         Instance::Sk(d) => d,
-        Instance::Graph(_) | Instance::Spins(_) | Instance::Fielded(..) | Instance::Clauses(_) => {
+        Instance::Graph(_)
+        | Instance::Spins(_)
+        | Instance::Fielded(..)
+        | Instance::Clauses(_)
+        | Instance::Patterns(..) => {
             panic!("reference_top takes dense instances without a field")
         }
     };
@@ -193,4 +197,26 @@ pub fn unsigned(df: &polars::prelude::DataFrame, name: &str) -> Vec<u64> {
         .unwrap()
         .into_no_null_iter()
         .collect()
+}
+
+/// Each spec is refused by `kiln check` and `kiln run` with exit 2, an error naming the file
+/// with a hint and containing every expected fragment, and nothing written.
+pub fn assert_refused(cases: &[(String, &[&str])]) {
+    for (text, expected) in cases {
+        let w = Work::new();
+        let spec = w.spec("bad.toml", text);
+        let o = w.kiln(&["check", spec.to_str().unwrap()]);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{expected:?}: {err}");
+        assert!(err.contains("bad.toml") && err.contains("hint:"), "{err}");
+        for e in *expected {
+            assert!(err.contains(e), "expected {e:?} in:\n{err}");
+        }
+        let o = w.kiln(&["run", spec.to_str().unwrap()]);
+        assert_eq!(o.status.code(), Some(2), "{expected:?}: {}", stderr(&o));
+        assert!(
+            !w.path().join("results").exists(),
+            "{expected:?}: wrote results"
+        );
+    }
 }

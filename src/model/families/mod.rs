@@ -6,6 +6,7 @@ pub mod cube;
 pub mod erdos_renyi;
 pub mod ksat;
 pub mod lattice;
+pub mod perceptron;
 pub mod regular;
 pub mod sk;
 pub mod sphere;
