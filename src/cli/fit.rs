@@ -146,7 +146,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         }
         if !solved.is_empty() {
             s += &format!(
-                "\nfraction of formulas solved at ε = 0 (± binomial se):\n{:<14} {:>8} {:>8} {:>9}  {:<14}\n",
+                "\nfraction of instances solved at ε = 0 (± binomial se):\n{:<14} {:>8} {:>8} {:>9}  {:<14}\n",
                 "algorithm", "α", "n", "solved", "fraction"
             );
             for r in &solved {

@@ -537,7 +537,7 @@ fn threshold_figures(
             continue;
         }
         let mut csv = format!(
-            "# kiln figure data: fraction of formulas solved against the density; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nn,density,solved,formulas,fraction,fraction_se\n"
+            "# kiln figure data: fraction of instances solved against the density; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nn,density,solved,instances,fraction,fraction_se\n"
         );
         let mut series = Vec::new();
         for (n, rows) in by_n {
