@@ -80,6 +80,8 @@ fn replay_passes_on_every_committed_example() {
         "cube-mixture",
         "sk-gibbs-transition",
         "ksat-walk-threshold",
+        "perceptron-sphere-capacity",
+        "perceptron-binary-capacity",
     ] {
         let dir = root.join(e);
         let o = w.kiln(&[
