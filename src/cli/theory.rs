@@ -56,9 +56,9 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
             .trim()
             .parse()
             .map_err(|_| InputError(format!("--mixture: `{c}` is not a weight c2")))?;
-        if !((2..=30).contains(&p) && c >= 0.0 && c.is_finite()) {
+        if !((1..=30).contains(&p) && c >= 0.0 && c.is_finite()) {
             return Err(InputError(format!(
-                "--mixture: term {p}:{c} needs 2 ≤ p ≤ 30 and c2 ≥ 0"
+                "--mixture: term {p}:{c} needs 1 ≤ p ≤ 30 and c2 ≥ 0 (p = 1 is a Gaussian field of variance c2)"
             )));
         }
         terms.push((p, c));
@@ -281,6 +281,15 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     if !(1..=6).contains(&a.k) {
         return Err(InputError(format!("--k {}: give 1 to 6", a.k)).into());
     }
+    // A p = 1 term (a Gaussian field on every spin) is solved by the cube's zero-temperature
+    // functionals; the positive-temperature and spherical ones do not take it yet.
+    let field_term = xi.d1(0.0) > 0.0;
+    if field_term && !a.beta.is_empty() {
+        return Err(InputError(
+            "--beta: the positive-temperature functionals do not take a p = 1 term yet; drop --beta for the zero-temperature values".into(),
+        )
+        .into());
+    }
     if a.beta.iter().any(|b| !(*b > 0.0 && b.is_finite())) {
         return Err(InputError("--beta: give positive inverse temperatures".into()).into());
     }
@@ -424,7 +433,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         .collect::<Vec<_>>()
         .join(" + ");
     if a.json {
-        let v = serde_json::json!({
+        let mut v = serde_json::json!({
             "mixture": xi.terms,
             "cube": {
                 "replica_symmetric": rs,
@@ -449,6 +458,9 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 "algorithmic": alg, "algorithmic_equals_ground_state": condition,
             },
         });
+        if field_term {
+            v["sphere"] = serde_json::Value::Null;
+        }
         out(&format!("{v}\n"));
     } else {
         let mut o = format!(
@@ -563,6 +575,13 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 o += "\n";
             }
         }
+        if field_term {
+            o +=
+                "\nsphere: not computed (the spherical functionals do not take a p = 1 term yet)\n";
+            o += &format!("\norder parameters: {}\n", csv_path.display());
+            out(&o);
+            return Ok(ExitCode::SUCCESS);
+        }
         o += &format!(
             "\nsphere, zero temperature\n  ground state (one-step Crisanti–Sommers)   {gs:.7}   L = {l:.4}, m = {m:.4}, q₀ = {q0:.4}\n"
         );
@@ -596,7 +615,8 @@ mod tests {
             parse_mixture("2:0.5,4:0.25").unwrap().terms,
             vec![(2, 0.5), (4, 0.25)]
         );
-        assert!(parse_mixture("1:1").is_err());
+        assert_eq!(parse_mixture("1:1").unwrap().terms, vec![(1, 1.0)]);
+        assert!(parse_mixture("0:1").is_err());
         assert!(parse_mixture("2:-1").is_err());
         assert!(parse_mixture("x").is_err());
         assert!(parse_mixture("3:0").is_err());

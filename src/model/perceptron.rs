@@ -3,7 +3,7 @@
 //! its projection t_a(x) = ⟨g_a, x⟩/√n reaches the margin, t_a ≥ κ.
 //!
 //! kiln maximises, so H(x) = Σ_a u(t_a − κ) with u one of two constraint functions:
-//! - the step u(t) = −1[t < 0] (the default): H = −(unsatisfied patterns) and `energy` =
+//! - the step u(t) = −𝟙(t < 0) (the default): H = −(unsatisfied patterns) and `energy` =
 //!   −unsatisfied/n, as for k-SAT;
 //! - the quadratic u(t) = −½·min(t, 0)², the energy of soft spheres at contact that the
 //!   perceptron's jamming literature uses (Franz & Parisi 2016, J. Phys. A 49, 145001;
@@ -37,7 +37,7 @@ pub const REVISION: u32 = 1;
 /// The constraint function u of H = Σ_a u(t_a − κ).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Constraint {
-    /// u(t) = −1[t < 0]: H counts the unsatisfied patterns.
+    /// u(t) = −𝟙(t < 0): H counts the unsatisfied patterns.
     Step,
     /// u(t) = −½·min(t, 0)².
     Quadratic,

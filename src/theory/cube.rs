@@ -201,7 +201,11 @@ pub fn constant_gamma(xi: &Mixture) -> Solution {
             m: vec![m],
         };
         let f = |m: f64| functional(xi, &steps(m), &s, &rule);
-        let m = super::golden_section(f, 1e-6, 50.0, 120);
+        // The functional is ∞ beyond the tilt bound m·a ≤ 8 (a = √(ξ'(1) − ξ'(0))): search
+        // below it, where it is finite.
+        let a = (xi.d1(1.0) - xi.d1(0.0)).max(0.0).sqrt();
+        let hi = if a > 0.0 { (8.0 / a).min(50.0) } else { 50.0 };
+        let m = super::golden_section(f, 1e-6, hi, 120);
         return Solution {
             value: f(m),
             steps: steps(m),

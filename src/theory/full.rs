@@ -83,6 +83,29 @@ struct Problem {
     xs: Vec<f64>,
     half: f64,
     dx: f64,
+    /// The law Ψ(0, ·) is averaged over, on the grid: a point mass at the middle, or with a
+    /// p = 1 term (ξ'(0) > 0, a Gaussian field of variance β²ξ'(0) on every spin, as in the
+    /// k-SAT mixtures) the lattice Gaussian of that variance.
+    start: Vec<f64>,
+}
+
+/// The lattice Gaussian of variance `v` on `g` points of spacing `dx`, centred at the middle
+/// (normalised; a point mass when v = 0). For √v ≥ dx its variance is v to ~1e-9 (Poisson
+/// summation, as for the steps' kernels).
+fn lattice_gaussian(g: usize, dx: f64, v: f64) -> Vec<f64> {
+    let mid = (g - 1) / 2;
+    let mut w = vec![0.0; g];
+    if v <= 0.0 {
+        w[mid] = 1.0;
+        return w;
+    }
+    for (i, wi) in w.iter_mut().enumerate() {
+        let y = (i as f64 - mid as f64) * dx;
+        *wi = (-0.5 * y * y / v).exp();
+    }
+    let total: f64 = w.iter().sum();
+    w.iter_mut().for_each(|x| *x /= total);
+    w
 }
 
 impl Problem {
@@ -108,6 +131,7 @@ impl Problem {
                 .collect(),
             half,
             dx,
+            start: lattice_gaussian(grid, dx, b * b * xi.d1(0.0)),
         }
     }
 
@@ -309,10 +333,15 @@ impl Problem {
             apsi[j] = da;
         }
         let penalty: f64 = m.iter().zip(&self.dg).map(|(a, b)| 0.5 * a * b).sum();
-        let value = psi[0][mid] - penalty + if self.beta.is_some() { LN_2 } else { 0.0 };
-        // Forward: law of X_j on the grid.
-        let mut rho = vec![0.0; g];
-        rho[mid] = 1.0;
+        // Ψ(0, ·) read at the middle, or averaged over the p = 1 term's field; the forward law
+        // of X_j starts from the same law.
+        let read = if self.start[mid] == 1.0 {
+            psi[0][mid]
+        } else {
+            self.start.iter().zip(&psi[0]).map(|(w, p)| w * p).sum()
+        };
+        let value = read - penalty + if self.beta.is_some() { LN_2 } else { 0.0 };
+        let mut rho = self.start.clone();
         let mut grad = vec![0.0; k];
         let mut grad_a = vec![0.0; k];
         for j in 0..k {
@@ -874,7 +903,13 @@ pub fn describe_runs(sol: &FullRsb) -> String {
 /// Sherrington, PRL 98, 127201 (2007)).
 pub fn full_rsb(xi: &Mixture, s: &FullSettings) -> FullRsb {
     let k = s.levels.max(2);
-    let mc = constant_gamma(xi).steps.m[0];
+    let constant = constant_gamma(xi);
+    // A start the lattice resolves: the constant-γ level, or 1 when that has no finite value.
+    let mc = if constant.value.is_finite() {
+        constant.steps.m[0]
+    } else {
+        1.0
+    };
     let start: Vec<f64> = (0..k)
         .map(|j| {
             let q = 1.0 - (1.0 - (j as f64 + 0.5) / k as f64).powf(s.power);
