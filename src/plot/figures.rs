@@ -1,11 +1,13 @@
 //! The figures kiln draws: energy against n^{-ω} with the finite-size-scaling fit, and
 //! stability (distance against ε on log–log axes).
 
-use super::{PALETTE, err, pt};
+use super::{Outline, SeriesStyle, err, pt, series};
 use crate::fit::{Fit, format::with_error};
 use plotters::chart::MeshStyle;
 use plotters::coord::Shift;
+use plotters::element::{Drawable, PointCollection};
 use plotters::prelude::*;
+use plotters_backend::DrawingErrorKind;
 
 /// One algorithm's energies: per size (n, mean, se) and its fit.
 #[derive(Clone, Debug)]
@@ -156,28 +158,27 @@ impl super::Figure for TraceFigure {
             theory_line(&mut chart, vec![(xlo / 1.3, *e), (xhi * 1.3, *e)], label)?;
         }
         for (i, s) in self.series.iter().enumerate() {
-            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            let style = series(i);
+            let color = style.color;
             // Line styles differ too (solid, then dashed with growing gaps), so the traces
             // read in grey.
-            let style = color.stroke_width(3);
+            let line = color.stroke_width(3);
             let pts: Vec<(f64, f64)> = s.points.clone();
             let drawn = if i == 0 {
-                chart
-                    .draw_series(LineSeries::new(pts, style))
-                    .map_err(err)?
+                chart.draw_series(LineSeries::new(pts, line)).map_err(err)?
             } else {
                 chart
                     .draw_series(DashedLineSeries::new(
                         pts,
                         pt(1.0 + i as f64) as u32,
                         pt(1.0) as u32,
-                        style,
+                        line,
                     ))
                     .map_err(err)?
             };
-            drawn.label(s.label.clone()).legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
-            });
+            drawn
+                .label(s.label.clone())
+                .legend(move |c| legend_glyph(style, c));
         }
         house_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         root.present().map_err(err)
@@ -263,7 +264,8 @@ where
         theory_line(&mut chart, pts.clone(), label)?;
     }
     for (i, (label, pts)) in p.series.iter().enumerate() {
-        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        let style = series(i);
+        let color = style.color;
         chart
             .draw_series(LineSeries::new(
                 pts.iter().map(|q| (q.0, q.1)),
@@ -271,9 +273,7 @@ where
             ))
             .map_err(err)?
             .label(label.clone())
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
-            });
+            .legend(move |c| legend_glyph(style, c));
         for &(x, y, e) in pts {
             chart
                 .draw_series(std::iter::once(ErrorBar::new_vertical(
@@ -285,7 +285,7 @@ where
                     pt(3.0) as u32,
                 )))
                 .map_err(err)?;
-            marker(chart.plotting_area(), i, (x, y), color)?;
+            marker(chart.plotting_area(), i, (x, y), false)?;
         }
     }
     house_legend(&mut chart, SeriesLabelPosition::UpperLeft)
@@ -434,7 +434,8 @@ impl OverlapFigure {
             }
         }
         for (i, s) in self.series.iter().enumerate() {
-            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            let style = series(i);
+            let color = style.color;
             let mut outline = vec![(-1.0, 0.0)];
             for &(lo, hi, d) in &s.bins {
                 outline.push((lo, d));
@@ -445,9 +446,7 @@ impl OverlapFigure {
                 .draw_series(LineSeries::new(outline, color.stroke_width(3)))
                 .map_err(err)?
                 .label(s.label.clone())
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
-                });
+                .legend(move |c| legend_glyph(style, c));
         }
         house_legend(&mut chart, SeriesLabelPosition::UpperRight)
     }
@@ -486,7 +485,8 @@ impl OverlapFigure {
         let (corners, label) = &d.parisi;
         theory_line(&mut chart, corners.clone(), label)?;
         for (i, v) in d.samples.iter().enumerate() {
-            let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+            let style = series(i);
+            let color = style.color;
             chart
                 .draw_series(LineSeries::new(empirical_cdf(v, lo), color.stroke_width(3)))
                 .map_err(err)?;
@@ -575,6 +575,99 @@ fn with_caption<DB: DrawingBackend>(
     Ok(main)
 }
 
+/// The corners of a marker's outline around the origin, in pixels, for half-width r (the
+/// circle as a 20-gon, so every marker is one polygon), closed (the first corner repeated).
+fn outline_corners(outline: Outline, r: i32) -> Vec<(i32, i32)> {
+    let mut pts = match outline {
+        Outline::Circle => (0..20)
+            .map(|k| {
+                let t = k as f64 * std::f64::consts::TAU / 20.0;
+                (
+                    (r as f64 * t.cos()).round() as i32,
+                    (r as f64 * t.sin()).round() as i32,
+                )
+            })
+            .collect(),
+        Outline::Square => vec![
+            (-r + 1, -r + 1),
+            (r - 1, -r + 1),
+            (r - 1, r - 1),
+            (-r + 1, r - 1),
+        ],
+        Outline::Triangle => {
+            let h = r + 2;
+            vec![(0, -h), (h, h * 2 / 3), (-h, h * 2 / 3)]
+        }
+        Outline::Diamond => {
+            let h = r + 1;
+            vec![(0, -h), (h, 0), (0, h), (-h, 0)]
+        }
+    };
+    pts.push(pts[0]);
+    pts
+}
+
+/// A series' marker around one point, drawn in pixels (so it looks the same in data
+/// coordinates and in a legend): its fill (the colour, or white when open) and its outline,
+/// after a line sample through it when `line` (legend entries). `open` forces the open
+/// variant (extrapolated points).
+struct Glyph<C> {
+    at: C,
+    style: SeriesStyle,
+    line: bool,
+    r: i32,
+    open: bool,
+}
+
+impl<'a, C: 'a> PointCollection<'a, C> for &'a Glyph<C> {
+    type Point = &'a C;
+    type IntoIter = std::iter::Once<&'a C>;
+    fn point_iter(self) -> Self::IntoIter {
+        std::iter::once(&self.at)
+    }
+}
+
+impl<C, DB: DrawingBackend> Drawable<DB> for Glyph<C> {
+    fn draw<I: Iterator<Item = (i32, i32)>>(
+        &self,
+        mut pos: I,
+        backend: &mut DB,
+        _: (u32, u32),
+    ) -> Result<(), DrawingErrorKind<DB::ErrorType>> {
+        let Some((x, y)) = pos.next() else {
+            return Ok(());
+        };
+        let c = self.style.color;
+        if self.line {
+            backend.draw_line((x - 15, y), (x + 15, y), &c.stroke_width(3))?;
+        }
+        let fill = if self.style.shape.filled && !self.open {
+            c.filled()
+        } else {
+            WHITE.filled()
+        };
+        let closed: Vec<(i32, i32)> = outline_corners(self.style.shape.outline, self.r)
+            .into_iter()
+            .map(|(dx, dy)| (x + dx, y + dy))
+            .collect();
+        backend.fill_polygon(closed[..closed.len() - 1].iter().copied(), &fill)?;
+        backend.draw_path(closed.iter().copied(), &c.stroke_width(3))
+    }
+}
+
+/// A legend entry: a line sample with the series' marker on it.
+fn legend_glyph(style: SeriesStyle, (x, y): (i32, i32)) -> Glyph<(i32, i32)> {
+    Glyph {
+        at: (x + 15, y),
+        style,
+        line: true,
+        r: pt(2.0) as i32,
+        open: false,
+    }
+}
+
+/// Series i's marker at a data point (`open`: the open variant, larger, for an extrapolated
+/// point).
 fn marker<DB: DrawingBackend>(
     area: &DrawingArea<
         DB,
@@ -585,19 +678,19 @@ fn marker<DB: DrawingBackend>(
     >,
     i: usize,
     (x, y): (f64, f64),
-    color: RGBColor,
+    open: bool,
 ) -> Result<(), String>
 where
     DB::ErrorType: 'static,
 {
-    let r = pt(2.2) as i32;
-    let res = match i % 4 {
-        0 => area.draw(&Circle::new((x, y), r, color.filled())),
-        1 => area.draw(&TriangleMarker::new((x, y), r + 2, color.filled())),
-        2 => area.draw(&Cross::new((x, y), r, color.stroke_width(3))),
-        _ => area.draw(&Circle::new((x, y), r, color.stroke_width(3))),
-    };
-    res.map_err(err)
+    area.draw(&Glyph {
+        at: (x, y),
+        style: series(i),
+        line: false,
+        r: pt(if open { 2.8 } else { 2.2 }) as i32,
+        open,
+    })
+    .map_err(err)
 }
 
 /// Draws the energy figure.
@@ -638,7 +731,8 @@ where
         .margin(pt(5.0) as u32)
         .x_label_area_size(pt(20.0) as u32)
         .y_label_area_size(pt(30.0) as u32)
-        .build_cartesian_2d(0.0..xmax, lo..hi)
+        // A margin left of n^-ω = 0, so the extrapolated points are drawn whole.
+        .build_cartesian_2d(-0.04 * xmax..xmax, lo..hi)
         .map_err(err)?;
     house_mesh(
         &mut chart.configure_mesh(),
@@ -652,7 +746,8 @@ where
         theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
     }
     for (i, s) in fig.series.iter().enumerate() {
-        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        let style = series(i);
+        let color = style.color;
         if let Some(f) = &s.fit {
             // The fit's own x is n^-ω_fit = x^(ω_fit/ω) on this axis (the same x when the
             // series was fitted at the axis' ω).
@@ -692,9 +787,7 @@ where
                     s.label,
                     with_error(f.e_inf, f.e_inf_se)
                 ))
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
-                });
+                .legend(move |c| legend_glyph(style, c));
             chart
                 .draw_series(std::iter::once(ErrorBar::new_vertical(
                     0.0,
@@ -705,7 +798,7 @@ where
                     pt(4.0) as u32,
                 )))
                 .map_err(err)?;
-            marker(chart.plotting_area(), i, (0.0, f.e_inf), color)?;
+            marker(chart.plotting_area(), i, (0.0, f.e_inf), true)?;
         }
         for p in &s.points {
             let x = xs(p.0);
@@ -719,7 +812,7 @@ where
                     pt(3.0) as u32,
                 )))
                 .map_err(err)?;
-            marker(chart.plotting_area(), i, (x, p.1), color)?;
+            marker(chart.plotting_area(), i, (x, p.1), false)?;
         }
     }
     house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
@@ -779,7 +872,8 @@ where
     .draw()
     .map_err(err)?;
     for (i, s) in fig.series.iter().enumerate() {
-        let color = PALETTE[1 + i % (PALETTE.len() - 1)];
+        let style = series(i);
+        let color = style.color;
         let pts: Vec<(f64, f64, f64)> = s
             .points
             .iter()
@@ -797,9 +891,7 @@ where
             ))
             .map_err(err)?
             .label(label)
-            .legend(move |(x, y)| {
-                PathElement::new(vec![(x, y), (x + 30, y)], color.stroke_width(4))
-            });
+            .legend(move |c| legend_glyph(style, c));
         for p in &pts {
             chart
                 .draw_series(std::iter::once(ErrorBar::new_vertical(
@@ -811,7 +903,7 @@ where
                     pt(3.0) as u32,
                 )))
                 .map_err(err)?;
-            marker(chart.plotting_area(), i, (p.0, p.1), color)?;
+            marker(chart.plotting_area(), i, (p.0, p.1), false)?;
         }
     }
     house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
@@ -863,7 +955,13 @@ where
         ))
         .map_err(err)?
         .label(label.to_string())
-        .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 30, y)], BLACK.stroke_width(3)));
+        .legend(|(x, y)| {
+            // Dashed, as the line is.
+            EmptyElement::at((x, y))
+                + PathElement::new(vec![(0, 0), (8, 0)], BLACK.stroke_width(3))
+                + PathElement::new(vec![(12, 0), (20, 0)], BLACK.stroke_width(3))
+                + PathElement::new(vec![(24, 0), (30, 0)], BLACK.stroke_width(3))
+        });
     Ok(())
 }
 

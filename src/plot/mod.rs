@@ -4,8 +4,8 @@
 //! imports at the right size), PNG at 300 dpi (with the resolution recorded in the file), and
 //! vector PDF converted from the SVG with the embedded font (DejaVu Sans, from the `dejavu`
 //! crate; its licence allows embedding). Nothing depends on fonts installed on the machine.
-//! Colours are the Okabe–Ito palette (distinguishable with the common colour-vision
-//! deficiencies); series also differ by marker shape, so figures read in grey.
+//! Series take kiln's own colours ([`COLORS`]) and each its own marker ([`SHAPES`]), shown in
+//! the legend too, so figures read in grey.
 
 pub mod figures;
 
@@ -32,18 +32,92 @@ impl Size {
 /// Raster resolution; also the unit of the vector drawings (1 unit = 1/300 in).
 pub const DPI: f64 = 300.0;
 
-/// Okabe & Ito (2008), "Color Universal Design": black, orange, sky blue, bluish green,
-/// blue, vermillion, reddish purple, yellow.
-pub const PALETTE: [RGBColor; 8] = [
-    RGBColor(0, 0, 0),
-    RGBColor(230, 159, 0),
-    RGBColor(86, 180, 233),
-    RGBColor(0, 158, 115),
-    RGBColor(0, 114, 178),
-    RGBColor(213, 94, 0),
-    RGBColor(204, 121, 167),
-    RGBColor(240, 228, 66),
+/// kiln's series colours, in the order series take them. Neighbours in the list differ in
+/// hue and mostly in grey level; in grey every series is told apart by its marker
+/// ([`SHAPES`]), which no two of the first eight share.
+pub const COLORS: [RGBColor; 8] = [
+    RGBColor(0, 70, 140),
+    RGBColor(230, 150, 30),
+    RGBColor(0, 140, 110),
+    RGBColor(150, 30, 60),
+    RGBColor(110, 170, 220),
+    RGBColor(90, 90, 90),
+    RGBColor(200, 90, 160),
+    RGBColor(170, 140, 0),
 ];
+
+/// A marker's outline.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Outline {
+    Circle,
+    Square,
+    Triangle,
+    Diamond,
+}
+
+/// A marker: an outline, filled or open.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Shape {
+    pub outline: Outline,
+    pub filled: bool,
+}
+
+/// The markers series take, in order: each of four outlines once filled and once open,
+/// alternating so that neighbours (also the eighth and the first) differ in both.
+pub const SHAPES: [Shape; 8] = [
+    Shape {
+        outline: Outline::Circle,
+        filled: true,
+    },
+    Shape {
+        outline: Outline::Square,
+        filled: false,
+    },
+    Shape {
+        outline: Outline::Triangle,
+        filled: true,
+    },
+    Shape {
+        outline: Outline::Diamond,
+        filled: false,
+    },
+    Shape {
+        outline: Outline::Square,
+        filled: true,
+    },
+    Shape {
+        outline: Outline::Circle,
+        filled: false,
+    },
+    Shape {
+        outline: Outline::Diamond,
+        filled: true,
+    },
+    Shape {
+        outline: Outline::Triangle,
+        filled: false,
+    },
+];
+
+/// How series i is drawn: its colour and its marker (both cycle after eight series).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SeriesStyle {
+    pub color: RGBColor,
+    pub shape: Shape,
+}
+
+/// The style of series i.
+pub fn series(i: usize) -> SeriesStyle {
+    SeriesStyle {
+        color: COLORS[i % COLORS.len()],
+        shape: SHAPES[i % SHAPES.len()],
+    }
+}
+
+/// The grey level (0–255) a colour prints as (Rec. 601 luma, common practice).
+pub fn grey(c: RGBColor) -> f64 {
+    0.299 * c.0 as f64 + 0.587 * c.1 as f64 + 0.114 * c.2 as f64
+}
 
 /// Text sizes in points, converted to drawing units.
 pub fn pt(points: f64) -> f64 {
@@ -205,6 +279,25 @@ pub fn err<E: std::fmt::Debug>(e: E) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// In grey every one of the first eight series is told apart by its marker alone (no two
+    /// share outline and fill), neighbours differ in outline and in fill, and every colour is
+    /// dark enough to see on white in grey (level ≤ 180 of 255; common practice for print).
+    #[test]
+    fn series_read_in_grey() {
+        for i in 0..8 {
+            for j in 0..i {
+                assert_ne!(series(i).shape, series(j).shape, "series {i} and {j}");
+            }
+            let (a, b) = (series(i).shape, series(i + 1).shape);
+            assert!(a.outline != b.outline && a.filled != b.filled, "{i}");
+            assert!(
+                grey(series(i).color) <= 180.0,
+                "{i}: {}",
+                grey(series(i).color)
+            );
+        }
+    }
 
     /// The same SVG gives the same PDF bytes every time (it did not: the converter's resource
     /// dictionaries came out in hash-map order). Three translucent groups make three
