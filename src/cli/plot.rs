@@ -1034,12 +1034,29 @@ fn write_all(
     let svg = kplot::to_svg(size, fig).map_err(anyhow::Error::msg)?;
     let png = kplot::to_png(size, fig).map_err(anyhow::Error::msg)?;
     let pdf = kplot::svg_to_pdf(&svg).map_err(anyhow::Error::msg)?;
+    // The caption beside the image: as LaTeX for the manuscript, and at the end of the CSV's
+    // first (comment) line, so the numbers and their description travel together and the
+    // column header stays the second line.
+    let caption = fig.caption();
+    let name = base
+        .file_name()
+        .map_or(String::new(), |n| n.to_string_lossy().into_owned());
+    let tex = format!(
+        "% kiln figure caption for {name}.pdf\n\\caption{{{}}}\n",
+        crate::fit::latex::text(&caption)
+    );
+    let flat = caption.replace('\n', " ");
+    let csv = match csv.split_once('\n') {
+        Some((first, rest)) => format!("{first}; caption={flat}\n{rest}"),
+        None => format!("{csv}; caption={flat}\n"),
+    };
     let mut out = Vec::new();
     for (ext, bytes) in [
         ("svg", svg.as_bytes()),
         ("png", &png[..]),
         ("pdf", &pdf[..]),
         ("csv", csv.as_bytes()),
+        ("tex", tex.as_bytes()),
     ] {
         let p = base.with_extension(ext);
         write_atomic(&p, bytes)?;

@@ -1,4 +1,5 @@
-//! The LaTeX (booktabs) table of a study's fits.
+//! The LaTeX (booktabs) table of a study's fits, and plain text (figure captions) set in
+//! LaTeX.
 
 use super::format::with_error;
 use super::study::Row;
@@ -33,4 +34,113 @@ pub fn latex(name: &str, rows: &[Row], params: &Params) -> String {
     );
     s += "\\end{table}\n";
     s
+}
+
+/// Text with kiln's Unicode mathematics set as LaTeX: the characters LaTeX reserves escaped,
+/// Greek letters and symbols as inline math, `^` and `_` followed by a token as super- and
+/// subscripts (`n^-ω` → $n^{-\omega}$). For captions written next to figures.
+pub fn text(s: &str) -> String {
+    fn symbol(c: char) -> Option<&'static str> {
+        Some(match c {
+            'α' => "\\alpha",
+            'β' => "\\beta",
+            'γ' => "\\gamma",
+            'δ' => "\\delta",
+            'ε' => "\\varepsilon",
+            'κ' => "\\kappa",
+            'λ' => "\\lambda",
+            'ξ' => "\\xi",
+            'σ' => "\\sigma",
+            'ω' => "\\omega",
+            'Φ' => "\\Phi",
+            'Ψ' => "\\Psi",
+            '∞' => "\\infty",
+            '±' => "\\pm",
+            '−' => "-",
+            '≤' => "\\le",
+            '≥' => "\\ge",
+            '≈' => "\\approx",
+            '→' => "\\to",
+            '√' => "\\sqrt{}",
+            '∫' => "\\int",
+            '‖' => "\\|",
+            '·' => "\\cdot",
+            '×' => "\\times",
+            '²' => "^2",
+            '³' => "^3",
+            '′' => "'",
+            _ => return None,
+        })
+    }
+    let chars: Vec<char> = s.chars().collect();
+    let mut out = String::new();
+    let mut i = 0;
+    while i < chars.len() {
+        let c = chars[i];
+        match c {
+            '^' | '_' if i + 1 < chars.len() && !chars[i + 1].is_whitespace() => {
+                // The token after it: an optional sign, then letters, digits or a symbol.
+                let mut j = i + 1;
+                let mut tok = String::new();
+                if matches!(chars[j], '-' | '−' | '+') {
+                    tok.push(if chars[j] == '+' { '+' } else { '-' });
+                    j += 1;
+                }
+                while j < chars.len() && (chars[j].is_alphanumeric() || chars[j] == '.') {
+                    match symbol(chars[j]) {
+                        Some(m) => tok.push_str(&format!("{m} ")),
+                        None => tok.push(chars[j]),
+                    }
+                    j += 1;
+                }
+                let tok = tok.trim_end().trim_end_matches('.').to_string();
+                let used = tok.len();
+                if used == 0 {
+                    out.push_str(if c == '^' { "\\^{}" } else { "\\_" });
+                    i += 1;
+                    continue;
+                }
+                // A trailing full stop ends the sentence, not the exponent.
+                if chars[j - 1] == '.' {
+                    j -= 1;
+                }
+                out.push_str(&format!("${c}{{{tok}}}$"));
+                i = j;
+                continue;
+            }
+            '\\' => out.push_str("\\textbackslash{}"),
+            '&' | '%' | '$' | '#' | '{' | '}' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '^' => out.push_str("\\^{}"),
+            '_' => out.push_str("\\_"),
+            '~' => out.push_str("\\~{}"),
+            _ => match symbol(c) {
+                Some(m) => out.push_str(&format!("${m}$")),
+                None => out.push(c),
+            },
+        }
+        i += 1;
+    }
+    out.replace("$$", "")
+}
+
+#[cfg(test)]
+mod tests {
+    /// Captions come out as LaTeX: reserved characters escaped, symbols in math, exponents
+    /// raised (common practice for LaTeX text).
+    #[test]
+    fn captions_in_latex() {
+        assert_eq!(super::text("n^-ω fits"), "n$^{-\\omega}$ fits");
+        assert_eq!(super::text("a 50% & b_1"), "a 50\\% \\& b$_{1}$");
+        assert_eq!(
+            super::text("at ε = 0, ±1 SE."),
+            "at $\\varepsilon$ = 0, $\\pm$1 SE."
+        );
+        assert_eq!(
+            super::text("ω = 2/3 (n^-ω)."),
+            "$\\omega$ = 2/3 (n$^{-\\omega}$)."
+        );
+    }
 }

@@ -109,6 +109,9 @@ pub struct TraceFigure {
 }
 
 impl super::Figure for TraceFigure {
+    fn caption(&self) -> String {
+        format!("{}: {}", self.title, self.caption)
+    }
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
         DB::ErrorType: 'static,
@@ -135,7 +138,6 @@ impl super::Figure for TraceFigure {
         let (lo, hi) = (lo - pad, hi + 0.45 * (hi - lo).max(1e-3));
         let mut chart = ChartBuilder::on(&main)
             .margin(pt(5.0) as u32)
-            .caption(&self.title, ("sans-serif", pt(8.0)))
             .x_label_area_size(pt(20.0) as u32)
             .y_label_area_size(pt(30.0) as u32)
             .build_cartesian_2d(
@@ -208,6 +210,9 @@ pub struct ScanFigure {
 }
 
 impl super::Figure for ScanFigure {
+    fn caption(&self) -> String {
+        self.caption.clone()
+    }
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
         DB::ErrorType: 'static,
@@ -364,6 +369,12 @@ pub fn histogram_width(values: &[f64], width: f64, lattice: Option<f64>) -> Vec<
 }
 
 impl super::Figure for OverlapFigure {
+    fn caption(&self) -> String {
+        format!(
+            "{}: left, the overlaps' histogram; right, their distribution function. {}",
+            self.title, self.caption
+        )
+    }
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
         DB::ErrorType: 'static,
@@ -403,7 +414,6 @@ impl OverlapFigure {
         let top = ymax * 2.1;
         let mut chart = ChartBuilder::on(main)
             .margin(pt(5.0) as u32)
-            .caption(&self.title, ("sans-serif", pt(8.0)))
             .x_label_area_size(pt(20.0) as u32)
             .y_label_area_size(pt(30.0) as u32)
             .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..top)
@@ -467,7 +477,6 @@ impl OverlapFigure {
             .max(-1.0);
         let mut chart = ChartBuilder::on(area)
             .margin(pt(5.0) as u32)
-            .caption("distribution function", ("sans-serif", pt(8.0)))
             .x_label_area_size(pt(20.0) as u32)
             .y_label_area_size(pt(22.0) as u32)
             .build_cartesian_2d(lo..1.0f64, 0.0f64..1.45)
@@ -496,6 +505,9 @@ impl OverlapFigure {
 }
 
 impl super::Figure for EnergyFigure {
+    fn caption(&self) -> String {
+        self.caption.clone()
+    }
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
         DB::ErrorType: 'static,
@@ -505,6 +517,9 @@ impl super::Figure for EnergyFigure {
 }
 
 impl super::Figure for StabilityFigure {
+    fn caption(&self) -> String {
+        format!("{}. {}", self.title, self.caption)
+    }
     fn draw<DB: DrawingBackend>(&self, root: DrawingArea<DB, Shift>) -> Result<(), String>
     where
         DB::ErrorType: 'static,
@@ -548,31 +563,14 @@ pub(crate) fn wrap(text: &str, width: usize) -> Vec<String> {
     lines
 }
 
-/// Splits off the caption band and writes the caption into it; returns the plot area.
+/// Clears the drawing to white and returns it: the image holds axes, data and legend only;
+/// the caption goes to the figure's `.tex` and `.csv` sidecars ([`super::Figure::caption`]).
 fn with_caption<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
-    caption: &str,
+    _caption: &str,
 ) -> Result<DrawingArea<DB, Shift>, String> {
     root.fill(&WHITE).map_err(err)?;
-    let (w, h) = root.dim_in_pixel();
-    let size = pt(6.0);
-    let chars = (w as f64 / (0.52 * size)) as usize;
-    let lines = wrap(caption, chars.max(20));
-    let band = ((lines.len() as f64 + 0.6) * size * 1.25) as u32;
-    let (main, cap) = root.split_vertically(h.saturating_sub(band));
-    let style = TextStyle::from(("sans-serif", size).into_font()).color(&BLACK);
-    for (i, l) in lines.iter().enumerate() {
-        cap.draw_text(
-            l,
-            &style,
-            (
-                (0.02 * w as f64) as i32,
-                (i as f64 * size * 1.25 + 0.3 * size) as i32,
-            ),
-        )
-        .map_err(err)?;
-    }
-    Ok(main)
+    Ok(root.clone())
 }
 
 /// The corners of a marker's outline around the origin, in pixels, for half-width r (the
@@ -845,7 +843,6 @@ where
     });
     let mut chart = ChartBuilder::on(&main)
         .margin(pt(5.0) as u32)
-        .caption(&fig.title, ("sans-serif", pt(8.0)))
         .x_label_area_size(pt(20.0) as u32)
         .y_label_area_size(pt(30.0) as u32)
         .build_cartesian_2d(

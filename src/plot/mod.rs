@@ -142,6 +142,9 @@ pub fn pixels(size: Size) -> (u32, u32) {
 
 /// A figure drawable on any plotters backend (SVG and PNG share one drawing routine).
 pub trait Figure {
+    /// The caption, with its sources: written beside the image (`.tex`, and the `.csv`
+    /// header), never into it.
+    fn caption(&self) -> String;
     fn draw<DB: DrawingBackend>(
         &self,
         root: DrawingArea<DB, plotters::coord::Shift>,

@@ -55,8 +55,9 @@ fn dark_pixels(
 }
 
 /// The PNG is 300 dpi at one-column width, and text is drawn from the embedded font: glyph
-/// pixels exist in the x-axis label band, in the legend corner, and in the caption, although
-/// the font is not installed on the machine (tests do not depend on system fonts).
+/// pixels exist in the x-axis label band and in the legend corner, although the font is not
+/// installed on the machine (tests do not depend on system fonts). The caption is not in the
+/// image: it is the `.tex` sidecar's `\caption` and ends the CSV's first line.
 #[test]
 fn png_has_labels_legend_and_resolution() {
     let w = plotted();
@@ -67,15 +68,24 @@ fn png_has_labels_legend_and_resolution() {
     let d = dims.expect("pHYs chunk");
     assert_eq!(d.unit, png::Unit::Meter);
     assert!((d.xppu as f64 * 0.0254 - 300.0).abs() < 0.5, "{d:?}");
-    // x-axis description: centred, just above the caption band.
-    let (label, ..) = dark_pixels(&bytes, 0.35, 0.65, 0.70, 0.77);
+    // x-axis description: centred, at the bottom (no caption band below it).
+    let (label, ..) = dark_pixels(&bytes, 0.35, 0.65, 0.92, 0.995);
     assert!(label > 200, "x label: {label} dark pixels");
     // Legend in the upper right.
     let (legend, ..) = dark_pixels(&bytes, 0.55, 0.98, 0.02, 0.16);
     assert!(legend > 300, "legend: {legend} dark pixels");
-    // Caption at the bottom.
-    let (caption, ..) = dark_pixels(&bytes, 0.0, 0.9, 0.80, 0.99);
-    assert!(caption > 500, "caption: {caption} dark pixels");
+    // The caption beside the image.
+    let tex = std::fs::read_to_string(fig.join("energy-sk-gaussian.tex")).unwrap();
+    assert!(
+        tex.contains("\\caption{SK") && tex.contains("$\\varepsilon$"),
+        "{tex}"
+    );
+    let csv = std::fs::read_to_string(fig.join("energy-sk-gaussian.csv")).unwrap();
+    let first = csv.lines().next().unwrap();
+    assert!(
+        first.starts_with("# kiln figure data") && first.contains("; caption=SK"),
+        "{first}"
+    );
     // A blank region stays blank (the count is not trivially large everywhere).
     let (blank, ..) = dark_pixels(&bytes, 0.97, 1.0, 0.40, 0.50);
     assert!(blank < 50, "{blank}");

@@ -176,11 +176,15 @@ fn figures_carry_computed_theory_lines() {
 #[test]
 fn theory_refuses_bad_mixtures() {
     let w = Work::new();
-    for bad in ["1:1", "2:-0.5", "two:1"] {
+    for bad in ["0:1", "31:1", "2:-0.5", "two:1"] {
         let o = w.kiln(&["theory", "--mixture", bad]);
         assert_eq!(o.status.code(), Some(2), "{bad}: {}", stderr(&o));
         assert!(stderr(&o).contains("--mixture"), "{}", stderr(&o));
     }
+    // A p = 1 term (a random field) is taken at zero temperature only.
+    let o = w.kiln(&["theory", "--mixture", "1:0.5,2:0.25", "--beta", "1"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("p = 1"), "{}", stderr(&o));
 }
 
 /// `--beta` is refused before anything is written.
