@@ -252,7 +252,10 @@ fn nnls(a: &[f64], m: usize, tol: f64) -> Result<(Vec<f64>, u64), AlgoError> {
                 break;
             }
         }
+        // u moved: every candidate is back, except t if rounding sent it straight out again
+        // (its z was not positive), which would otherwise be chosen forever.
         blocked.iter_mut().for_each(|b| *b = false);
+        blocked[t] = !in_p[t];
     }
 }
 
