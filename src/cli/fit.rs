@@ -57,6 +57,23 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
     let cells = crate::store::table::Cells::read(&table_path)?;
     let study = fit::study::extrapolate(&cells, &params, min_n, settings.reference_only, bootstrap);
     let (rows, diffs, problems) = (&study.rows, &study.differences, &study.problems);
+    // The threshold view of a constraint family swept over densities.
+    let solved = fit::study::solved(&cells);
+    if rows.is_empty() && !solved.is_empty() {
+        // No size series to extrapolate (one size, say), but the threshold view stands alone.
+        if a.json {
+            let v = serde_json::json!({
+                "experiment": name, "solved": solved_json(&solved), "fits": [],
+                "differences": [], "problems": problems,
+            });
+            out(&format!("{v}\n"));
+        } else {
+            let mut s = solved_text(&solved);
+            s += &format!("no extrapolation: {}\n", problems.join("; "));
+            out(&s);
+        }
+        return Ok(ExitCode::SUCCESS);
+    }
     if rows.is_empty() {
         return Err(InputError(format!(
             "nothing to fit in {}: {}",
@@ -78,16 +95,10 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
     )
     .context("writing the LaTeX table")?;
 
-    // The threshold view of a constraint family swept over densities.
-    let solved = fit::study::solved(&cells);
     if a.json {
         let v = serde_json::json!({
             "experiment": name,
-            "solved": solved.iter().map(|r| {
-                let (p, se) = r.fraction();
-                serde_json::json!({"algorithm": r.algorithm, "n": r.n, "density": r.density,
-                    "solved": r.solved, "formulas": r.formulas, "fraction": p, "fraction_se": se})
-            }).collect::<Vec<_>>(),
+            "solved": solved_json(&solved),
             "fits": rows.iter().map(|r| serde_json::json!({
                 "family": r.family, "couplings": r.couplings, "algorithm": r.algorithm,
                 "epsilon": r.epsilon, "sizes": r.sizes, "e_inf": r.fit.e_inf,
@@ -145,20 +156,8 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
             );
         }
         if !solved.is_empty() {
-            s += &format!(
-                "\nfraction of instances solved at ε = 0 (± binomial se):\n{:<14} {:>8} {:>8} {:>9}  {:<14}\n",
-                "algorithm", "α", "n", "solved", "fraction"
-            );
-            for r in &solved {
-                let (p, se) = r.fraction();
-                s += &format!(
-                    "{:<14} {:>8} {:>8} {:>9}  {p:.3} ± {se:.3}\n",
-                    r.algorithm,
-                    r.density,
-                    r.n,
-                    format!("{}/{}", r.solved, r.formulas)
-                );
-            }
+            s += "\n";
+            s += &solved_text(&solved);
             s += "\n";
         }
         for d in diffs {
@@ -187,4 +186,35 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         eprintln!("not fitted: {p}");
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// The threshold view on screen: per algorithm, density and n, the instances solved.
+fn solved_text(solved: &[fit::study::Solved]) -> String {
+    let mut s = format!(
+        "fraction of instances solved at ε = 0 (± binomial se):\n{:<14} {:>8} {:>8} {:>9}  {:<14}\n",
+        "algorithm", "α", "n", "solved", "fraction"
+    );
+    for r in solved {
+        let (p, se) = r.fraction();
+        s += &format!(
+            "{:<14} {:>8} {:>8} {:>9}  {p:.3} ± {se:.3}\n",
+            r.algorithm,
+            r.density,
+            r.n,
+            format!("{}/{}", r.solved, r.formulas)
+        );
+    }
+    s
+}
+
+/// The threshold view as JSON rows.
+fn solved_json(solved: &[fit::study::Solved]) -> Vec<serde_json::Value> {
+    solved
+        .iter()
+        .map(|r| {
+            let (p, se) = r.fraction();
+            serde_json::json!({"algorithm": r.algorithm, "n": r.n, "density": r.density,
+                "solved": r.solved, "formulas": r.formulas, "fraction": p, "fraction_se": se})
+        })
+        .collect()
 }

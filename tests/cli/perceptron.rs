@@ -236,6 +236,20 @@ fn sphere_sweep_theory_and_figure() {
     )
     .unwrap();
     assert!(csv.contains("n,density,solved"), "{csv}");
+    // One size has nothing to extrapolate, but `kiln fit` still gives the threshold view.
+    let one = w.spec(
+        "one.toml",
+        &SPHERE
+            .replace("name = \"sph\"", "name = \"one\"")
+            .replace("sizes = [20, 40]", "sizes = [20]"),
+    );
+    let o = w.kiln(&["run", one.to_str().unwrap(), "--quiet"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let o = w.kiln(&["fit", "results/one", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["solved"].as_array().unwrap().len(), 2, "{v}");
+    assert_eq!(v["fits"].as_array().unwrap().len(), 0, "{v}");
 }
 
 /// Bad perceptron specs: one clear message each (file, key, hint), exit 2, nothing written.
