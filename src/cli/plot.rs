@@ -85,26 +85,27 @@ fn capacity_line(model: Option<&crate::model::ModelSpec>) -> Option<(f64, String
         .family
         .as_any()
         .downcast_ref::<crate::model::families::perceptron::Perceptron>()?;
-    let k = p.margin;
-    if p.domain == crate::model::Domain::Sphere {
-        (k >= 0.0).then(|| {
-            let a = crate::theory::perceptron::gardner_capacity(k);
-            (
-                a,
-                format!("capacity α = {a:.4}"),
-                format!(" Dashed: the capacity α = 1/E[(Z + κ)²; Z ≥ −κ] = {a:.6} of the spherical perceptron at κ = {k}, Z standard normal (Gardner 1988, J. Phys. A 21, 257), computed by kiln."),
-            )
-        })
+    let (k, sphere) = (p.margin, p.domain == crate::model::Domain::Sphere);
+    let a = crate::theory::perceptron::capacity(sphere, k)?;
+    let source = if sphere {
+        format!(
+            "the capacity α = 1/E[(Z + κ)²; Z ≥ −κ] = {a:.6} of the spherical perceptron at κ = {k}, Z standard normal (Gardner 1988, J. Phys. A 21, 257)"
+        )
     } else {
-        let a = crate::theory::perceptron::binary_capacity(k);
-        Some((
-            a,
-            format!("capacity α = {a:.4}"),
-            format!(
-                " Dashed: the capacity α = {a:.6} of the binary perceptron at κ = {k}, where the replica-symmetric entropy of solutions vanishes (Gardner & Derrida 1988; Krauth & Mézard 1989), computed by kiln; finite-n curves cross above it."
-            ),
-        ))
-    }
+        format!(
+            "the capacity α = {a:.6} of the binary perceptron at κ = {k}, where the replica-symmetric entropy of solutions vanishes (Gardner & Derrida 1988; Krauth & Mézard 1989)"
+        )
+    };
+    let tail = if sphere {
+        ""
+    } else {
+        "; finite-n curves cross above it"
+    };
+    Some((
+        a,
+        format!("capacity α = {a:.4}"),
+        format!(" Dashed: {source}, computed by kiln{tail}."),
+    ))
 }
 
 /// Theory lines for a model (value, legend, caption text), computed by kiln itself: on the

@@ -98,11 +98,7 @@ fn perceptron(
     }
     let sphere = p.domain == crate::model::Domain::Sphere;
     let k = p.margin;
-    let capacity = if sphere {
-        (k >= 0.0).then(|| th::gardner_capacity(k))
-    } else {
-        Some(th::binary_capacity(k))
-    };
+    let capacity = th::capacity(sphere, k);
     let alphas: Vec<f64> = spec
         .models
         .iter()

@@ -158,8 +158,7 @@ impl Patterns {
     /// H at a real point and its gradient ∇H into `g`: ∂H/∂x_i = Σ_a u'(t_a − κ)·g_ai/√n, with
     /// u'(t − κ) = 0 for the step (almost everywhere) and (κ − t)_+ for the quadratic.
     pub fn value_grad(&self, x: &[f64], g: &mut [f64]) -> f64 {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| x[i], &mut t);
+        let t = self.projected(|i| x[i]);
         let value = self.score(&t);
         match self.constraint {
             Constraint::Step => g.iter_mut().for_each(|v| *v = 0.0),
@@ -219,6 +218,13 @@ impl Patterns {
         }
     }
 
+    /// The projections of x, freshly allocated.
+    fn projected(&self, x: impl Fn(usize) -> f64) -> Vec<f64> {
+        let mut t = vec![0.0; self.m];
+        self.projections(x, &mut t);
+        t
+    }
+
     /// The number of patterns with t_a < κ.
     pub fn violated(&self, t: &[f64]) -> usize {
         t.iter().filter(|&&v| v < self.kappa).count()
@@ -226,23 +232,17 @@ impl Patterns {
 
     /// The patterns a point x violates (any norm; the sphere's points have ‖x‖² = n).
     pub fn unsatisfied_at(&self, x: &[f64]) -> usize {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| x[i], &mut t);
-        self.violated(&t)
+        self.violated(&self.projected(|i| x[i]))
     }
 
     /// The patterns a ±1 configuration violates.
     pub fn unsatisfied(&self, s: &[i8]) -> usize {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| s[i] as f64, &mut t);
-        self.violated(&t)
+        self.violated(&self.projected(|i| s[i] as f64))
     }
 
     /// H at a real point.
     pub fn value(&self, x: &[f64]) -> f64 {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| x[i], &mut t);
-        self.score(&t)
+        self.score(&self.projected(|i| x[i]))
     }
 
     /// Bytes of an instance with m patterns in R^n (the patterns twice while sampling, then
@@ -251,28 +251,21 @@ impl Patterns {
         (n as u128 * m as u128) * 16 + m as u128 * 8
     }
 
-    /// Exhaustive search's walk through all states in Gray-code order from σ = (+1, …, +1):
-    /// `free` spins move (spin i flips at step k when i is the lowest set bit of k). The
-    /// projections move by one column a step, so a state costs O(m). They are recomputed from
-    /// scratch every 4096 steps (rounding cannot drift), and a state that looks better than
-    /// the best so far is re-scored from scratch before it is kept, so a kept energy is exact.
-    /// Returns the first best state in Gray order, its H, and the steps taken; stops at the
-    /// first state with every pattern satisfied (H = 0, for either constraint function).
-    pub fn gray_walk(&self, free: usize) -> (Vec<i8>, f64, u64) {
+    /// Walks the states with `free` moving spins in Gray-code order from σ = (+1, …, +1) (spin
+    /// i flips at step k when i is the lowest set bit of k), keeping the projections current
+    /// at O(m) a state (recomputed from scratch every 4096 steps, so rounding cannot drift),
+    /// and calls `visit(σ, t)` at each state, the start included, until it returns false.
+    /// Returns the steps taken.
+    fn walk(&self, free: usize, mut visit: impl FnMut(&[i8], &[f64]) -> bool) -> u64 {
         let mut s = vec![1i8; self.n];
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| s[i] as f64, &mut t);
-        let mut best = self.score(&t);
-        let mut best_s = s.clone();
+        let mut t = self.projected(|i| s[i] as f64);
+        if !visit(&s, &t) {
+            return 0;
+        }
         let steps: u64 = if free == 0 { 0 } else { (1u64 << free) - 1 };
-        let mut done = 0;
         for k in 1..=steps {
-            if best >= 0.0 {
-                break;
-            }
             let i = k.trailing_zeros() as usize;
             s[i] = -s[i];
-            done = k;
             if k.is_multiple_of(4096) {
                 self.projections(|j| s[j] as f64, &mut t);
             } else {
@@ -281,48 +274,46 @@ impl Patterns {
                     *v += d * g;
                 }
             }
-            if self.score(&t) > best {
-                let exact = SpinModel::energy(self, &s);
-                if exact > best {
-                    best = exact;
-                    best_s.copy_from_slice(&s);
-                }
+            if !visit(&s, &t) {
+                return k;
             }
         }
+        steps
+    }
+
+    /// Exhaustive search's walk ([`Patterns::walk`] over `free` spins): the first best state in
+    /// Gray order, its H, and the steps taken; it stops at the first state with every pattern
+    /// satisfied (H = 0, for either constraint function). A state that looks better than the
+    /// best so far is re-scored from scratch before it is kept, so a kept energy is exact.
+    pub fn gray_walk(&self, free: usize) -> (Vec<i8>, f64, u64) {
+        let mut best = f64::NEG_INFINITY;
+        let mut best_s = Vec::new();
+        let done = self.walk(free, |s, t| {
+            if self.score(t) > best {
+                let exact = SpinModel::energy(self, s);
+                if exact > best {
+                    best = exact;
+                    best_s = s.to_vec();
+                }
+            }
+            best < 0.0
+        });
         (best_s, best, done)
     }
 
     /// The instance's capacity: the largest m' ≤ m such that its first m' patterns are
     /// satisfied by one ±1 configuration (patterns are nested, so the instance at density
-    /// m'/n is satisfiable iff m' ≤ this). One walk through all 2^n states in Gray-code order,
-    /// O(m) a state, with the same refresh and exact re-scoring as [`Patterns::gray_walk`].
+    /// m'/n is satisfiable iff m' ≤ this). One walk through all 2^n states, with the exact
+    /// re-scoring of [`Patterns::gray_walk`].
     pub fn capacity(&self) -> usize {
         let first_violated = |t: &[f64]| t.iter().position(|&v| v < self.kappa).unwrap_or(t.len());
-        let mut s = vec![1i8; self.n];
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| s[i] as f64, &mut t);
-        let mut best = first_violated(&t);
-        let steps: u64 = (1u64 << self.n) - 1;
-        for k in 1..=steps {
-            if best == self.m {
-                break;
+        let mut best = 0;
+        self.walk(self.n, |s, t| {
+            if t[..=best.min(self.m - 1)].iter().all(|&v| v >= self.kappa) {
+                best = best.max(first_violated(&self.projected(|j| s[j] as f64)));
             }
-            let i = k.trailing_zeros() as usize;
-            s[i] = -s[i];
-            if k.is_multiple_of(4096) {
-                self.projections(|j| s[j] as f64, &mut t);
-            } else {
-                let d = 2.0 * s[i] as f64;
-                for (v, &g) in t.iter_mut().zip(self.column(i)) {
-                    *v += d * g;
-                }
-            }
-            if t[..=best].iter().all(|&v| v >= self.kappa) {
-                let mut exact = vec![0.0; self.m];
-                self.projections(|j| s[j] as f64, &mut exact);
-                best = best.max(first_violated(&exact));
-            }
-        }
+            best < self.m
+        });
         best
     }
 }
@@ -345,15 +336,12 @@ impl SpinModel for Patterns {
         Some(0.0)
     }
     fn energy(&self, s: &[i8]) -> f64 {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| s[i] as f64, &mut t);
-        self.score(&t)
+        self.score(&self.projected(|i| s[i] as f64))
     }
     /// gain_j = Σ_a u(t_a − 2σ_j c_ja − κ) − u(t_a − κ), and h_j = −σ_j·gain_j/2 (for the
     /// step exact: the gains are integers).
     fn fields(&self, s: &[i8], h: &mut [f64]) {
-        let mut t = vec![0.0; self.m];
-        self.projections(|i| s[i] as f64, &mut t);
+        let t = self.projected(|i| s[i] as f64);
         for (j, hj) in h.iter_mut().enumerate() {
             let d = -2.0 * s[j] as f64;
             let mut gain = 0.0;

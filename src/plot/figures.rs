@@ -116,7 +116,7 @@ impl super::Figure for TraceFigure {
     where
         DB::ErrorType: 'static,
     {
-        let main = with_caption(&root, &self.caption)?;
+        let main = blank(&root)?;
         let pts = self.series.iter().flat_map(|s| s.points.iter());
         let (mut xlo, mut xhi, mut lo, mut hi) = (f64::MAX, 1.0f64, f64::MAX, f64::MIN);
         for &(x, y) in pts {
@@ -217,7 +217,7 @@ impl super::Figure for ScanFigure {
     where
         DB::ErrorType: 'static,
     {
-        let main = with_caption(&root, &self.caption)?;
+        let main = blank(&root)?;
         let areas = main.split_evenly((1, self.panels.len().max(1)));
         for (panel, area) in self.panels.iter().zip(&areas) {
             draw_scan_panel(area, panel)?;
@@ -379,7 +379,7 @@ impl super::Figure for OverlapFigure {
     where
         DB::ErrorType: 'static,
     {
-        let main = with_caption(&root, &self.caption)?;
+        let main = blank(&root)?;
         let (hist, cdf) = match &self.distribution {
             Some(_) => {
                 let w = main.dim_in_pixel().0;
@@ -565,9 +565,8 @@ pub(crate) fn wrap(text: &str, width: usize) -> Vec<String> {
 
 /// Clears the drawing to white and returns it: the image holds axes, data and legend only;
 /// the caption goes to the figure's `.tex` and `.csv` sidecars ([`super::Figure::caption`]).
-fn with_caption<DB: DrawingBackend>(
+fn blank<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
-    _caption: &str,
 ) -> Result<DrawingArea<DB, Shift>, String> {
     root.fill(&WHITE).map_err(err)?;
     Ok(root.clone())
@@ -699,7 +698,7 @@ pub fn draw_energy<DB: DrawingBackend>(
 where
     DB::ErrorType: 'static,
 {
-    let main = with_caption(&root, &fig.caption)?;
+    let main = blank(&root)?;
     let xs = |n: f64| n.powf(-fig.omega);
     let xmax = fig
         .series
@@ -825,7 +824,7 @@ pub fn draw_stability<DB: DrawingBackend>(
 where
     DB::ErrorType: 'static,
 {
-    let main = with_caption(&root, &fig.caption)?;
+    let main = blank(&root)?;
     let pos: Vec<&(f64, f64, f64)> = fig
         .series
         .iter()

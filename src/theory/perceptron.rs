@@ -25,6 +25,16 @@ pub fn gardner_capacity(kappa: f64) -> f64 {
     1.0 / ((1.0 + kappa * kappa) * normal_cdf(kappa) + kappa * density(kappa))
 }
 
+/// The capacity kiln computes for a perceptron: Gardner's on the sphere at κ ≥ 0, the RS
+/// zero-entropy density on the cube; None on the sphere at κ < 0 (not convex there).
+pub fn capacity(sphere: bool, kappa: f64) -> Option<f64> {
+    if sphere {
+        (kappa >= 0.0).then(|| gardner_capacity(kappa))
+    } else {
+        Some(binary_capacity(kappa))
+    }
+}
+
 /// Cover's probability that m Gaussian patterns in R^n are separable through the origin:
 /// 2^{1−m} Σ_{k<n} C(m − 1, k), summed in logarithms (exact to rounding for any m).
 pub fn cover_probability(n: u64, m: u64) -> f64 {

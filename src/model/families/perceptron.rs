@@ -73,16 +73,16 @@ fn parse(s: &Settings<'_>) -> Result<Arc<dyn Family>, SpecError> {
     };
     let constraint = match s.value("constraint") {
         None => Constraint::Step,
-        Some(toml::Value::String(c)) if Constraint::parse(c).is_some() => {
-            Constraint::parse(c).expect("checked")
-        }
-        Some(v) => {
-            return Err(s.fail(
-                "constraint",
-                format!("constraint {v} is not a constraint function"),
-                format!("one of {}", Constraint::NAMES.join(", ")),
-            ));
-        }
+        Some(v) => match v.as_str().and_then(Constraint::parse) {
+            Some(c) => c,
+            None => {
+                return Err(s.fail(
+                    "constraint",
+                    format!("constraint {v} is not a constraint function"),
+                    format!("one of {}", Constraint::NAMES.join(", ")),
+                ));
+            }
+        },
     };
     Ok(Arc::new(Perceptron {
         density,
