@@ -484,7 +484,7 @@ fn overlap_figures(
                     })
                     .collect(),
                 parisi: (o.corners.clone(), format!("x(q), β = {}", o.beta)),
-                axis: format!("overlap  {what}"),
+                axis: format!("overlap {what}"),
             }
         });
         let fig = figures::OverlapFigure {
@@ -687,7 +687,7 @@ fn scan_figures(
         }
         panels.push(figures::ScanPanel {
             x_label: "inverse temperature β".into(),
-            y_label: "energy per spin  H/n".into(),
+            y_label: "energy per spin H/n (maximised)".into(),
             series: series(energy),
             theory: (!theory.is_empty()).then(|| (theory.clone(), "E(β), kiln's theory".into())),
         });

@@ -281,7 +281,7 @@ impl Patterns {
         steps
     }
 
-    /// Exhaustive search's walk ([`Patterns::walk`] over `free` spins): the first best state in
+    /// Exhaustive search's walk (the Gray walk over `free` spins): the first best state in
     /// Gray order, its H, and the steps taken; it stops at the first state with every pattern
     /// satisfied (H = 0, for either constraint function). A state that looks better than the
     /// best so far is re-scored from scratch before it is kept, so a kept energy is exact.

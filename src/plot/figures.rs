@@ -147,13 +147,15 @@ impl super::Figure for TraceFigure {
                 lo..hi,
             )
             .map_err(err)?;
+        let fy = ticks(lo, hi, 5);
         house_mesh(
             &mut chart.configure_mesh(),
             &format!("{}s", self.unit),
-            "energy per spin  H/n",
+            "energy per spin H/n (maximised)",
             (5, 5),
         )
         .x_label_formatter(&|x| format!("{}", (x * 1e6).round() / 1e6))
+        .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
         if let Some((e, label)) = &self.target {
@@ -262,7 +264,10 @@ where
         .y_label_area_size(pt(28.0) as u32)
         .build_cartesian_2d(x0 - pad..x1 + pad, lo..hi)
         .map_err(err)?;
+    let (fx, fy) = (ticks(x0 - pad, x1 + pad, 5), ticks(lo, hi, 5));
     house_mesh(&mut chart.configure_mesh(), &p.x_label, &p.y_label, (5, 5))
+        .x_label_formatter(&fx)
+        .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
     if let Some((pts, label)) = &p.theory {
@@ -418,12 +423,15 @@ impl OverlapFigure {
             .y_label_area_size(pt(30.0) as u32)
             .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..top)
             .map_err(err)?;
+        let (fx, fy) = (ticks(-1.0, 1.0, 5), ticks(0.0, top, 5));
         house_mesh(
             &mut chart.configure_mesh(),
-            "overlap  σᵃ·σᵇ/n",
+            "overlap σᵃ·σᵇ/n",
             "density",
             (5, 5),
         )
+        .x_label_formatter(&fx)
+        .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
         if let Some((xs, label)) = &self.markers {
@@ -481,7 +489,9 @@ impl OverlapFigure {
             .y_label_area_size(pt(22.0) as u32)
             .build_cartesian_2d(lo..1.0f64, 0.0f64..1.45)
             .map_err(err)?;
+        let fx = ticks(lo, 1.0, 3);
         house_mesh(&mut chart.configure_mesh(), &d.axis, "P(≤ q)", (3, 4))
+            .x_label_formatter(&fx)
             .y_label_formatter(&|y| {
                 if *y <= 1.0 + 1e-9 {
                     format!("{y:.1}")
@@ -731,14 +741,18 @@ where
         // A margin left of n^-ω = 0, so the extrapolated points are drawn whole.
         .build_cartesian_2d(-0.04 * xmax..xmax, lo..hi)
         .map_err(err)?;
+    let (fx, fy) = (ticks(-0.04 * xmax, xmax, 5), ticks(lo, hi, 6));
     house_mesh(
         &mut chart.configure_mesh(),
-        &format!("n^-ω  (ω = {:.3})", fig.omega),
-        "energy per spin  H/n",
+        "",
+        "energy per spin H/n (maximised)",
         (5, 6),
     )
+    .x_label_formatter(&fx)
+    .y_label_formatter(&fy)
     .draw()
     .map_err(err)?;
+    power_label(&main, chart.plotting_area().get_pixel_range(), fig.omega)?;
     for (v, label) in &fig.theory {
         theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
     }
@@ -855,11 +869,11 @@ where
         .map_err(err)?;
     house_mesh(
         &mut chart.configure_mesh(),
-        "ε  (disorder correlation 1 − ε)",
+        "ε (disorder correlation 1 − ε)",
         if fig.modulo_flip {
-            "distance  min ‖σ ∓ σ'‖/√n"
+            "distance min ‖σ ∓ σ'‖/√n"
         } else {
-            "distance  ‖σ − σ'‖/√n"
+            "distance ‖σ − σ'‖/√n"
         },
         (4, 5),
     )
@@ -904,6 +918,68 @@ where
     }
     house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     root.present().map_err(err)
+}
+
+/// The energy figure's x-axis description, n^{−ω} with a real superscript (the exponent drawn
+/// smaller and raised) and the value of ω, centred under the plotting area `plot` (pixels).
+fn power_label<DB: DrawingBackend>(
+    main: &DrawingArea<DB, Shift>,
+    plot: (std::ops::Range<i32>, std::ops::Range<i32>),
+    omega: f64,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let base = TextStyle::from(("sans-serif", pt(8.0)).into_font()).color(&BLACK);
+    let small = TextStyle::from(("sans-serif", pt(5.5)).into_font()).color(&BLACK);
+    let pieces = [
+        ("n", &base, 0),
+        ("\u{2212}ω", &small, -(pt(3.0) as i32)),
+        (&*format!(",  ω = {omega:.3}"), &base, 0),
+    ];
+    let widths: Vec<i32> = pieces
+        .iter()
+        .map(|(t, f, _)| {
+            main.estimate_text_size(t, f)
+                .map(|w| w.0 as i32)
+                .map_err(err)
+        })
+        .collect::<Result<_, _>>()?;
+    let total: i32 = widths.iter().sum();
+    let mut x = (plot.0.start + plot.0.end) / 2 - total / 2;
+    let y = plot.1.end + pt(13.0) as i32;
+    for ((text, style, dy), w) in pieces.iter().zip(&widths) {
+        main.draw_text(text, style, (x, y + dy)).map_err(err)?;
+        x += w;
+    }
+    Ok(())
+}
+
+/// Tick labels for a linear axis from `lo` to `hi` with about `count` ticks: every label with
+/// the same number of decimals (those of the tick step plotters chooses, a 1, 2 or 5 times a
+/// power of ten), negative values with a true minus sign (U+2212), and no "−0".
+pub(crate) fn ticks(lo: f64, hi: f64, count: usize) -> impl Fn(&f64) -> String {
+    let raw = ((hi - lo).abs() / count.max(1) as f64).max(1e-12);
+    let e = raw.log10().floor();
+    let base = 10f64.powf(e);
+    let step = [1.0, 2.0, 5.0, 10.0]
+        .iter()
+        .map(|m| m * base)
+        .find(|&st| st >= raw * (1.0 - 1e-9))
+        .unwrap_or(10.0 * base);
+    let decimals = (-(step.log10() + 1e-9).floor()).max(0.0) as usize;
+    move |v: &f64| {
+        let text = format!("{:.*}", decimals, v);
+        let zero = text
+            .trim_start_matches('-')
+            .chars()
+            .all(|c| c == '0' || c == '.');
+        if zero {
+            text.trim_start_matches('-').to_string()
+        } else {
+            text.replace('-', "\u{2212}")
+        }
+    }
 }
 
 /// The axes every kiln figure shares: no grid, 7 pt tick labels, 8 pt axis titles, 2 px black
@@ -1056,6 +1132,22 @@ mod tests {
         // bins [-1,-0.5), [-0.5,0), [0,0.5), [0.5,1]: counts 1, 1, 2, 2.
         let counts: Vec<f64> = h.iter().map(|b| b.2 * 0.5 * 6.0).collect();
         assert_eq!(counts, vec![1.0, 1.0, 2.0, 2.0]);
+    }
+
+    /// Tick labels share their decimals, use U+2212 and never read −0 (common practice in
+    /// typesetting).
+    #[test]
+    fn tick_labels() {
+        let f = ticks(-0.1, 0.1, 5);
+        let labels: Vec<String> = [-0.1, -0.05, 0.0, 0.05, 0.1].iter().map(&f).collect();
+        assert_eq!(
+            labels,
+            ["\u{2212}0.10", "\u{2212}0.05", "0.00", "0.05", "0.10"]
+        );
+        assert_eq!(ticks(0.0, 1.0, 5)(&0.5), "0.5");
+        assert_eq!(ticks(0.6, 0.8, 5)(&0.75), "0.75");
+        assert_eq!(ticks(0.6, 0.8, 5)(&0.7), "0.70");
+        assert_eq!(ticks(-1e-3, 1e-3, 4)(&-1e-9), "0.0000");
     }
 
     #[test]
