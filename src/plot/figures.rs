@@ -753,8 +753,17 @@ where
     .draw()
     .map_err(err)?;
     power_label(&main, chart.plotting_area().get_pixel_range(), fig.omega)?;
+    // What the legend must not cover: every drawn point and line, in pixels.
+    let mut drawn: Vec<(i32, i32)> = Vec::new();
+    let mut labels: Vec<String> = Vec::new();
     for (v, label) in &fig.theory {
         theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
+        labels.push(label.clone());
+        drawn.extend((0..=40).map(|k| {
+            chart
+                .plotting_area()
+                .map_coordinate(&(xmax * k as f64 / 40.0, *v))
+        }));
     }
     for (i, s) in fig.series.iter().enumerate() {
         let style = series(i);
@@ -793,12 +802,17 @@ where
                     color.stroke_width(3),
                 ))
                 .map_err(err)?
-                .label(format!(
-                    "{}: e∞ = {}",
-                    s.label,
-                    with_error(f.e_inf, f.e_inf_se)
-                ))
+                .label({
+                    let l = format!("{}: e∞ = {}", s.label, with_error(f.e_inf, f.e_inf_se));
+                    labels.push(l.clone());
+                    l
+                })
                 .legend(move |c| legend_glyph(style, c));
+            drawn.extend(
+                grid.iter()
+                    .map(|&x| chart.plotting_area().map_coordinate(&(x, at(x).0))),
+            );
+            drawn.push(chart.plotting_area().map_coordinate(&(0.0, f.e_inf)));
             chart
                 .draw_series(std::iter::once(ErrorBar::new_vertical(
                     0.0,
@@ -824,9 +838,11 @@ where
                 )))
                 .map_err(err)?;
             marker(chart.plotting_area(), i, (x, p.1), false)?;
+            drawn.push(chart.plotting_area().map_coordinate(&(x, p.1)));
         }
     }
-    house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &drawn, &labels);
+    house_legend(&mut chart, corner)?;
     root.present().map_err(err)
 }
 
@@ -881,6 +897,8 @@ where
     .y_label_formatter(&|y| format!("{}", (y * 1e4).round() / 1e4))
     .draw()
     .map_err(err)?;
+    let mut drawn: Vec<(i32, i32)> = Vec::new();
+    let mut labels: Vec<String> = Vec::new();
     for (i, s) in fig.series.iter().enumerate() {
         let style = series(i);
         let color = style.color;
@@ -894,6 +912,7 @@ where
             Some(k) => format!("{}  (slope {k:.2})", s.label),
             None => s.label.clone(),
         };
+        labels.push(label.clone());
         chart
             .draw_series(LineSeries::new(
                 pts.iter().map(|p| (p.0, p.1)),
@@ -914,9 +933,12 @@ where
                 )))
                 .map_err(err)?;
             marker(chart.plotting_area(), i, (p.0, p.1), false)?;
+            drawn.push(chart.plotting_area().map_coordinate(&(p.0, p.1)));
+            drawn.push(chart.plotting_area().map_coordinate(&(p.0, p.1 + p.2)));
         }
     }
-    house_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+    let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &drawn, &labels);
+    house_legend(&mut chart, corner)?;
     root.present().map_err(err)
 }
 
@@ -955,18 +977,45 @@ where
     Ok(())
 }
 
+/// The spacing of the labelled ticks plotters draws on a linear axis from `lo` to `hi` with at
+/// most `count` labels (its own search, restated: start from the power of ten below the range,
+/// then divide by 2, 5 and 10 while the ticks still number at most `count`).
+fn tick_step(lo: f64, hi: f64, count: usize) -> f64 {
+    let (a, b) = (lo.min(hi), hi.max(lo));
+    if !(b - a).is_finite() || (b - a).abs() < f64::EPSILON || count == 0 {
+        return 1.0;
+    }
+    let rem = |x: f64, m: f64| {
+        let r = x - (x / m).floor() * m;
+        if (r - m).abs() < f64::EPSILON { 0.0 } else { r }
+    };
+    let mut scale = 10f64.powf((b - a).log10().floor());
+    if 1 + ((b - a) / scale).floor() as usize > count {
+        scale *= 10.0;
+    }
+    for _ in 0..64 {
+        let old = scale;
+        for nxt in [2.0, 5.0, 10.0] {
+            let mut left = a - rem(a, old / nxt);
+            if left < a {
+                left += old / nxt;
+            }
+            let right = b - rem(b, old / nxt);
+            if (1.0 + (right - left) / old * nxt).round() as usize > count {
+                return scale;
+            }
+            scale = old / nxt;
+        }
+        scale = old / 10.0;
+    }
+    scale
+}
+
 /// Tick labels for a linear axis from `lo` to `hi` with about `count` ticks: every label with
 /// the same number of decimals (those of the tick step plotters chooses, a 1, 2 or 5 times a
 /// power of ten), negative values with a true minus sign (U+2212), and no "−0".
 pub(crate) fn ticks(lo: f64, hi: f64, count: usize) -> impl Fn(&f64) -> String {
-    let raw = ((hi - lo).abs() / count.max(1) as f64).max(1e-12);
-    let e = raw.log10().floor();
-    let base = 10f64.powf(e);
-    let step = [1.0, 2.0, 5.0, 10.0]
-        .iter()
-        .map(|m| m * base)
-        .find(|&st| st >= raw * (1.0 - 1e-9))
-        .unwrap_or(10.0 * base);
+    let step = tick_step(lo, hi, count);
     let decimals = (-(step.log10() + 1e-9).floor()).max(0.0) as usize;
     move |v: &f64| {
         let text = format!("{:.*}", decimals, v);
@@ -1035,6 +1084,56 @@ where
                 + PathElement::new(vec![(24, 0), (30, 0)], BLACK.stroke_width(3))
         });
     Ok(())
+}
+
+/// The corner of the plotting area `range` (pixels) where a legend box of `labels` covers the
+/// fewest of the drawn points `pts` (pixels); ties go to the first of upper right, upper left,
+/// lower right, lower left. The box is estimated from the legend's font: one line per label,
+/// the longest label's width plus the line sample.
+fn legend_corner(
+    range: &(std::ops::Range<i32>, std::ops::Range<i32>),
+    pts: &[(i32, i32)],
+    labels: &[String],
+) -> SeriesLabelPosition {
+    let font = pt(6.5);
+    let chars = labels.iter().map(|l| l.chars().count()).max().unwrap_or(0) as f64;
+    let (w, h) = (
+        (60.0 + chars * 0.56 * font) as i32,
+        (labels.len() as f64 * 1.3 * font + 20.0) as i32,
+    );
+    let (x, y) = range;
+    let corners = [
+        (
+            SeriesLabelPosition::UpperRight,
+            x.end - w..x.end,
+            y.start..y.start + h,
+        ),
+        (
+            SeriesLabelPosition::UpperLeft,
+            x.start..x.start + w,
+            y.start..y.start + h,
+        ),
+        (
+            SeriesLabelPosition::LowerRight,
+            x.end - w..x.end,
+            y.end - h..y.end,
+        ),
+        (
+            SeriesLabelPosition::LowerLeft,
+            x.start..x.start + w,
+            y.end - h..y.end,
+        ),
+    ];
+    let covered = |(bx, by): &(std::ops::Range<i32>, std::ops::Range<i32>)| {
+        pts.iter()
+            .filter(|(px, py)| bx.contains(px) && by.contains(py))
+            .count()
+    };
+    corners
+        .into_iter()
+        .min_by_key(|(_, bx, by)| covered(&(bx.clone(), by.clone())))
+        .map(|c| c.0)
+        .expect("four corners")
 }
 
 /// The legend box every figure uses.
@@ -1134,6 +1233,30 @@ mod tests {
         assert_eq!(counts, vec![1.0, 1.0, 2.0, 2.0]);
     }
 
+    /// The legend goes to the corner it covers least: with points filling the upper half, a
+    /// lower corner; with every corner empty, the upper right (common practice: the legend off
+    /// the data).
+    #[test]
+    fn legend_avoids_the_data() {
+        let range = (0..1000, 0..800);
+        let labels = vec!["n = 100".to_string(), "n = 1000".to_string()];
+        let upper: Vec<(i32, i32)> = (0..100).map(|k| (k * 10, 50 + (k % 7) * 30)).collect();
+        let c = legend_corner(&range, &upper, &labels);
+        assert!(matches!(
+            c,
+            SeriesLabelPosition::LowerRight | SeriesLabelPosition::LowerLeft
+        ));
+        let right: Vec<(i32, i32)> = (0..80).map(|k| (900 + k % 90, k * 10)).collect();
+        assert!(matches!(
+            legend_corner(&range, &right, &labels),
+            SeriesLabelPosition::UpperLeft
+        ));
+        assert!(matches!(
+            legend_corner(&range, &[], &labels),
+            SeriesLabelPosition::UpperRight
+        ));
+    }
+
     /// Tick labels share their decimals, use U+2212 and never read −0 (common practice in
     /// typesetting).
     #[test]
@@ -1147,7 +1270,10 @@ mod tests {
         assert_eq!(ticks(0.0, 1.0, 5)(&0.5), "0.5");
         assert_eq!(ticks(0.6, 0.8, 5)(&0.75), "0.75");
         assert_eq!(ticks(0.6, 0.8, 5)(&0.7), "0.70");
-        assert_eq!(ticks(-1e-3, 1e-3, 4)(&-1e-9), "0.0000");
+        assert_eq!(ticks(-1e-3, 1e-3, 4)(&-1e-9), "0.000");
+        // A range where plotters puts 6 labels 0.05 apart (0.55 … 0.80): two decimals.
+        assert_eq!(tick_step(0.53, 0.84, 6), 0.05);
+        assert_eq!(ticks(0.53, 0.84, 6)(&0.8), "0.80");
     }
 
     #[test]
