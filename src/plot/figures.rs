@@ -803,7 +803,8 @@ where
                 ))
                 .map_err(err)?
                 .label({
-                    let l = format!("{}: e∞ = {}", s.label, with_error(f.e_inf, f.e_inf_se));
+                    let e = with_error(f.e_inf, f.e_inf_se).replace('-', "\u{2212}");
+                    let l = format!("{}: e∞ = {e}", s.label);
                     labels.push(l.clone());
                     l
                 })
