@@ -93,37 +93,17 @@ impl Algorithm for Params {
 pub fn run(p: &Patterns) -> Result<Output, AlgoError> {
     let n = p.n();
     let (y, iterations) = max_margin(p)?;
-    let x = match y {
-        Some(y) => y,
-        None => {
-            let mut x = vec![0.0; n];
-            for (i, v) in x.iter_mut().enumerate() {
-                *v = p.column(i).iter().sum();
-            }
-            x
-        }
-    };
-    let norm = x.iter().map(|v| v * v).sum::<f64>().sqrt();
-    let scale = if norm > 0.0 {
-        (n as f64).sqrt() / norm
-    } else {
-        0.0
-    };
-    let x: Vec<f64> = if scale > 0.0 {
-        x.iter().map(|v| v * scale).collect()
-    } else {
-        vec![1.0; n]
-    };
-    Ok(Output {
-        spins: super::signs(&x),
-        point: Some(x),
-        info: Info {
+    // The max-margin direction, or the Hebb point Σ_a g_a; scaled to ‖x‖² = n.
+    let x = y.unwrap_or_else(|| (0..n).map(|i| p.column(i).iter().sum()).collect());
+    Ok(super::rounded(
+        &x,
+        Info {
             iterations,
             sweeps: 1,
             converged: true,
             ..Default::default()
         },
-    })
+    ))
 }
 
 /// The least-norm y with ⟨g_a, y⟩ ≥ 1 for every pattern (g_a the unscaled patterns), or None

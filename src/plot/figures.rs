@@ -147,7 +147,7 @@ impl super::Figure for TraceFigure {
                 lo..hi,
             )
             .map_err(err)?;
-        let fy = ticks(lo, hi, 5);
+        let fy = ticks(chart.y_range(), 5);
         house_mesh(
             &mut chart.configure_mesh(),
             &format!("{}s", self.unit),
@@ -264,7 +264,7 @@ where
         .y_label_area_size(pt(28.0) as u32)
         .build_cartesian_2d(x0 - pad..x1 + pad, lo..hi)
         .map_err(err)?;
-    let (fx, fy) = (ticks(x0 - pad, x1 + pad, 5), ticks(lo, hi, 5));
+    let (fx, fy) = (ticks(chart.x_range(), 5), ticks(chart.y_range(), 5));
     house_mesh(&mut chart.configure_mesh(), &p.x_label, &p.y_label, (5, 5))
         .x_label_formatter(&fx)
         .y_label_formatter(&fy)
@@ -423,7 +423,7 @@ impl OverlapFigure {
             .y_label_area_size(pt(30.0) as u32)
             .build_cartesian_2d(-1.0f64..1.0f64, 0.0f64..top)
             .map_err(err)?;
-        let (fx, fy) = (ticks(-1.0, 1.0, 5), ticks(0.0, top, 5));
+        let (fx, fy) = (ticks(chart.x_range(), 5), ticks(chart.y_range(), 5));
         house_mesh(
             &mut chart.configure_mesh(),
             "overlap σᵃ·σᵇ/n",
@@ -489,7 +489,7 @@ impl OverlapFigure {
             .y_label_area_size(pt(22.0) as u32)
             .build_cartesian_2d(lo..1.0f64, 0.0f64..1.45)
             .map_err(err)?;
-        let fx = ticks(lo, 1.0, 3);
+        let fx = ticks(chart.x_range(), 3);
         house_mesh(&mut chart.configure_mesh(), &d.axis, "P(≤ q)", (3, 4))
             .x_label_formatter(&fx)
             .y_label_formatter(&|y| {
@@ -741,7 +741,7 @@ where
         // A margin left of n^-ω = 0, so the extrapolated points are drawn whole.
         .build_cartesian_2d(-0.04 * xmax..xmax, lo..hi)
         .map_err(err)?;
-    let (fx, fy) = (ticks(-0.04 * xmax, xmax, 5), ticks(lo, hi, 6));
+    let (fx, fy) = (ticks(chart.x_range(), 5), ticks(chart.y_range(), 6));
     house_mesh(
         &mut chart.configure_mesh(),
         "",
@@ -1012,11 +1012,11 @@ fn tick_step(lo: f64, hi: f64, count: usize) -> f64 {
     scale
 }
 
-/// Tick labels for a linear axis from `lo` to `hi` with about `count` ticks: every label with
+/// Tick labels for a linear axis over `range` (read from the chart) with at most `count` ticks: every label with
 /// the same number of decimals (those of the tick step plotters chooses, a 1, 2 or 5 times a
 /// power of ten), negative values with a true minus sign (U+2212), and no "−0".
-pub(crate) fn ticks(lo: f64, hi: f64, count: usize) -> impl Fn(&f64) -> String {
-    let step = tick_step(lo, hi, count);
+pub(crate) fn ticks(range: std::ops::Range<f64>, count: usize) -> impl Fn(&f64) -> String {
+    let step = tick_step(range.start, range.end, count);
     let decimals = (-(step.log10() + 1e-9).floor()).max(0.0) as usize;
     move |v: &f64| {
         let text = format!("{:.*}", decimals, v);
@@ -1262,19 +1262,19 @@ mod tests {
     /// typesetting).
     #[test]
     fn tick_labels() {
-        let f = ticks(-0.1, 0.1, 5);
+        let f = ticks(-0.1..0.1, 5);
         let labels: Vec<String> = [-0.1, -0.05, 0.0, 0.05, 0.1].iter().map(&f).collect();
         assert_eq!(
             labels,
             ["\u{2212}0.10", "\u{2212}0.05", "0.00", "0.05", "0.10"]
         );
-        assert_eq!(ticks(0.0, 1.0, 5)(&0.5), "0.5");
-        assert_eq!(ticks(0.6, 0.8, 5)(&0.75), "0.75");
-        assert_eq!(ticks(0.6, 0.8, 5)(&0.7), "0.70");
-        assert_eq!(ticks(-1e-3, 1e-3, 4)(&-1e-9), "0.000");
+        assert_eq!(ticks(0.0..1.0, 5)(&0.5), "0.5");
+        assert_eq!(ticks(0.6..0.8, 5)(&0.75), "0.75");
+        assert_eq!(ticks(0.6..0.8, 5)(&0.7), "0.70");
+        assert_eq!(ticks(-1e-3..1e-3, 4)(&-1e-9), "0.000");
         // A range where plotters puts 6 labels 0.05 apart (0.55 … 0.80): two decimals.
         assert_eq!(tick_step(0.53, 0.84, 6), 0.05);
-        assert_eq!(ticks(0.53, 0.84, 6)(&0.8), "0.80");
+        assert_eq!(ticks(0.53..0.84, 6)(&0.8), "0.80");
     }
 
     #[test]
