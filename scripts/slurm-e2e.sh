@@ -26,7 +26,7 @@ work=$(mktemp -d)
 cat > "$work/spec.toml" <<'SPEC'
 [experiment]
 name = "cluster-check"
-note = "Does a sharded run on a job array give the same table as one process?"
+note = "Does a run split into parts on a job array give the same table as one process?"
 [model]
 family = "sk"
 couplings = "pm1"
@@ -49,7 +49,7 @@ single=$work/single/$name/cells.parquet
 t1=$(date +%s)
 
 # 1. The whole plan as a job array with a dependent table job.
-"$kiln" slurm "$spec" --tasks 4 --results "$work/array" --cache "$work/array-cache" >/dev/null
+"$kiln" slurm "$spec" --parts 4 --results "$work/array" --cache "$work/array-cache" >/dev/null
 bash "$work/array/$name/slurm/submit.sh" --wait
 "$kiln" compare "$single" "$work/array/$name/cells.parquet"
 t2=$(date +%s)
@@ -72,13 +72,13 @@ wait_gone() {
     done
 }
 not_done() {
-    "$kiln" status "$spec" --cache "$1" --shards 4 --json \
-        | python3 -c 'import json,sys; v=json.load(sys.stdin); s=[x for x in v["shards"] if x["shard"]==sys.argv[1]][0]; print(s["missing"] + s["running"])' "$2"
+    "$kiln" status "$spec" --cache "$1" --parts 4 --json \
+        | python3 -c 'import json,sys; v=json.load(sys.stdin); s=[x for x in v["parts"] if x["part"]==sys.argv[1]][0]; print(s["missing"] + s["running"])' "$2"
 }
 
 # 2. scancel (SIGTERM) one task mid-run: kiln releases its claims and exits 143; the task is
 #    resubmitted as if on another node (KILN_HOST) and the plan completes.
-"$kiln" slurm "$spec" --tasks 4 --results "$work/cancel" --cache "$work/cancel-cache" >/dev/null
+"$kiln" slurm "$spec" --parts 4 --results "$work/cancel" --cache "$work/cancel-cache" >/dev/null
 dir=$work/cancel/$name/slurm
 array=$(sbatch --parsable "$dir/array.sbatch"); array=${array%%;*}
 wait_running "${array}_1" "$work/cancel-cache"
@@ -87,14 +87,14 @@ scancel "${array}_1"
 wait_gone "$array"
 left=$(not_done "$work/cancel-cache" 1/4)
 if [ "$left" -eq 0 ]; then
-    say "FAILED: the cancel did not land mid-run (shard 1 had already finished)"
+    say "FAILED: the cancel did not land mid-run (part 1 had already finished)"
     exit 1
 fi
-grep -q "SIGTERM" "$dir/shard-1.out" || { say "FAILED: shard 1 did not see SIGTERM"; cat "$dir/shard-1.out"; exit 1; }
+grep -q "SIGTERM" "$dir/part-1.out" || { say "FAILED: part 1 did not see SIGTERM"; cat "$dir/part-1.out"; exit 1; }
 if [ -n "$(claims "$work/cancel-cache")" ]; then
     say "FAILED: claims left after SIGTERM: $(claims "$work/cancel-cache")"; exit 1
 fi
-say "scancel of shard 1: SIGTERM seen, claims released, $left cells not done; resubmitting it as node kiln-node-b"
+say "scancel of part 1: SIGTERM seen, claims released, $left cells not done; resubmitting it as node kiln-node-b"
 sbatch --wait --array=1 --export=ALL,KILN_HOST=kiln-node-b "$dir/array.sbatch" >/dev/null
 sbatch --wait "$dir/assemble.sbatch" >/dev/null
 "$kiln" compare "$single" "$work/cancel/$name/cells.parquet"
@@ -105,7 +105,7 @@ say "cancelled and resubmitted task: table identical, no lost or duplicated cell
 #    5 s lease: its claims stay behind. Resubmitted as node kiln-node-c, which cannot check
 #    another node's processes, it takes the claims over once their lease expires, with no
 #    manual step. (Tasks on the same node would have swept the dead process's claims at once.)
-"$kiln" slurm "$spec" --tasks 4 --results "$work/killed" --cache "$work/killed-cache" >/dev/null
+"$kiln" slurm "$spec" --parts 4 --results "$work/killed" --cache "$work/killed-cache" >/dev/null
 dir=$work/killed/$name/slurm
 array=$(sbatch --parsable --array=2 --export=ALL,KILN_HOST=kiln-node-a,KILN_LEASE=5 "$dir/array.sbatch")
 array=${array%%;*}
@@ -117,13 +117,13 @@ stale=$(claims "$work/killed-cache" | wc -l)
 if [ "$stale" -eq 0 ]; then
     say "FAILED: the kill left no claim behind (it landed between cells)"; exit 1
 fi
-say "SIGKILL of shard 2 (node kiln-node-a) left $stale claims; resubmitting it as node kiln-node-c"
+say "SIGKILL of part 2 (node kiln-node-a) left $stale claims; resubmitting it as node kiln-node-c"
 sbatch --wait --array=2 --export=ALL,KILN_HOST=kiln-node-c "$dir/array.sbatch" >/dev/null
-took=$(grep -c "took over cell" "$dir/shard-2.out" || true)
+took=$(grep -c "took over cell" "$dir/part-2.out" || true)
 if [ "$took" -eq 0 ]; then
-    say "FAILED: the resubmitted task took over no claim"; cat "$dir/shard-2.out"; exit 1
+    say "FAILED: the resubmitted task took over no claim"; cat "$dir/part-2.out"; exit 1
 fi
-sbatch --wait --array=0,1,3 "$dir/array.sbatch" >/dev/null
+sbatch --wait --array=1,3,4 "$dir/array.sbatch" >/dev/null
 sbatch --wait "$dir/assemble.sbatch" >/dev/null
 "$kiln" compare "$single" "$work/killed/$name/cells.parquet"
 [ -z "$(claims "$work/killed-cache")" ] || { say "FAILED: claims left at the end"; exit 1; }

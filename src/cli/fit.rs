@@ -32,9 +32,46 @@ pub struct FitArgs {
     /// else 1000.
     #[arg(long, value_name = "B")]
     pub bootstrap: Option<usize>,
+    /// Cache folder: where `kiln theory` and `kiln plot` stored the model's Parisi value and
+    /// algorithmic threshold, printed beside the fits when present (fit never solves them).
+    /// Default: `<results>/.cache`.
+    #[arg(long, value_name = "DIR")]
+    pub cache: Option<PathBuf>,
     /// Print a JSON summary instead of the table.
     #[arg(long)]
     pub json: bool,
+}
+
+/// The cube model's stored theory values (best Parisi bound with its solution, algorithmic
+/// threshold), as the figures draw them; nothing for other families or with a field.
+fn stored_theory(
+    model: Option<&crate::model::ModelSpec>,
+    cache: &std::path::Path,
+) -> anyhow::Result<crate::theory::cached::Stored> {
+    let Some((m, xi)) = model.and_then(|m| Some(m).zip(m.mixture())) else {
+        return Ok((None, None));
+    };
+    if !m.family.spins() || m.field != 0.0 {
+        return Ok((None, None));
+    }
+    let store = crate::store::cache::Cache::new(cache);
+    Ok(crate::theory::cached::stored(&store, xi)?)
+}
+
+fn theory_text(parisi: &Option<(f64, String)>, alg: Option<f64>, has_model: bool) -> String {
+    match (parisi, alg) {
+        (Some((v, which)), alg) => {
+            let mut s = format!("theory (from the cache): Parisi value {v:.7} ({which})");
+            if let Some(a) = alg.filter(|a| v - a > 1e-5) {
+                s += &format!(", algorithmic threshold {a:.7}");
+            }
+            s + "\n"
+        }
+        (None, _) if has_model => {
+            "theory: not in the cache yet (`kiln theory <spec>` or `kiln plot` computes and stores it)\n".into()
+        }
+        _ => String::new(),
+    }
 }
 
 pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
@@ -54,6 +91,12 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         ..Params::default()
     };
 
+    let cache = a.cache.clone().unwrap_or_else(|| a.results.join(".cache"));
+    let (parisi, alg) = stored_theory(exp.model.as_ref(), &cache)?;
+    let cube_model = exp
+        .model
+        .as_ref()
+        .is_some_and(|m| m.family.spins() && m.mixture().is_some() && m.field == 0.0);
     let cells = crate::store::table::Cells::read(&table_path)?;
     let study = fit::study::extrapolate(&cells, &params, min_n, settings.reference_only, bootstrap);
     let (rows, diffs, problems) = (&study.rows, &study.differences, &study.problems);
@@ -113,6 +156,11 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
                 "se_bootstrap": d.se,
             })).collect::<Vec<_>>(),
             "problems": problems,
+            "theory": serde_json::json!({
+                "parisi": parisi.as_ref().map(|p| p.0),
+                "parisi_solution": parisi.as_ref().map(|p| p.1.clone()),
+                "algorithmic": alg,
+            }),
             "extrapolation": ext_path.display().to_string(),
             "latex": tex_path.display().to_string(),
         });
@@ -160,6 +208,7 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
             s += &solved_text(&solved);
             s += "\n";
         }
+        s += &theory_text(&parisi, alg, cube_model);
         for d in diffs {
             s += &format!(
                 "difference {} − {} at ε = {}: {}\n",

@@ -43,9 +43,9 @@ enum Command {
     Run(RunArgs),
     /// Check every entry of a cache; move damaged ones aside; clear leftovers of killed runs.
     Verify(verify::VerifyArgs),
-    /// Count cells done, running (claimed), failed and missing, per shard.
+    /// Count cells done, running (claimed), failed and missing, per part.
     Status(status::StatusArgs),
-    /// Write a Slurm job array that runs a spec in shards over a shared cache.
+    /// Write a Slurm job array that runs a spec in parts over a shared cache.
     Slurm(slurm::SlurmArgs),
     /// Whether two tables hold the same numbers, bit for bit (provenance ignored).
     Compare(compare::CompareArgs),
@@ -105,6 +105,28 @@ pub struct CommonArgs {
     pub json: bool,
 }
 
+/// Arguments of commands that read a spec and a cache but compute nothing (no `--jobs`,
+/// no `--max-memory`: they would be ignored).
+#[derive(Args, Debug, Clone)]
+pub struct SpecArgs {
+    /// Experiment spec (TOML). Without it, the built-in default experiment.
+    pub spec: Option<PathBuf>,
+    #[command(flatten)]
+    pub folders: Folders,
+    /// Print a machine-readable JSON summary on stdout instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl SpecArgs {
+    pub fn load_spec(&self) -> Result<Spec, SpecError> {
+        match &self.spec {
+            Some(p) => spec::load(p),
+            None => Ok(spec::default_spec()),
+        }
+    }
+}
+
 #[derive(Args, Debug)]
 pub struct RunArgs {
     #[command(flatten)]
@@ -112,10 +134,11 @@ pub struct RunArgs {
     /// No progress bar and no summary text (errors are still printed).
     #[arg(long, short = 'q')]
     pub quiet: bool,
-    /// Run only slice i of N (0-based) of the plan, balanced by estimated cost; writes to the
-    /// cache only. A plain `kiln run` afterwards assembles the table.
+    /// Run only part i of N of the plan (counted from 1: 1/4 is the first of four, 4/4 the
+    /// last), parts balanced by estimated cost; writes to the cache only. A plain `kiln run`
+    /// afterwards assembles the table.
     #[arg(long, value_name = "i/N")]
-    pub shard: Option<String>,
+    pub part: Option<String>,
     /// Lease of this runner's cell claims, in seconds: another runner (on any host) takes over
     /// a claim not renewed for this long. The renewal runs every sixth of it.
     #[arg(

@@ -22,11 +22,11 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     let fit_in_memory = memory::cells_that_fit(&spec, memory::budget(max_memory))?;
     let jobs = jobs_wanted.min(fit_in_memory);
     let shard = a
-        .shard
+        .part
         .as_deref()
         .map(Shard::parse)
         .transpose()
-        .map_err(|m| super::InputError(format!("--shard: {m}")))?;
+        .map_err(|m| super::InputError(format!("--part: {m}")))?;
     let mut plan = expand(&spec);
     if let Some(sh) = shard {
         plan.cells = shard::cells_of(&spec, &plan, sh);
@@ -155,13 +155,13 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
     ))
 }
 
-/// A shard writes only to the cache; it reports its counts.
+/// A part writes only to the cache; it reports its counts.
 fn shard_summary(a: &RunArgs, name: &str, sh: Shard, report: &exec::Report, wall: f64) -> ExitCode {
     let k = &report.counts;
     if a.common.json {
         let v = serde_json::json!({
             "experiment": name,
-            "shard": format!("{}/{}", sh.index, sh.count),
+            "part": sh.label(),
             "cells": counts_json(k),
             "wall_seconds": wall,
             "interrupted": report.interrupted,
@@ -171,8 +171,12 @@ fn shard_summary(a: &RunArgs, name: &str, sh: Shard, report: &exec::Report, wall
         out(&format!("{v}\n"));
     } else if !a.quiet {
         out(&format!(
-            "{name} shard {}/{}: {} cells · {} computed · {} cached · {} failed · {wall:.1} s\n(the table is written by a plain `kiln run` once every shard is done)\n",
-            sh.index, sh.count, k.total, k.computed, k.cached, k.failed
+            "{name} part {}: {} cells · {} computed · {} cached · {} failed · {wall:.1} s\n(the table is written by a plain `kiln run` once every part is done)\n",
+            sh.label(),
+            k.total,
+            k.computed,
+            k.cached,
+            k.failed
         ));
     }
     finish(report, "the cache holds what is done")

@@ -1,10 +1,11 @@
 //! `kiln slurm`: writes the batch scripts that run a spec as a Slurm job array over a shared
 //! cache, plus a dependent job that assembles the table, and prints how to submit them.
 //!
-//! Slurm distributes; kiln only shards deterministically (`kiln run --shard i/N`), so a task
-//! that is cancelled and resubmitted recomputes only what its shard is missing.
+//! Slurm distributes; kiln only splits deterministically into parts (`kiln run --part i/N`,
+//! counted from 1, the array's task ids 1..N), so a task that is cancelled and resubmitted
+//! recomputes only what its part is missing.
 
-use super::{CommonArgs, InputError, out};
+use super::{InputError, SpecArgs, out};
 use crate::exec::memory;
 use crate::spec::plan::expand;
 use crate::spec::shard;
@@ -15,10 +16,10 @@ use std::process::ExitCode;
 #[derive(Args, Debug)]
 pub struct SlurmArgs {
     #[command(flatten)]
-    pub common: CommonArgs,
-    /// Number of array tasks (shards).
+    pub common: SpecArgs,
+    /// Number of parts, one array task each (task ids 1..N run `kiln run --part i/N`).
     #[arg(long, value_name = "N")]
-    pub tasks: u32,
+    pub parts: u32,
     /// Partition to submit to (default: the cluster's default).
     #[arg(long, value_name = "P")]
     pub partition: Option<String>,
@@ -56,8 +57,8 @@ fn absolute(p: &Path) -> PathBuf {
 
 pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
     let c = &a.common;
-    if a.tasks == 0 || a.cpus == 0 {
-        return Err(InputError("--tasks and --cpus must be at least 1".into()).into());
+    if a.parts == 0 || a.cpus == 0 {
+        return Err(InputError("--parts and --cpus must be at least 1".into()).into());
     }
     let spec = c.load_spec()?;
     let plan = expand(&spec);
@@ -68,8 +69,8 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
         }
         None => ((largest * a.cpus as u128) / (1 << 20)) as u64 + 512,
     };
-    // Time: the most loaded shard's cost at the conservative rate, ×2, at least 10 minutes.
-    let worst = shard::assign(&spec, &plan, a.tasks)
+    // Time: the most loaded part's cost at the conservative rate, ×2, at least 10 minutes.
+    let worst = shard::assign(&spec, &plan, a.parts)
         .load
         .into_iter()
         .fold(0.0, f64::max);
@@ -103,24 +104,23 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
     let common_args = format!("--results {} --cache {}", quote(&results), quote(&cache));
     let array = format!(
         "#!/bin/bash\n\
-         # kiln: {name}, {tasks} shards of {cells} cells over the cache {cache_s}\n\
+         # kiln: {name}, {tasks} parts of {cells} cells over the cache {cache_s}\n\
          #SBATCH --job-name=kiln-{name}\n\
-         #SBATCH --array=0-{last}\n\
+         #SBATCH --array=1-{tasks}\n\
          #SBATCH --cpus-per-task={cpus}\n\
          #SBATCH --mem={mem_mb}M\n\
          #SBATCH --time={time}\n\
          {part}\
-         #SBATCH --output={out}/shard-%a.out\n\
+         #SBATCH --output={out}/part-%a.out\n\
          # SIGTERM a minute before the time limit: kiln finishes or abandons its cells in flight\n\
          # (--grace), releases its claims and exits 143; the next submission resumes.\n\
          #SBATCH --signal=B:TERM@60\n\
          set -euo pipefail\n\
-         exec {kiln} run {spec} --shard \"$SLURM_ARRAY_TASK_ID/{tasks}\" {common_args} --jobs \"${{SLURM_CPUS_PER_TASK:-{cpus}}}\" --quiet\n",
+         exec {kiln} run {spec} --part \"$SLURM_ARRAY_TASK_ID/{tasks}\" {common_args} --jobs \"${{SLURM_CPUS_PER_TASK:-{cpus}}}\" --quiet\n",
         name = spec.name,
-        tasks = a.tasks,
+        tasks = a.parts,
         cells = plan.cells.len(),
         cache_s = cache.display(),
-        last = a.tasks - 1,
         cpus = a.cpus,
         out = dir.display(),
         kiln = quote(&kiln),
@@ -128,7 +128,7 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
     );
     let assemble = format!(
         "#!/bin/bash\n\
-         # kiln: assemble the table of {name} once every shard is done (computes anything missing)\n\
+         # kiln: assemble the table of {name} once every part is done (computes anything missing)\n\
          #SBATCH --job-name=kiln-{name}-table\n\
          #SBATCH --cpus-per-task=1\n\
          #SBATCH --mem={mem_mb}M\n\
@@ -145,13 +145,13 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
     );
     let submit = format!(
         "#!/bin/bash\n\
-         # Submits the shard array, then the table job to run after every shard succeeded.\n\
+         # Submits the array of parts, then the table job to run after every part succeeded.\n\
          set -euo pipefail\n\
          cd {dir}\n\
          array=$(sbatch --parsable \"$@\" array.sbatch)\n\
          array=${{array%%;*}}\n\
          table=$(sbatch --parsable --dependency=afterok:$array \"$@\" assemble.sbatch)\n\
-         echo \"submitted shards $array and table job ${{table%%;*}}\"\n",
+         echo \"submitted parts $array and table job ${{table%%;*}}\"\n",
         dir = quote(&dir)
     );
     let write = |name: &str, text: &str| -> anyhow::Result<PathBuf> {
@@ -167,7 +167,7 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
     if c.json {
         let v = serde_json::json!({
             "experiment": spec.name,
-            "tasks": a.tasks,
+            "parts": a.parts,
             "mem_mb": mem_mb,
             "time": time,
             "array": array_p.display().to_string(),
@@ -178,11 +178,11 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
         out(&format!("{v}\n"));
     } else {
         out(&format!(
-            "wrote {}\n      {}\n      {}\n{} tasks × {} CPU, {mem_mb} MiB and {time} each; cache {}\nsubmit with:\n  bash {}\n",
+            "wrote {}\n      {}\n      {}\n{} parts (array tasks) × {} CPU, {mem_mb} MiB and {time} each; cache {}\nsubmit with:\n  bash {}\n",
             array_p.display(),
             assemble_p.display(),
             submit_p.display(),
-            a.tasks,
+            a.parts,
             a.cpus,
             cache.display(),
             quote(&submit_p)

@@ -1,7 +1,7 @@
 //! `kiln status`: where a spec stands in a cache — cells done, running (claimed), failed,
-//! missing — overall and per shard. Reads only; verifies nothing (see `kiln verify`).
+//! missing — overall and per part. Reads only; verifies nothing (see `kiln verify`).
 
-use super::{CommonArgs, out};
+use super::{SpecArgs, out};
 use crate::spec::plan::expand;
 use crate::spec::shard;
 use crate::store::cache::Cache;
@@ -13,10 +13,11 @@ use std::process::ExitCode;
 #[derive(Args, Debug)]
 pub struct StatusArgs {
     #[command(flatten)]
-    pub common: CommonArgs,
-    /// Report per shard of an N-way split (as `kiln run --shard i/N` makes it).
+    pub common: SpecArgs,
+    /// Report per part of an N-way split, parts counted from 1 (as `kiln run --part i/N` and
+    /// `kiln slurm --parts N` make it).
     #[arg(long, value_name = "N", default_value_t = 1)]
-    pub shards: u32,
+    pub parts: u32,
 }
 
 #[derive(Default, Clone, Copy)]
@@ -30,15 +31,15 @@ struct Tally {
 
 pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
     let spec = a.common.load_spec()?;
-    if a.shards == 0 {
-        return Err(super::InputError("--shards 0: give at least 1".into()).into());
+    if a.parts == 0 {
+        return Err(super::InputError("--parts 0: give at least 1".into()).into());
     }
     let plan = expand(&spec);
     let cache = Cache::new(a.common.folders.cache_dir());
-    let assign = shard::assign(&spec, &plan, a.shards).shard_of;
-    let mut per: BTreeMap<u32, Tally> = (0..a.shards).map(|i| (i, Tally::default())).collect();
+    let assign = shard::assign(&spec, &plan, a.parts).shard_of;
+    let mut per: BTreeMap<u32, Tally> = (0..a.parts).map(|i| (i, Tally::default())).collect();
     for c in plan.distinct() {
-        let t = per.get_mut(&assign[&c.base]).expect("shard");
+        let t = per.get_mut(&assign[&c.base]).expect("part");
         t.cells += 1;
         if cache.has_record(&c.key) {
             t.done += 1;
@@ -64,9 +65,9 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
             "experiment": spec.name,
             "cache": cache.root().display().to_string(),
             "all": row(&all),
-            "shards": per.iter().map(|(i, t)| {
+            "parts": per.iter().map(|(i, t)| {
                 let mut r = row(t);
-                r["shard"] = serde_json::json!(format!("{i}/{}", a.shards));
+                r["part"] = serde_json::json!(format!("{}/{}", i + 1, a.parts));
                 r
             }).collect::<Vec<_>>(),
         });
@@ -76,7 +77,7 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
             "{} in {}\n{:>8} {:>8} {:>8} {:>8} {:>8} {:>8}\n",
             spec.name,
             cache.root().display(),
-            "shard",
+            "part",
             "cells",
             "done",
             "running",
@@ -89,9 +90,9 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
                 t.cells, t.done, t.running, t.failed, t.missing
             )
         };
-        if a.shards > 1 {
+        if a.parts > 1 {
             for (i, t) in &per {
-                s += &line(format!("{i}/{}", a.shards), t);
+                s += &line(format!("{}/{}", i + 1, a.parts), t);
             }
         }
         s += &line("all".into(), &all);

@@ -1,4 +1,8 @@
-//! Deterministic, cost-balanced slices of a plan for `--shard i/N`.
+//! Deterministic, cost-balanced slices of a plan for `kiln run --part i/N`.
+//!
+//! Users see "parts", counted from 1 (`--part 1/4` is the first of four, `4/4` the last), in
+//! `run --part`, `status --parts` and `slurm --parts` alike; inside the code a part is a
+//! [`Shard`] with a 0-based index.
 //!
 //! The unit of work is a group: all ε levels of one (instance, algorithm), which share the
 //! reference run, so a shard never needs a reference computed by another. Groups are dealt
@@ -11,7 +15,7 @@ use super::plan::{Cell, Plan};
 use crate::cell::Key;
 use std::collections::BTreeMap;
 
-/// `i/N` with 0 ≤ i < N.
+/// One part of an N-way split, stored 0-based (`index` = i − 1 for the user's `i/N`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct Shard {
     pub index: u32,
@@ -19,25 +23,32 @@ pub struct Shard {
 }
 
 impl Shard {
-    /// Parses `i/N` (0-based i, as `$SLURM_ARRAY_TASK_ID/N` gives it).
+    /// Parses the user's `i/N`, 1 ≤ i ≤ N (the first of four is `1/4`, the last `4/4`; a
+    /// Slurm array `--array=1-N` hands `$SLURM_ARRAY_TASK_ID` over as it is).
     pub fn parse(s: &str) -> Result<Shard, String> {
-        let (a, b) = s
-            .split_once('/')
-            .ok_or_else(|| format!("`{s}` is not a shard: write i/N, e.g. 0/4"))?;
+        let (a, b) = s.split_once('/').ok_or_else(|| {
+            format!("`{s}` is not a part: write i/N, e.g. 1/4 for the first of four")
+        })?;
         let index: u32 = a
             .trim()
             .parse()
-            .map_err(|_| format!("`{a}` is not a shard index"))?;
+            .map_err(|_| format!("`{a}` is not a part number (a whole number from 1 to N)"))?;
         let count: u32 = b
             .trim()
             .parse()
-            .map_err(|_| format!("`{b}` is not a shard count"))?;
-        if count == 0 || index >= count {
+            .map_err(|_| format!("`{b}` is not a number of parts (a whole number ≥ 1)"))?;
+        if count == 0 || index == 0 || index > count {
             return Err(format!(
-                "shard {index}/{count}: the index must be in 0..{count} (0-based) and the count ≥ 1"
+                "part {index}/{count}: parts are counted from 1, so i must be in 1..={count} (and N ≥ 1)"
             ));
         }
+        let index = index - 1;
         Ok(Shard { index, count })
+    }
+
+    /// The user's `i/N` (1-based).
+    pub fn label(&self) -> String {
+        format!("{}/{}", self.index + 1, self.count)
     }
 }
 

@@ -135,14 +135,8 @@ pub fn at_temperature(
     Ok((sol, e))
 }
 
-/// The k-step RSB solution, from the cache or solved and stored.
-pub fn k_rsb(
-    cache: &Cache,
-    xi: &Mixture,
-    k: usize,
-    s: &cube::Settings,
-) -> Result<cube::Solution, StoreError> {
-    let hex_key = hex::encode(
+fn k_rsb_key(xi: &Mixture, k: usize, s: &cube::Settings) -> String {
+    hex::encode(
         Canon::map()
             .with("mixture", xi.canon())
             .with("k", k)
@@ -151,15 +145,32 @@ pub fn k_rsb(
             .with("nodes", s.nodes)
             .with("revision", SOLVER_REVISION)
             .hash("theory-krsb"),
-    );
-    if let Lookup::Hit(v) = crate::store::theory::read(cache, &hex_key)?
+    )
+}
+
+fn stored_k_rsb(cache: &Cache, hex_key: &str) -> Result<Option<cube::Solution>, StoreError> {
+    if let Lookup::Hit(v) = crate::store::theory::read(cache, hex_key)?
         && let (Some(value), Some(q), Some(m)) =
             (v["value"].as_f64(), floats(&v, "q"), floats(&v, "m"))
     {
-        return Ok(cube::Solution {
+        return Ok(Some(cube::Solution {
             value,
             steps: cube::Steps { q, m },
-        });
+        }));
+    }
+    Ok(None)
+}
+
+/// The k-step RSB solution, from the cache or solved and stored.
+pub fn k_rsb(
+    cache: &Cache,
+    xi: &Mixture,
+    k: usize,
+    s: &cube::Settings,
+) -> Result<cube::Solution, StoreError> {
+    let hex_key = k_rsb_key(xi, k, s);
+    if let Some(sol) = stored_k_rsb(cache, &hex_key)? {
+        return Ok(sol);
     }
     let sol = cube::k_rsb(xi, k, s);
     let v =
@@ -197,6 +208,42 @@ pub fn parisi_best(cache: &Cache, xi: &Mixture) -> Result<(f64, String), StoreEr
         }
     }
     Ok(least(bounds))
+}
+
+/// [`stored`]: the best Parisi bound with its solution's name, and the algorithmic threshold.
+pub type Stored = (Option<(f64, String)>, Option<f64>);
+
+/// What the cache already holds, without solving anything (for `kiln fit`, which must stay
+/// fast): the best Parisi bound as [`parisi_best`] gives it, and the algorithmic threshold's
+/// value, each None where its solutions were never stored (by `kiln theory` or `kiln plot`).
+pub fn stored(cache: &Cache, xi: &Mixture) -> Result<Stored, StoreError> {
+    let s = full::FullSettings::default();
+    let read = |key: &str| -> Result<Option<full::FullRsb>, StoreError> {
+        Ok(match crate::store::theory::read(cache, key)? {
+            Lookup::Hit(v) => read_full(&v),
+            _ => None,
+        })
+    };
+    let alg = read(&settings_key(xi, &s, "theory-cube-alg"))?.map(|a| a.value);
+    let Some(full) = read(&settings_key(xi, &s, "theory-full-rsb"))? else {
+        return Ok((None, alg));
+    };
+    let mut bounds = vec![(
+        full.value,
+        format!("full RSB on {} free q-intervals", full.m.len()),
+    )];
+    let ks = cube::Settings::default();
+    for k in 1..=2 {
+        match stored_k_rsb(cache, &k_rsb_key(xi, k, &ks))? {
+            Some(sol) => {
+                if let Some(v) = k_step_value(xi, &sol) {
+                    bounds.push((v, format!("{k}-step RSB")));
+                }
+            }
+            None => return Ok((None, alg)),
+        }
+    }
+    Ok((Some(least(bounds)), alg))
 }
 
 /// The least of several upper bounds on the Parisi value, with its name (the first of equals).

@@ -1,22 +1,23 @@
-//! Sharded runs, status, the Slurm scripts and table comparison (the real cluster test is
+//! Runs split into parts, status, the Slurm scripts and table comparison (the real cluster test is
 //! scripts/slurm-e2e.sh, run by .ci/run).
 
 use crate::util::{SMALL, Work, counts, stderr};
 
 #[test]
-fn shards_cover_the_plan_once_and_write_no_table() {
+fn parts_cover_the_plan_once_and_write_no_table() {
     let w = Work::new();
     let s = w.spec("s.toml", SMALL);
     let mut computed = 0;
-    for i in 0..3 {
-        let v = w.run_json(&s, &["--shard", &format!("{i}/3")]);
-        assert_eq!(v["shard"], format!("{i}/3"));
+    // Parts count from 1: 1/3, 2/3, 3/3.
+    for i in 1..=3 {
+        let v = w.run_json(&s, &["--part", &format!("{i}/3")]);
+        assert_eq!(v["part"], format!("{i}/3"));
         computed += counts(&v).0;
     }
-    assert_eq!(computed, 24, "shards overlap or leave gaps");
+    assert_eq!(computed, 24, "parts overlap or leave gaps");
     assert!(!w.path().join("results/small/cells.parquet").exists());
-    // Rerunning a shard computes nothing; the assembling run finds everything cached.
-    assert_eq!(counts(&w.run_json(&s, &["--shard", "1/3"])).0, 0);
+    // Rerunning a part computes nothing; the assembling run finds everything cached.
+    assert_eq!(counts(&w.run_json(&s, &["--part", "2/3"])).0, 0);
     assert_eq!(counts(&w.run_json(&s, &[])), (0, 24));
     // And the assembled table equals a single-process run.
     w.run_json(&s, &["--results", "single", "--cache", "single-cache"]);
@@ -29,27 +30,31 @@ fn shards_cover_the_plan_once_and_write_no_table() {
 }
 
 #[test]
-fn bad_shard_is_refused() {
+fn bad_part_is_refused() {
     let w = Work::new();
     let s = w.spec("s.toml", SMALL);
-    for bad in ["3/3", "1/0", "x"] {
-        let o = w.kiln(&["run", s.to_str().unwrap(), "--shard", bad]);
+    // 0/3 is refused because parts count from 1 (the message says so).
+    for bad in ["0/3", "4/3", "1/0", "x"] {
+        let o = w.kiln(&["run", s.to_str().unwrap(), "--part", bad]);
         assert_eq!(o.status.code(), Some(2), "{bad}: {}", stderr(&o));
-        assert!(stderr(&o).contains("--shard"), "{}", stderr(&o));
+        assert!(stderr(&o).contains("--part"), "{}", stderr(&o));
     }
+    let o = w.kiln(&["run", s.to_str().unwrap(), "--part", "0/3"]);
+    assert!(stderr(&o).contains("counted from 1"), "{}", stderr(&o));
     assert!(!w.path().join("results").exists());
 }
 
 #[test]
-fn status_counts_done_and_missing_per_shard() {
+fn status_counts_done_and_missing_per_part() {
     let w = Work::new();
     let s = w.spec("s.toml", SMALL);
-    w.run_json(&s, &["--shard", "0/2"]);
-    let o = w.kiln(&["status", s.to_str().unwrap(), "--shards", "2", "--json"]);
+    w.run_json(&s, &["--part", "1/2"]);
+    let o = w.kiln(&["status", s.to_str().unwrap(), "--parts", "2", "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let shard0 = &v["shards"][0];
-    let shard1 = &v["shards"][1];
+    let shard0 = &v["parts"][0];
+    let shard1 = &v["parts"][1];
+    assert_eq!(shard0["part"], "1/2");
     assert_eq!(shard0["missing"], 0);
     assert_eq!(shard0["done"], shard0["cells"]);
     assert_eq!(shard1["done"], 0);
@@ -58,13 +63,13 @@ fn status_counts_done_and_missing_per_shard() {
 }
 
 #[test]
-fn slurm_scripts_name_shards_cache_and_dependency() {
+fn slurm_scripts_name_parts_cache_and_dependency() {
     let w = Work::new();
     let s = w.spec("s.toml", SMALL);
     let o = w.kiln(&[
         "slurm",
         s.to_str().unwrap(),
-        "--tasks",
+        "--parts",
         "4",
         "--cache",
         "shared",
@@ -79,10 +84,10 @@ fn slurm_scripts_name_shards_cache_and_dependency() {
     let dir = w.path().join("results/small/slurm");
     let array = std::fs::read_to_string(dir.join("array.sbatch")).unwrap();
     for want in [
-        "#SBATCH --array=0-3",
+        "#SBATCH --array=1-4",
         "#SBATCH --cpus-per-task=2",
         "#SBATCH --partition=short",
-        "--shard \"$SLURM_ARRAY_TASK_ID/4\"",
+        "--part \"$SLURM_ARRAY_TASK_ID/4\"",
         "/shared'",
     ] {
         assert!(array.contains(want), "{want:?} not in\n{array}");
@@ -107,7 +112,39 @@ fn compare_tells_tables_apart() {
     let o = w.kiln(&["compare", "a/small/cells.parquet", "b/small/cells.parquet"]);
     assert_eq!(o.status.code(), Some(1));
     let err = stderr(&o);
-    assert!(err.contains("column `settings` differs"), "{err}");
+    assert!(err.contains("column `settings` differs in "), "{err}");
+    // The first differing values are listed with both sides.
+    assert!(
+        err.contains("\"sweeps\":20") && err.contains("\"sweeps\":21"),
+        "{err}"
+    );
     let o = w.kiln(&["compare", "a/small/cells.parquet", "a/small/cells.parquet"]);
     assert!(o.status.success());
+
+    // The same cells under another experiment name are the same numbers; folders are read
+    // as their cells.parquet.
+    let c = w.spec(
+        "c.toml",
+        &SMALL.replace("name = \"small\"", "name = \"other\""),
+    );
+    w.run_json(&c, &["--results", "a"]);
+    let o = w.kiln(&["compare", "a/small", "a/other"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    // Paired by key: a row that changed names its key prefix, the column and both values.
+    let d = w.spec(
+        "d.toml",
+        &SMALL.replace("sizes = [16, 32]", "sizes = [16, 24]"),
+    );
+    w.run_json(&d, &["--results", "d"]);
+    let o = w.kiln(&["compare", "a/small", "d/small"]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(stderr(&o).contains("rows only in A"), "{}", stderr(&o));
+    // A folder without a table is bad input (exit 2), not a failed comparison.
+    let o = w.kiln(&["compare", "a", "a/small"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("without cells.parquet"),
+        "{}",
+        stderr(&o)
+    );
 }

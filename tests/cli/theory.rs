@@ -124,8 +124,16 @@ fn figures_carry_computed_theory_lines() {
         "[experiment]\nname = \"mix\"\n[model]\nfamily = \"cube\"\nxi = { 2 = 0.5, 3 = 0.25 }\n[sweep]\nsizes = [16, 24, 32]\nseeds = 3\n[[algorithm]]\nkind = \"descent\"\n[[algorithm]]\nkind = \"anneal\"\nsweeps = 20\n",
     );
     w.run_json(&cube, &[]);
+    // `kiln fit` never solves: before any theory is stored it says so, and afterwards it
+    // prints the value the figure draws (the same cache, read by key).
+    let o = w.kiln(&["fit", cube.to_str().unwrap(), "--json"]);
+    let before: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert!(before["theory"]["parisi"].is_null(), "{before}");
     let o = w.kiln(&["plot", cube.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
+    let o = w.kiln(&["fit", cube.to_str().unwrap(), "--json"]);
+    let after: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let fitted_line = after["theory"]["parisi"].as_f64().expect("stored Parisi value");
     let o = w.kiln(&["theory", cube.to_str().unwrap(), "--k", "2", "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
@@ -145,6 +153,7 @@ fn figures_carry_computed_theory_lines() {
         .and_then(|x| x.parse().ok())
         .expect("a reference row");
     assert_eq!(line, full, "{csv}");
+    assert_eq!(fitted_line, full);
     assert!(csv.lines().filter(|l| l.contains(",mean,")).count() >= 6);
 
     let sphere = w.spec(
