@@ -8,6 +8,7 @@ mod cell;
 mod cells;
 mod check;
 mod compare;
+mod draft;
 mod fit;
 mod kinds;
 mod plot;
@@ -32,13 +33,29 @@ use std::process::ExitCode;
 #[command(name = "kiln", version, about, long_about = None)]
 pub struct Cli {
     #[command(subcommand)]
-    command: Command,
+    command: Option<Command>,
 }
+
+/// What a bare `kiln` prints: where to start, in one screen.
+const START: &str =
+    "kiln: reproducible threshold studies of optimisation algorithms on random landscapes
+
+  kiln run                      run the built-in default experiment (SK, descent and annealing,
+                                n = 64 to 512, 16 seeds, four stability levels) into results/
+  kiln draft sk -o study.toml   start a spec of your own: every key of a family and of its
+                                algorithms, commented (`-a descent,anneal` to choose them)
+  kiln check study.toml         its plan: cells, what is cached, time and memory estimates
+  kiln run study.toml           compute what is missing; then `kiln fit` and `kiln plot`
+  kiln kinds                    the families and algorithm kinds with their keys and defaults
+  kiln help <command>           the options of one command; `kiln --help` lists them all
+";
 
 #[derive(Subcommand, Debug)]
 enum Command {
     /// Validate a spec and print its plan: cells, cached, to run, memory.
     Check(CommonArgs),
+    /// Write a commented starter spec for a family and a set of algorithm kinds.
+    Draft(draft::DraftArgs),
     /// Run the missing cells of a spec and write its table and manifest.
     Run(RunArgs),
     /// Check every entry of a cache; move damaged ones aside; clear leftovers of killed runs.
@@ -226,8 +243,13 @@ where
             };
         }
     };
-    let result = match cli.command {
+    let Some(command) = cli.command else {
+        out(START);
+        return ExitCode::SUCCESS;
+    };
+    let result = match command {
         Command::Check(a) => check::run(&a),
+        Command::Draft(a) => draft::run(&a),
         Command::Run(a) => run::run(&a),
         Command::Verify(a) => verify::run(&a),
         Command::Status(a) => status::run(&a),

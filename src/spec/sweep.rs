@@ -99,7 +99,7 @@ pub(super) fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<
     let key = "sweep.seeds";
     let hint = || {
         Some(
-            "give a count (seeds = 16), a list (seeds = [0, 4, 9]) or a range (seeds = \"10..20\")"
+            "give a count (seeds = 16, the same as \"0..16\"), a list (seeds = [0, 4, 9]) or a range (seeds = \"10..20\": seeds 10 to 19; a range's end is never included)"
                 .to_string(),
         )
     };
@@ -158,6 +158,9 @@ pub(super) fn seeds_from(v: &Spanned<toml::Value>, loc: &Locator) -> Result<Vec<
                     Ok((a..b).collect())
                 }
                 Some((a, b)) => Err(err(format!("the range \"{s}\" is empty ({a} ≥ {b})"))),
+                None if s.contains("..=") => Err(err(format!(
+                    "\"{s}\": kiln writes ranges one way, \"a..b\" with b excluded (\"0..16\" is seeds 0 to 15)"
+                ))),
                 None => Err(err(format!("\"{s}\" is not a seed range"))),
             }
         }

@@ -133,7 +133,9 @@ fn figures_carry_computed_theory_lines() {
     assert!(o.status.success(), "{}", stderr(&o));
     let o = w.kiln(&["fit", cube.to_str().unwrap(), "--json"]);
     let after: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let fitted_line = after["theory"]["parisi"].as_f64().expect("stored Parisi value");
+    let fitted_line = after["theory"]["parisi"]
+        .as_f64()
+        .expect("stored Parisi value");
     let o = w.kiln(&["theory", cube.to_str().unwrap(), "--k", "2", "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();

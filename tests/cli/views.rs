@@ -129,3 +129,67 @@ fn one_cell_by_key_prefix() {
         assert_eq!(o.status.code(), Some(2), "{bad}: {}", stderr(&o));
     }
 }
+
+/// A bare `kiln` is a one-screen start (exit 0) naming the default run and the starter.
+#[test]
+fn bare_kiln_is_a_start_screen() {
+    let w = Work::new();
+    let o = w.kiln(&[]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    let text = String::from_utf8_lossy(&o.stdout);
+    for want in ["kiln run ", "kiln draft", "kiln check", "kiln kinds"] {
+        assert!(text.contains(want), "{want:?} not in\n{text}");
+    }
+    assert!(text.lines().count() <= 24, "more than a screen:\n{text}");
+}
+
+/// `kiln draft` writes a valid, commented spec for every family (its keys and its kinds' keys
+/// named), which `kiln check` accepts and a small run completes; it never overwrites a file,
+/// refuses kinds that cannot run on the family with the kinds that can, and names the families
+/// when given an unknown one.
+#[test]
+fn drafts_are_valid_specs_for_every_family() {
+    let w = Work::new();
+    for f in kiln::model::families() {
+        let file = format!("{}.toml", f.name);
+        let o = w.kiln(&["draft", f.name, "-o", &file]);
+        assert!(o.status.success(), "{}: {}", f.name, stderr(&o));
+        let text = std::fs::read_to_string(w.path().join(&file)).unwrap();
+        for k in f.keys {
+            assert!(
+                text.contains(&format!("{} = ", k.name)),
+                "{}: key {} missing",
+                f.name,
+                k.name
+            );
+        }
+        assert!(text.contains("[[algorithm]]"), "{text}");
+        let o = w.kiln(&["check", &file]);
+        assert!(o.status.success(), "{}: {}", f.name, stderr(&o));
+    }
+    // Chosen kinds, and a run of the draft at one small size.
+    let o = w.kiln(&["draft", "sk", "-a", "descent,tempering", "--name", "mine"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let text = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert!(
+        text.contains("kind = \"tempering\"") && text.contains("# temperatures = "),
+        "{text}"
+    );
+    let small = text
+        .replace("sizes = [64, 128, 256, 512]", "sizes = [16]")
+        .replace("seeds = 16", "seeds = 2");
+    let s = w.spec("mine.toml", &small);
+    w.run_json(&s, &[]);
+    assert!(w.path().join("results/mine/cells.parquet").exists());
+    // Refusals: an existing file, a kind the family cannot run, an unknown family.
+    let o = w.kiln(&["draft", "sk", "-o", "mine.toml"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("does not overwrite"), "{}", stderr(&o));
+    assert_eq!(std::fs::read_to_string(&s).unwrap(), small);
+    let o = w.kiln(&["draft", "sphere", "-a", "descent"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("gradient"), "{}", stderr(&o));
+    let o = w.kiln(&["draft", "glass"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("perceptron"), "{}", stderr(&o));
+}
