@@ -9,11 +9,42 @@ pub struct SpecError {
     /// The file as the user named it (or `built-in default`).
     pub origin: String,
     /// 1-based line and column, when the problem has a place in the file.
-    pub line: Option<(usize, usize)>,
+    pub line: Option<(u32, u32)>,
     /// Dotted key path, e.g. `sweep.sizes` or `algorithm[2].beta`.
     pub key: Option<String>,
     pub message: String,
     pub hint: Option<String>,
+    /// Further problems found in the same spec (reported together, up to [`MAX_REPORTED`]).
+    /// Boxed: every `Result<_, SpecError>` stays small, and most errors have none.
+    pub also: Option<Box<Vec<SpecError>>>,
+}
+
+/// Most problems one message lists.
+pub const MAX_REPORTED: usize = 12;
+
+impl SpecError {
+    /// One error holding all of `errors` (the first leads, the others follow), or None.
+    pub fn gather(mut errors: Vec<SpecError>) -> Option<SpecError> {
+        if errors.is_empty() {
+            return None;
+        }
+        let mut rest: Vec<SpecError> = errors.split_off(1);
+        let mut first = errors.pop().expect("one");
+        // Flatten: an error that already gathered others brings them along.
+        let mut flat: Vec<SpecError> = first.also.take().map_or_else(Vec::new, |b| *b);
+        for mut e in rest.drain(..) {
+            let more = e.also.take().map_or_else(Vec::new, |b| *b);
+            flat.push(e);
+            flat.extend(more);
+        }
+        first.also = (!flat.is_empty()).then(|| Box::new(flat));
+        Some(first)
+    }
+
+    /// The further problems (none for most errors).
+    pub fn further(&self) -> &[SpecError] {
+        self.also.as_deref().map_or(&[], |v| v.as_slice())
+    }
 }
 
 impl std::error::Error for SpecError {}
@@ -31,6 +62,20 @@ impl fmt::Display for SpecError {
         if let Some(h) = &self.hint {
             write!(f, "\n  hint: {h}")?;
         }
+        let total = 1 + self.further().len();
+        for e in self.further().iter().take(MAX_REPORTED - 1) {
+            // Each further problem on its own line, in the same form.
+            write!(f, "\nerror: {e}")?;
+        }
+        if total > MAX_REPORTED {
+            write!(
+                f,
+                "\n({} more problems in this spec not shown; fix these first)",
+                total - MAX_REPORTED
+            )?;
+        } else if total > 1 {
+            write!(f, "\n({total} problems in this spec)")?;
+        }
         Ok(())
     }
 }
@@ -42,6 +87,12 @@ pub(crate) struct Locator<'a> {
 }
 
 impl Locator<'_> {
+    /// [`Self::line_col`] as stored in an error (a spec has at most 4 MiB).
+    pub fn line_col32(&self, offset: usize) -> (u32, u32) {
+        let (l, c) = self.line_col(offset);
+        (l as u32, c as u32)
+    }
+
     /// 1-based (line, column) of a byte offset.
     pub fn line_col(&self, offset: usize) -> (usize, usize) {
         let offset = offset.min(self.text.len());
@@ -60,10 +111,11 @@ impl Locator<'_> {
     ) -> SpecError {
         SpecError {
             origin: self.origin.to_string(),
-            line: span.map(|s| self.line_col(s.start)),
+            line: span.map(|s| self.line_col32(s.start)),
             key: Some(key.into()),
             message: message.into(),
             hint,
+            also: None,
         }
     }
 

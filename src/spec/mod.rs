@@ -81,14 +81,81 @@ struct RawExperiment {
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawSweep {
-    sizes: Spanned<Vec<Spanned<i64>>>,
+    sizes: Spanned<Vec<Spanned<toml::Value>>>,
     seeds: Spanned<toml::Value>,
     #[serde(default)]
-    epsilons: Option<Spanned<Vec<Spanned<f64>>>>,
+    epsilons: Option<Spanned<Vec<Spanned<toml::Value>>>>,
     #[serde(default)]
-    replicas: Option<Spanned<i64>>,
+    replicas: Option<Spanned<toml::Value>>,
     #[serde(default)]
-    densities: Option<Spanned<Vec<Spanned<f64>>>>,
+    densities: Option<Spanned<Vec<Spanned<toml::Value>>>>,
+}
+
+/// How a TOML value's type reads in a message.
+pub(crate) fn type_words(v: &toml::Value) -> String {
+    match v {
+        toml::Value::String(s) => format!("the text \"{s}\""),
+        toml::Value::Integer(i) => format!("the whole number {i}"),
+        toml::Value::Float(x) => format!("the number {x}"),
+        toml::Value::Boolean(b) => format!("`{b}`"),
+        toml::Value::Datetime(d) => format!("the date {d}"),
+        toml::Value::Array(_) => "a list".into(),
+        toml::Value::Table(_) => "a table".into(),
+    }
+}
+
+/// The whole numbers of a list (each element located) and whether every element was one; the
+/// others' errors are kept for the report.
+fn whole_list(
+    raw: &Spanned<Vec<Spanned<toml::Value>>>,
+    key: &str,
+    loc: &Locator,
+    errs: &mut Vec<SpecError>,
+) -> (Spanned<Vec<Spanned<i64>>>, bool) {
+    let mut out = Vec::new();
+    let mut ok = true;
+    for v in raw.get_ref() {
+        match v.get_ref() {
+            toml::Value::Integer(i) => out.push(Spanned::new(v.span(), *i)),
+            other => {
+                ok = false;
+                errs.push(loc.at(
+                    Some(v.span()),
+                    key,
+                    format!("{} is not a whole number", type_words(other)),
+                    Some(format!("`{key}` lists whole numbers, e.g. [64, 128, 256]")),
+                ));
+            }
+        }
+    }
+    (Spanned::new(raw.span(), out), ok)
+}
+
+/// A list of numbers (whole numbers read as numbers), or the errors of the elements that are not.
+fn number_list(
+    raw: &Spanned<Vec<Spanned<toml::Value>>>,
+    key: &str,
+    loc: &Locator,
+    errs: &mut Vec<SpecError>,
+) -> Option<Spanned<Vec<Spanned<f64>>>> {
+    let mut out = Vec::new();
+    let mut ok = true;
+    for v in raw.get_ref() {
+        match v.get_ref() {
+            toml::Value::Integer(i) => out.push(Spanned::new(v.span(), *i as f64)),
+            toml::Value::Float(x) => out.push(Spanned::new(v.span(), *x)),
+            other => {
+                ok = false;
+                errs.push(loc.at(
+                    Some(v.span()),
+                    key,
+                    format!("{} is not a number", type_words(other)),
+                    Some(format!("`{key}` lists numbers, e.g. [0.01, 0.1]")),
+                ));
+            }
+        }
+    }
+    ok.then(|| Spanned::new(raw.span(), out))
 }
 
 /// One `[[algorithm]]` table, kept as parsed values with their positions: which keys apply
@@ -165,6 +232,7 @@ pub fn load(path: &Path) -> Result<Spec, SpecError> {
         key: None,
         message,
         hint: Some(hint.into()),
+        also: None,
     };
     let unreadable = |e: std::io::Error| {
         refuse(
@@ -268,6 +336,44 @@ fn deepest_line(text: &str) -> (usize, usize) {
     best
 }
 
+/// A reader's type message in the user's words: "invalid type: string \"x\", expected i64"
+/// becomes "the text \"x\" where a whole number is expected".
+fn in_user_words(msg: &str) -> String {
+    let Some(rest) = msg
+        .strip_prefix("invalid type: ")
+        .or_else(|| msg.strip_prefix("invalid value: "))
+    else {
+        return msg.to_string();
+    };
+    let (got, want) = rest.rsplit_once(", expected ").unwrap_or((rest, ""));
+    let got = if let Some(s) = got.strip_prefix("string ") {
+        format!("the text {s}")
+    } else if let Some(i) = got.strip_prefix("integer `") {
+        format!("the whole number {}", i.trim_end_matches('`'))
+    } else if let Some(x) = got.strip_prefix("floating point `") {
+        format!("the number {}", x.trim_end_matches('`'))
+    } else if let Some(b) = got.strip_prefix("boolean `") {
+        format!("`{}`", b.trim_end_matches('`'))
+    } else {
+        match got {
+            "sequence" => "a list".to_string(),
+            "map" => "a table".to_string(),
+            other => other.to_string(),
+        }
+    };
+    let want = match want.trim() {
+        "i64" | "u64" | "i32" | "u32" | "usize" => "a whole number",
+        "f64" | "f32" => "a number",
+        "a string" | "string" => "text in quotes",
+        "a boolean" | "bool" => "true or false",
+        "a sequence" => "a list [ … ]",
+        "a map" | "struct" => "a table",
+        "" => "another value",
+        other => other,
+    };
+    format!("{got} where {want} is expected")
+}
+
 /// Turns a deserialisation error into a located one, with a suggestion for unknown keys.
 fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
     let msg = e.message().trim().to_string();
@@ -289,37 +395,49 @@ fn serde_error(loc: &Locator, e: &toml::de::Error) -> SpecError {
                     .collect::<Vec<_>>()
                     .join(", ")
             ),
-            None => "see the spec reference in README.md".into(),
+            None => "`kiln draft <family>` writes a spec with every key".into(),
         });
     } else if let Some(rest) = msg.strip_prefix("missing field `") {
         let word = rest.split('`').next().unwrap_or(rest);
         message = format!("missing key `{word}`");
-        hint = Some("see the spec reference in README.md for the required keys".into());
+        hint = Some("`kiln draft <family>` writes a spec with every required key filled in".into());
     } else if msg.starts_with("invalid type") || msg.starts_with("invalid value") {
-        hint = Some("see the spec reference in README.md for the type of each key".into());
+        message = in_user_words(&msg);
+        hint = Some("`kiln kinds` lists every key with its type".into());
     } else if span.is_none() && msg.contains("recursion limit") {
         // The reader gives no position for this one: find the deepest line ourselves.
         let (line, depth) = deepest_line(loc.text);
         return SpecError {
             origin: loc.origin.to_string(),
-            line: Some((line, 1)),
+            line: Some((line as u32, 1)),
             key: None,
             message: format!("keys or values nest {depth} levels deep here, too deep to read"),
             hint: Some("a spec needs at most three levels (`[model.xi]`, `a.b.c = …`)".into()),
+            also: None,
         };
     } else {
         hint = Some("the file is not valid TOML here".into());
     }
     SpecError {
         origin: loc.origin.to_string(),
-        line: span.map(|s| loc.line_col(s.start)),
+        line: span.map(|s| loc.line_col32(s.start)),
         key,
         message,
         hint,
+        also: None,
     }
 }
 
+/// `Ok` of a result, or None with its error kept for the report.
+fn keep<T>(r: Result<T, SpecError>, errs: &mut Vec<SpecError>) -> Option<T> {
+    r.map_err(|e| errs.push(e)).ok()
+}
+
+/// Checks every section and reports all problems found at once: sections that do not depend on
+/// each other are checked even after one fails (the algorithms need a valid model and sizes,
+/// so they are checked only with those).
 fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
+    let mut errs: Vec<SpecError> = Vec::new();
     // [experiment]
     let name = raw.experiment.name.get_ref().clone();
     let name_ok = !name.is_empty()
@@ -329,7 +447,7 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             .chars()
             .all(|c| c.is_ascii_alphanumeric() || matches!(c, '-' | '_' | '.'));
     if !name_ok {
-        return Err(loc.at(
+        errs.push(loc.at(
             Some(raw.experiment.name.span()),
             "experiment.name",
             format!("`{name}` cannot name a results folder"),
@@ -338,58 +456,134 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
     }
 
     // [model], and the sweep's densities
-    let axis = raw.sweep.densities.as_ref();
-    let model = model::resolve(&raw.model, loc, axis.and_then(|d| d.get_ref().first()))?;
-    let models = match axis {
-        None => vec![model.clone()],
-        Some(d) => sweep::densities(d, &model, loc)?,
+    let axis = raw
+        .sweep
+        .densities
+        .as_ref()
+        .and_then(|d| number_list(d, "sweep.densities", loc, &mut errs));
+    let model = keep(
+        model::resolve(
+            &raw.model,
+            loc,
+            axis.as_ref().and_then(|d| d.get_ref().first()),
+        ),
+        &mut errs,
+    );
+    let models = match (&model, &axis) {
+        (Some(m), None) => Some(vec![m.clone()]),
+        (Some(m), Some(d)) => keep(sweep::densities(d, m, loc), &mut errs),
+        (None, _) => None,
     };
 
     // [sweep]
-    let mut sizes = Vec::new();
-    for m in &models {
-        sizes = sweep::sizes(&raw.sweep.sizes, m, loc)?;
+    let (raw_sizes, sizes_ok) = whole_list(&raw.sweep.sizes, "sweep.sizes", loc, &mut errs);
+    let mut sizes = None;
+    // With some sizes unreadable, the algorithms are still checked against the readable ones.
+    let mut partial_sizes = None;
+    if let Some(models) = &models {
+        for m in models {
+            if sizes_ok {
+                sizes = keep(sweep::sizes(&raw_sizes, m, loc), &mut errs);
+                if sizes.is_none() {
+                    break;
+                }
+            } else {
+                partial_sizes = sweep::sizes(&raw_sizes, m, loc).ok();
+            }
+        }
     }
-    let seeds = sweep::seeds_from(&raw.sweep.seeds, loc)?;
+    let seeds = keep(sweep::seeds_from(&raw.sweep.seeds, loc), &mut errs);
     let replicas = match &raw.sweep.replicas {
-        None => 1,
-        Some(r) => positive(r, loc, "sweep.replicas", 64)? as u32,
+        None => Some(1),
+        Some(r) => match r.get_ref() {
+            toml::Value::Integer(i) => keep(
+                positive(&Spanned::new(r.span(), *i), loc, "sweep.replicas", 64),
+                &mut errs,
+            )
+            .map(|x| x as u32),
+            other => {
+                errs.push(loc.at(
+                    Some(r.span()),
+                    "sweep.replicas",
+                    format!("{} is not a whole number", type_words(other)),
+                    Some("give a whole number from 1 to 64".into()),
+                ));
+                None
+            }
+        },
     };
-    let epsilons = sweep::epsilons(raw.sweep.epsilons.as_ref(), loc)?;
+    let epsilons = match &raw.sweep.epsilons {
+        None => keep(sweep::epsilons(None, loc), &mut errs),
+        Some(e) => number_list(e, "sweep.epsilons", loc, &mut errs)
+            .and_then(|e| keep(sweep::epsilons(Some(&e), loc), &mut errs)),
+    };
 
     // [[algorithm]]
     if raw.algorithm.is_empty() {
-        return Err(SpecError {
+        errs.push(SpecError {
             origin: loc.origin.to_string(),
             line: None,
             key: Some("algorithm".into()),
             message: "no algorithm given".into(),
-            hint: Some("add at least one [[algorithm]] table with a `kind`".into()),
+            hint: Some(
+                "add at least one [[algorithm]] table with a `kind` (`kiln kinds` lists them)"
+                    .into(),
+            ),
+            also: None,
         });
     }
     let mut algorithms: Vec<AlgoEntry> = Vec::new();
-    let mut label_spans: Vec<Range<usize>> = Vec::new();
-    // Label → index, so that many algorithms validate in linear time.
-    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
-    for (i, a) in raw.algorithm.iter().enumerate() {
-        let (entry, lspan) = algorithms::algorithm_entry(i, a, &model, &sizes, loc)?;
-        if let Some(&j) = seen.get(&entry.label) {
-            let (line, _) = loc.line_col(label_spans[j].start);
-            return Err(loc.at(
-                Some(lspan),
-                format!("algorithm[{}].label", i + 1),
-                format!(
-                    "label `{}` is already used by algorithm[{}] (line {line})",
-                    entry.label,
-                    j + 1
-                ),
-                Some("labels name table rows: give each algorithm its own".into()),
-            ));
+    if let (Some(model), Some(sizes)) = (&model, sizes.as_ref().or(partial_sizes.as_ref())) {
+        let mut label_spans: Vec<Range<usize>> = Vec::new();
+        // Label → index, so that many algorithms validate in linear time.
+        let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+        for (i, a) in raw.algorithm.iter().enumerate() {
+            let Some((entry, lspan)) = keep(
+                algorithms::algorithm_entry(i, a, model, sizes, loc),
+                &mut errs,
+            ) else {
+                continue;
+            };
+            if let Some(&j) = seen.get(&entry.label) {
+                let (line, _) = loc.line_col(label_spans[j].start);
+                errs.push(loc.at(
+                    Some(lspan),
+                    format!("algorithm[{}].label", i + 1),
+                    format!(
+                        "label `{}` is already used by algorithm[{}] (line {line})",
+                        entry.label,
+                        j + 1
+                    ),
+                    Some("labels name table rows: give each algorithm its own".into()),
+                ));
+                continue;
+            }
+            seen.insert(entry.label.clone(), algorithms.len());
+            label_spans.push(lspan);
+            algorithms.push(entry);
         }
-        seen.insert(entry.label.clone(), i);
-        label_spans.push(lspan);
-        algorithms.push(entry);
     }
+
+    let fit = match &raw.fit {
+        None => Some(FitSettings::default()),
+        Some(f) => keep(fit_settings::fit_settings(f, loc), &mut errs),
+    };
+
+    if let Some(e) = SpecError::gather(errs) {
+        return Err(e);
+    }
+    let (
+        Some(model),
+        Some(models),
+        Some(sizes),
+        Some(seeds),
+        Some(replicas),
+        Some(epsilons),
+        Some(fit),
+    ) = (model, models, sizes, seeds, replicas, epsilons, fit)
+    else {
+        unreachable!("every section without an error has a value");
+    };
 
     let cells = sizes.len() as u128
         * models.len() as u128
@@ -405,11 +599,6 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
             Some("split the study into several specs, or use fewer seeds, sizes or ε levels".into()),
         ));
     }
-
-    let fit = match &raw.fit {
-        None => FitSettings::default(),
-        Some(f) => fit_settings::fit_settings(f, loc)?,
-    };
 
     Ok(Spec {
         fit,

@@ -124,7 +124,7 @@ pub(super) fn resolve(
                     format!("unknown key `{key}`"),
                     Some(match closest(key, known) {
                         Some(c) => format!("did you mean `{c}`?"),
-                        None => "see the spec reference in README.md".into(),
+                        None => "`kiln kinds` lists every family with its keys".into(),
                     }),
                 )
             } else {

@@ -169,9 +169,12 @@ sweeps = 50
     }
 
     #[test]
-    fn parse_shards() {
-        assert_eq!(Shard::parse("0/4"), Ok(Shard { index: 0, count: 4 }));
-        assert!(Shard::parse("4/4").is_err());
+    fn parse_parts_counted_from_one() {
+        assert_eq!(Shard::parse("1/4"), Ok(Shard { index: 0, count: 4 }));
+        assert_eq!(Shard::parse("4/4"), Ok(Shard { index: 3, count: 4 }));
+        assert_eq!(Shard::parse("4/4").unwrap().label(), "4/4");
+        assert!(Shard::parse("0/4").is_err());
+        assert!(Shard::parse("5/4").is_err());
         assert!(Shard::parse("1/0").is_err());
         assert!(Shard::parse("x").is_err());
     }

@@ -61,8 +61,46 @@ fn unknown_table() {
 fn wrong_type() {
     refuse(
         &SMALL.replace("sizes = [16, 32]", "sizes = \"big\""),
-        &["line 11", "key `sweep.sizes`", "invalid type"],
+        &[
+            "line 11",
+            "key `sweep.sizes`",
+            "the text \"big\" where a list [ … ] is expected",
+        ],
     );
+    // Inside a list, in the user's words too.
+    refuse(
+        &SMALL.replace("sizes = [16, 32]", "sizes = [16, \"x\"]"),
+        &["line 11", "the text \"x\" is not a whole number"],
+    );
+}
+
+/// Problems in independent parts of a spec are reported together (one run, not one per
+/// fix), each located, with a count; exit 2 and nothing written.
+#[test]
+fn every_problem_at_once() {
+    let w = Work::new();
+    let text = SMALL
+        .replace("sizes = [16, 32]", "sizes = [16, \"x\"]")
+        .replace("seeds = 3", "seeds = \"0..=3\"")
+        .replace("kind = \"descent\"", "kind = \"descnt\"")
+        .replace("name = \"small\"", "name = \"a b\"");
+    let spec = w.spec("bad.toml", &text);
+    let o = w.kiln(&["check", spec.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    for want in [
+        "key `experiment.name`",
+        "key `sweep.sizes`",
+        "key `sweep.seeds`",
+        "b excluded",
+        "key `algorithm[1].kind`",
+        "did you mean `descent`?",
+        "(4 problems in this spec)",
+    ] {
+        assert!(err.contains(want), "{want:?} not in:\n{err}");
+    }
+    assert_eq!(err.matches("error:").count(), 4, "{err}");
+    assert!(!w.path().join("results").exists());
 }
 
 #[test]
