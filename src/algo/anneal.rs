@@ -128,6 +128,7 @@ pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     } else {
         let mut accept = super::Metropolis::new(bound);
         for sweep in 0..steps {
+            crate::exec::progress::step(sweep, steps, "sweep");
             accept.set_beta(beta_at(p, sweep, steps));
             for i in 0..n {
                 let g = -2.0 * (s[i] as f64) * h[i];
@@ -220,6 +221,7 @@ fn sweeps_typed<F: IntField>(
     let mut accept = super::Metropolis::new(Some(bound));
     let mut accepted = 0u64;
     for sweep in 0..steps {
+        crate::exec::progress::step(sweep, steps, "sweep");
         accept.set_beta(beta_at(p, sweep, steps));
         let table = accept.table();
         for i in 0..n {

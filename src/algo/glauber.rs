@@ -174,6 +174,7 @@ pub fn run_observed<M: SpinModel>(
         };
     } else {
         for sweep in 0..p.sweeps {
+            crate::exec::progress::step(sweep, p.sweeps, "sweep");
             for t in 0..n {
                 let i = match p.scan {
                     Scan::Sequential => t,
@@ -246,6 +247,7 @@ fn sweeps_small<const RANDOM: bool>(
     let mut change = 0i64;
     let mut flips = 0u64;
     for sweep in 0..p.sweeps {
+        crate::exec::progress::step(sweep, p.sweeps, "sweep");
         for t in 0..n {
             let i = if RANDOM {
                 rng.below(n as u64) as usize

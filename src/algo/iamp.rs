@@ -267,6 +267,7 @@ pub fn run(
     let mut f = vec![0.0; n];
     let mut info = Info::default();
     for k in 1..k_max {
+        crate::exec::progress::step(k as u64, k_max as u64, "product");
         // z^k = ∇H(m^{k−1}) − Σ_{j=1..k−1} ξ''(⟨m^{k−1}, m^{j−1}⟩/n) b_{k−1,j} m^{j−1}.
         let last = ms.len() - 1;
         grad(&ms[last], &mut z);

@@ -160,6 +160,7 @@ pub fn run_observed<S: Smooth>(
     let drift = p.step * p.beta;
     let noise = (2.0 * p.step).sqrt();
     for t in 0..p.steps {
+        crate::exec::progress::step(t, p.steps, "step");
         let h = m.value_grad(&x, &mut g);
         seen(t, h);
         tangent(&mut g, &x);

@@ -169,6 +169,7 @@ pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
         })
         .collect();
     for sweep in 0..p.sweeps {
+        crate::exec::progress::step(sweep, p.sweeps, "sweep");
         for (k, acc) in accept.iter_mut().enumerate() {
             let rep = at[k];
             let (s, h) = (&mut spins[rep], &mut fields[rep]);

@@ -207,6 +207,9 @@ pub fn run(p: &Params, f: &Formula, rng: &mut Stream) -> Output {
         s
     };
     while !w.unsat.is_empty() && flips < budget {
+        if flips.is_multiple_of(4096) {
+            crate::exec::progress::step(flips, budget, "flip");
+        }
         let c = w.unsat[rng.below(w.unsat.len() as u64) as usize] as usize;
         let clause = &lits[c * k..c * k + k];
         // Least-breaking variables of the clause, ties chosen uniformly (reservoir).

@@ -69,6 +69,25 @@ fn parse_mixture(s: &str) -> Result<Mixture, InputError> {
     Ok(Mixture { terms })
 }
 
+/// Runs one solve with a status line on the terminal ("kiln theory │ solving … │ 3 s"),
+/// cleared when it returns; nothing when `quiet` (JSON output) or stderr is not a terminal.
+fn solving<T>(quiet: bool, what: &str, f: impl FnOnce() -> T) -> T {
+    let bar = if quiet {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::with_draw_target(None, indicatif::ProgressDrawTarget::stderr())
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("kiln theory │ {msg} │ {elapsed} so far")
+            .expect("valid template"),
+    );
+    bar.set_message(format!("{what} (read from the cache when stored)"));
+    bar.enable_steady_tick(std::time::Duration::from_millis(250));
+    let r = f();
+    bar.finish_and_clear();
+    r
+}
+
 /// How long a solution took, or "from the cache" when it was read back (no solve of these
 /// takes under 50 ms, while a cached one reads in about a millisecond).
 fn took(secs: f64) -> String {
@@ -304,12 +323,17 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
     let rs = cube::replica_symmetric(&xi);
     let cg = cube::constant_gamma(&xi);
     let full_t = std::time::Instant::now();
-    let full = crate::theory::cached::full_rsb(&cache, &xi)?;
+    let quiet = a.json;
+    let full = solving(quiet, "full RSB, 16 free q-intervals", || {
+        crate::theory::cached::full_rsb(&cache, &xi)
+    })?;
     let full_secs = full_t.elapsed().as_secs_f64();
     let mut ks = Vec::new();
     for k in 1..=a.k {
         let t = std::time::Instant::now();
-        let sol = crate::theory::cached::k_rsb(&cache, &xi, k, &s)?;
+        let sol = solving(quiet, &format!("{k}-step RSB"), || {
+            crate::theory::cached::k_rsb(&cache, &xi, k, &s)
+        })?;
         ks.push((k, sol, t.elapsed().as_secs_f64()));
     }
     if a.refine > 3 {
@@ -332,12 +356,14 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         };
         let t = std::time::Instant::now();
         let prev = refined.last().map_or(&full, |r| &r.1);
-        let sol = crate::theory::full::full_rsb_free_from(
-            &xi,
-            &fs,
-            prev,
-            crate::theory::full::FREE_ROUNDS,
-        );
+        let sol = solving(quiet, &format!("full RSB, refinement round {r}"), || {
+            crate::theory::full::full_rsb_free_from(
+                &xi,
+                &fs,
+                prev,
+                crate::theory::full::FREE_ROUNDS,
+            )
+        });
         refined.push((fs, sol, t.elapsed().as_secs_f64()));
     }
     // k-step values as printed: re-evaluated on the full-RSB lattice (None: not resolved).
@@ -346,7 +372,9 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         .map(|(_, sol, _)| crate::theory::cached::k_step_value(&xi, sol))
         .collect();
     let alg_t = std::time::Instant::now();
-    let (calg, alg_starts) = crate::theory::cached::algorithmic(&cache, &xi)?;
+    let (calg, alg_starts) = solving(quiet, "algorithmic threshold, three starts", || {
+        crate::theory::cached::algorithmic(&cache, &xi)
+    })?;
     let alg_secs = alg_t.elapsed().as_secs_f64();
     let alg_diag =
         crate::theory::full::diagnostic(&xi, &crate::theory::full::FullSettings::default(), &calg);

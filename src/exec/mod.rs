@@ -7,6 +7,7 @@
 
 pub mod memory;
 pub mod overlaps;
+pub mod progress;
 pub mod traces;
 
 use crate::cell::Key;
@@ -171,29 +172,16 @@ pub fn execute(
     } else {
         ProgressBar::hidden()
     };
-    bar.set_style(
-        ProgressStyle::with_template(
-            "{spinner} {elapsed_precise} [{bar:28}] {pos}/{len} cells · {msg} · eta {eta}",
-        )
-        .expect("valid template")
-        .progress_chars("=> "),
-    );
-    bar.set_position(cached);
+    // kiln's own line: every number on it is composed in one place from the same counters
+    // (see `progress::Line`), so the finished count and its parts always agree.
+    bar.set_style(ProgressStyle::with_template("{msg}").expect("valid template"));
     let computed = AtomicU64::new(0);
     let failed = AtomicU64::new(0);
     let skipped = AtomicU64::new(0);
-    let set_msg = || {
-        bar.set_message(format!(
-            "computed {} · cached {cached} · failed {}{}",
-            computed.load(Ordering::Relaxed),
-            failed.load(Ordering::Relaxed),
-            opts.note
-                .as_ref()
-                .map_or(String::new(), |n| format!(" · {n}"))
-        ))
-    };
-    set_msg();
-
+    let cached_later = AtomicU64::new(0);
+    let cost_done = AtomicU64::new(0.0f64.to_bits());
+    let phase = Mutex::new(String::from("reference runs"));
+    let board = progress::Board::default();
     let mut phase_base: Vec<&Cell> = missing
         .iter()
         .map(|k| by_key[k])
@@ -211,12 +199,27 @@ pub fn execute(
     };
     phase_base.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
     phase_eps.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
+    let line = progress::Line {
+        experiment: &spec.name,
+        total,
+        cached,
+        computed: &computed,
+        reused: &cached_later,
+        failed: &failed,
+        cost_done: &cost_done,
+        cost_all: phase_base.iter().chain(&phase_eps).map(cost).sum(),
+        phase: &phase,
+        note: opts.note.as_deref(),
+        started: Instant::now(),
+    };
+    bar.set_message(line.compose(&board));
+    let eps_count = phase_eps.len();
 
     let new_records: Mutex<Vec<Record>> = Mutex::new(Vec::new());
     let failures: Mutex<Vec<(String, String)>> = Mutex::new(Vec::new());
     let fatal: Mutex<Option<StoreError>> = Mutex::new(None);
     let abort = AtomicBool::new(false);
-    let cached_later = AtomicU64::new(0);
+    let running = AtomicBool::new(true);
 
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(opts.jobs.max(1))
@@ -229,19 +232,41 @@ pub fn execute(
     let (abort, fatal) = (&abort, &fatal);
     std::thread::scope(|scope| {
         scope.spawn(move || write_behind(queue, cache, abort, fatal));
+        if opts.progress {
+            let (bar, line, board, running) = (&bar, &line, &board, &running);
+            scope.spawn(move || {
+                while running.load(Ordering::Relaxed) {
+                    bar.set_message(line.compose(board));
+                    std::thread::sleep(std::time::Duration::from_millis(250));
+                }
+            });
+        }
         pool.install(|| {
-            for phase in [phase_base, phase_eps] {
-                let mut pending = phase;
+            for (i, cells) in [phase_base, phase_eps].into_iter().enumerate() {
+                if i == 1 && eps_count == 0 {
+                    continue;
+                }
+                let name = ["reference runs", "perturbed runs (ε > 0)"][i];
+                let mut pending = cells;
                 loop {
+                    *phase.lock().expect("phase") = name.into();
                     let deferred: Mutex<Vec<&Cell>> = Mutex::new(Vec::new());
                     pending.par_iter().with_max_len(1).for_each(|cell| {
                         if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
                             skipped.fetch_add(1, Ordering::Relaxed);
                             return;
                         }
-                        match attempt(spec, cell, cache, prov, &damaged, &takeovers, &writes) {
+                        let entered = board.enter(
+                            format!("{} n = {}", spec.algorithms[cell.algo].label, cell.n),
+                            cost(cell),
+                        );
+                        let result =
+                            attempt(spec, cell, cache, prov, &damaged, &takeovers, &writes);
+                        drop(entered);
+                        match result {
                             Ok(Outcome::Computed(r)) => {
                                 new_records.lock().expect("lock").push(r);
+                                progress::add(&cost_done, cost(cell));
                                 computed.fetch_add(1, Ordering::Relaxed);
                                 bar.inc(1);
                             }
@@ -253,6 +278,7 @@ pub fn execute(
                             Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
                             Ok(Outcome::Failed(m)) => {
                                 failures.lock().expect("lock").push((cell.key.hex(), m));
+                                progress::add(&cost_done, cost(cell));
                                 failed.fetch_add(1, Ordering::Relaxed);
                                 bar.inc(1);
                             }
@@ -262,7 +288,7 @@ pub fn execute(
                                 failed.fetch_add(1, Ordering::Relaxed);
                             }
                         }
-                        set_msg();
+                        bar.set_message(line.compose(&board));
                     });
                     pending = deferred.into_inner().expect("lock");
                     if pending.is_empty() {
@@ -275,16 +301,17 @@ pub fn execute(
                         flush(&writes);
                         break;
                     }
-                    bar.set_message(format!(
+                    *phase.lock().expect("phase") = format!(
                         "waiting for {} cells claimed by other runners",
                         pending.len()
-                    ));
+                    );
                     std::thread::sleep(std::time::Duration::from_millis(150));
                 }
             }
         });
         // Closing the queue ends the writer; the scope waits until it has written everything.
         drop(writes);
+        running.store(false, Ordering::Relaxed);
     });
     bar.finish_and_clear();
     if let Some(e) = fatal.lock().expect("lock").take() {

@@ -150,7 +150,8 @@ fn bare_kiln_is_a_start_screen() {
 #[test]
 fn drafts_are_valid_specs_for_every_family() {
     let w = Work::new();
-    for f in kiln::model::families() {
+    // The built-in list: other tests of this process register toy families the binary lacks.
+    for f in kiln::model::builtin() {
         let file = format!("{}.toml", f.name);
         let o = w.kiln(&["draft", f.name, "-o", &file]);
         assert!(o.status.success(), "{}: {}", f.name, stderr(&o));
