@@ -921,51 +921,125 @@ pub fn run(a: &PlotArgs) -> anyhow::Result<ExitCode> {
         let base = figdir.join(format!("energy-{}-{couplings}", density_file_name(family)));
         written.extend(write_all(&base, size, &csv, &fig)?);
     }
+    let before = cells.point_distances();
+    // (ε, mean, se) per ε of one (label, n), with the CSV rows of `series` written as it goes.
+    let mean_by_eps = |by_eps: &std::collections::BTreeMap<u64, Vec<f64>>,
+                       series: &str,
+                       n: u64,
+                       csv: &mut String|
+     -> Vec<(f64, f64, f64)> {
+        by_eps
+            .iter()
+            .map(|(e, ds)| {
+                let p = &fit::points(&ds.iter().map(|&d| (0u64, d)).collect::<Vec<_>>())[0];
+                *csv += &csv_line(&[
+                    series.to_string(),
+                    n.to_string(),
+                    format!("{:?}", f64::from_bits(*e)),
+                    format!("{:?}", p.mean),
+                    format!("{:?}", p.se),
+                    p.count.to_string(),
+                ]);
+                (f64::from_bits(*e), p.mean, p.se)
+            })
+            .collect()
+    };
+    let distance_words = if modulo_flip {
+        "min(‖σ − σ'‖, ‖σ + σ'‖)/√n (σ and −σ are one state of this model; column distance_sym)"
+    } else {
+        "‖σ − σ'‖/√n"
+    };
+    let stability_caption = |what: &str| {
+        format!(
+            "{what}: mean distance {distance_words} between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; dotted lines with open markers: the same distance between the points before rounding (column distance_point{}), where the algorithm has one; dashed: √2, the distance of two unrelated outputs (overlap 0). Slopes: weighted least-squares fits of log distance on log ε, printed with their error where at least three ε levels fit a line (χ²/dof ≤ 3) and the slope is at least two errors from 0.",
+            if modulo_flip { "_sym" } else { "" }
+        )
+    };
     for label in order.iter().filter(|l| distances.contains_key(*l)) {
         let mut series = Vec::new();
         let mut csv = format!(
             "# kiln figure data: mean distance against epsilon; experiment={name}; spec_hash={spec_hash}; algorithm={label}\nseries,n,epsilon,distance,distance_se,seeds\n"
         );
         for (n, by_eps) in &distances[label] {
-            let pts: Vec<(f64, f64, f64)> = by_eps
-                .iter()
-                .map(|(e, ds)| {
-                    let p = &fit::points(&ds.iter().map(|&d| (0u64, d)).collect::<Vec<_>>())[0];
-                    csv += &csv_line(&[
-                        format!("n={n}"),
-                        n.to_string(),
-                        format!("{:?}", f64::from_bits(*e)),
-                        format!("{:?}", p.mean),
-                        format!("{:?}", p.se),
-                        p.count.to_string(),
-                    ]);
-                    (f64::from_bits(*e), p.mean, p.se)
-                })
-                .collect();
-            let slope = figures::loglog_slope(&pts);
+            let pts = mean_by_eps(by_eps, &format!("n={n}"), *n, &mut csv);
+            let before_rounding = before
+                .get(label)
+                .and_then(|b| b.get(n))
+                .map_or_else(Vec::new, |b| {
+                    mean_by_eps(b, &format!("n={n} before rounding"), *n, &mut csv)
+                });
+            let slope = figures::loglog_fit(&pts);
             series.push(StabilitySeries {
                 label: format!("n = {n}"),
                 points: pts,
+                before_rounding,
                 slope,
             });
         }
         let fig = StabilityFigure {
             title: format!("stability of {label}"),
             series,
-            caption: format!(
-                "Mean distance {} between the output on the original disorder and the output, with the same algorithm randomness, on disorder correlated at 1 − ε; error bars 1 SE over seeds; slopes: least-squares fits of log distance against log ε.",
-                if modulo_flip {
-                    "min(‖σ − σ'‖, ‖σ + σ'‖)/√n (σ and −σ are one state of this model; column distance_sym)"
-                } else {
-                    "‖σ − σ'‖/√n"
-                }
-            ),
+            caption: stability_caption(&format!("Stability of {label} at each n")),
             modulo_flip,
         };
         let base = figdir.join(format!("stability-{}", density_file_name(label)));
         match write_all(&base, size, &csv, &fig) {
             Ok(w) => written.extend(w),
             Err(e) => eprintln!("note: no stability figure for {label}: {e}"),
+        }
+    }
+    // The comparison a threshold paper makes: every algorithm at one n, the largest that all
+    // of them ran (each at its own largest when they share none).
+    let stable: Vec<&String> = order
+        .iter()
+        .filter(|l| distances.contains_key(*l))
+        .collect();
+    if stable.len() >= 2 {
+        let common = distances[stable[0]]
+            .keys()
+            .rev()
+            .find(|n| stable.iter().all(|l| distances[*l].contains_key(n)))
+            .copied();
+        let mut csv = format!(
+            "# kiln figure data: mean distance against epsilon per algorithm at the largest n; experiment={name}; spec_hash={spec_hash}\nseries,n,epsilon,distance,distance_se,seeds\n"
+        );
+        let mut series = Vec::new();
+        for label in &stable {
+            let by_n = &distances[*label];
+            let Some(n) = common.or_else(|| by_n.keys().next_back().copied()) else {
+                continue;
+            };
+            let pts = mean_by_eps(&by_n[&n], label, n, &mut csv);
+            let before_rounding = before
+                .get(*label)
+                .and_then(|b| b.get(&n))
+                .map_or_else(Vec::new, |b| {
+                    mean_by_eps(b, &format!("{label} before rounding"), n, &mut csv)
+                });
+            let slope = figures::loglog_fit(&pts);
+            series.push(StabilitySeries {
+                label: if common.is_some() {
+                    (*label).clone()
+                } else {
+                    format!("{label} (n = {n})")
+                },
+                points: pts,
+                before_rounding,
+                slope,
+            });
+        }
+        let at = common.map_or("each algorithm's largest n".to_string(), |n| {
+            format!("n = {n}")
+        });
+        let fig = StabilityFigure {
+            title: format!("stability of the algorithms at {at}"),
+            series,
+            caption: stability_caption(&format!("Stability of each algorithm at {at}")),
+            modulo_flip,
+        };
+        match write_all(&figdir.join("stability-algorithms"), size, &csv, &fig) {
+            Ok(w) => written.extend(w),
+            Err(e) => eprintln!("note: no algorithm comparison figure: {e}"),
         }
     }
     if exp

@@ -27,12 +27,78 @@ pub struct EnergyFigure {
     pub caption: String,
 }
 
-/// One size's curve: (ε, mean distance, se) and the fitted log–log slope.
+/// One curve (a size, or an algorithm at a size): (ε, mean distance, se) of the outputs and,
+/// where the algorithm has a point before rounding, of those points; and the fitted log–log
+/// slope.
 #[derive(Clone, Debug)]
 pub struct StabilitySeries {
     pub label: String,
     pub points: Vec<(f64, f64, f64)>,
-    pub slope: Option<f64>,
+    /// (ε, mean distance_point, se): the points before rounding (empty when none).
+    pub before_rounding: Vec<(f64, f64, f64)>,
+    pub slope: Option<Slope>,
+}
+
+/// A log–log slope of distance against ε with its standard error and goodness of fit.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Slope {
+    pub slope: f64,
+    /// Standard error, inflated by sqrt(χ²/dof) when that exceeds 1 (the Birge ratio; common
+    /// practice for a fit whose scatter exceeds its error bars).
+    pub se: f64,
+    pub chi2: f64,
+    pub dof: usize,
+}
+
+impl Slope {
+    /// Whether a figure prints it: at least three points (one degree of freedom), χ²/dof ≤ 3
+    /// (a straight line describes the points; threshold common practice), and a slope at least
+    /// two errors away from 0 (a flat curve has no slope worth a number).
+    pub fn printable(&self) -> bool {
+        self.dof >= 1 && self.chi2 / self.dof as f64 <= 3.0 && self.slope.abs() >= 2.0 * self.se
+    }
+}
+
+/// Weighted least squares of log y on log x for points (x, y, se) with x, y > 0: weights
+/// 1/σ² with σ = se/y (the error of log y), floored at 1e-3 so that a point whose seeds all
+/// agree does not take all the weight. None below two points.
+pub fn loglog_fit(points: &[(f64, f64, f64)]) -> Option<Slope> {
+    let pts: Vec<(f64, f64, f64)> = points
+        .iter()
+        .filter(|p| p.0 > 0.0 && p.1 > 0.0)
+        .map(|p| {
+            let sigma = (p.2 / p.1).max(1e-3);
+            (p.0.ln(), p.1.ln(), 1.0 / (sigma * sigma))
+        })
+        .collect();
+    if pts.len() < 2 {
+        return None;
+    }
+    let w: f64 = pts.iter().map(|p| p.2).sum();
+    let mx = pts.iter().map(|p| p.2 * p.0).sum::<f64>() / w;
+    let my = pts.iter().map(|p| p.2 * p.1).sum::<f64>() / w;
+    let sxx: f64 = pts.iter().map(|p| p.2 * (p.0 - mx) * (p.0 - mx)).sum();
+    if sxx <= 0.0 {
+        return None;
+    }
+    let sxy: f64 = pts.iter().map(|p| p.2 * (p.0 - mx) * (p.1 - my)).sum();
+    let slope = sxy / sxx;
+    let chi2: f64 = pts
+        .iter()
+        .map(|p| p.2 * (p.1 - my - slope * (p.0 - mx)).powi(2))
+        .sum();
+    let dof = pts.len() - 2;
+    let birge = if dof > 0 {
+        (chi2 / dof as f64).sqrt().max(1.0)
+    } else {
+        1.0
+    };
+    Some(Slope {
+        slope,
+        se: birge / sxx.sqrt(),
+        chi2,
+        dof,
+    })
 }
 
 #[derive(Clone, Debug)]
@@ -158,8 +224,13 @@ impl super::Figure for TraceFigure {
         .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
+        let mut covered: Vec<(i32, i32)> = Vec::new();
+        let mut labels: Vec<String> = Vec::new();
         if let Some((e, label)) = &self.target {
-            theory_line(&mut chart, vec![(xlo / 1.3, *e), (xhi * 1.3, *e)], label)?;
+            let line = vec![(xlo / 1.3, *e), (xhi * 1.3, *e)];
+            covered.extend(line_pixels(chart.plotting_area(), &line));
+            theory_line(&mut chart, line, label)?;
+            labels.push(label.clone());
         }
         for (i, s) in self.series.iter().enumerate() {
             let style = series(i);
@@ -168,6 +239,8 @@ impl super::Figure for TraceFigure {
             // read in grey.
             let line = color.stroke_width(3);
             let pts: Vec<(f64, f64)> = s.points.clone();
+            covered.extend(line_pixels(chart.plotting_area(), &pts));
+            labels.push(s.label.clone());
             let drawn = if i == 0 {
                 chart.draw_series(LineSeries::new(pts, line)).map_err(err)?
             } else {
@@ -184,7 +257,8 @@ impl super::Figure for TraceFigure {
                 .label(s.label.clone())
                 .legend(move |c| legend_glyph(style, c));
         }
-        house_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
+        let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &covered, &labels);
+        house_legend(&mut chart, corner)?;
         root.present().map_err(err)
     }
 }
@@ -270,12 +344,23 @@ where
         .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
+    let mut covered: Vec<(i32, i32)> = Vec::new();
+    let mut labels: Vec<String> = Vec::new();
     if let Some((pts, label)) = &p.theory {
+        covered.extend(line_pixels(chart.plotting_area(), pts));
         theory_line(&mut chart, pts.clone(), label)?;
+        labels.push(label.clone());
     }
     for (i, (label, pts)) in p.series.iter().enumerate() {
         let style = series(i);
         let color = style.color;
+        labels.push(label.clone());
+        let xy: Vec<(f64, f64)> = pts.iter().map(|q| (q.0, q.1)).collect();
+        covered.extend(line_pixels(chart.plotting_area(), &xy));
+        for &(x, y, e) in pts {
+            covered.push(chart.plotting_area().map_coordinate(&(x, y + e)));
+            covered.push(chart.plotting_area().map_coordinate(&(x, y - e)));
+        }
         chart
             .draw_series(LineSeries::new(
                 pts.iter().map(|q| (q.0, q.1)),
@@ -298,7 +383,8 @@ where
             marker(chart.plotting_area(), i, (x, y), false)?;
         }
     }
-    house_legend(&mut chart, SeriesLabelPosition::UpperLeft)
+    let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &covered, &labels);
+    house_legend(&mut chart, corner)
 }
 
 /// Density histogram of values in [−1, 1] with `bins` equal bins.
@@ -434,8 +520,15 @@ impl OverlapFigure {
         .y_label_formatter(&fy)
         .draw()
         .map_err(err)?;
+        let mut covered: Vec<(i32, i32)> = Vec::new();
+        let mut labels: Vec<String> = Vec::new();
         if let Some((xs, label)) = &self.markers {
+            labels.push(label.clone());
             for (k, &x) in xs.iter().enumerate() {
+                covered.extend(line_pixels(
+                    chart.plotting_area(),
+                    &[(x, 0.0), (x, ymax * 1.05)],
+                ));
                 let drawn = chart
                     .draw_series(DashedLineSeries::new(
                         vec![(x, 0.0), (x, ymax * 1.05)],
@@ -460,13 +553,16 @@ impl OverlapFigure {
                 outline.push((hi, d));
             }
             outline.push((1.0, 0.0));
+            covered.extend(line_pixels(chart.plotting_area(), &outline));
+            labels.push(s.label.clone());
             chart
                 .draw_series(LineSeries::new(outline, color.stroke_width(3)))
                 .map_err(err)?
                 .label(s.label.clone())
                 .legend(move |c| legend_glyph(style, c));
         }
-        house_legend(&mut chart, SeriesLabelPosition::UpperRight)
+        let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &covered, &labels);
+        house_legend(&mut chart, corner)
     }
 
     fn draw_distribution<DB: DrawingBackend>(
@@ -502,19 +598,36 @@ impl OverlapFigure {
             .draw()
             .map_err(err)?;
         let (corners, label) = &d.parisi;
+        let mut covered = line_pixels(chart.plotting_area(), corners);
         theory_line(&mut chart, corners.clone(), label)?;
         for (i, v) in d.samples.iter().enumerate() {
             let style = series(i);
             let color = style.color;
+            let cdf = empirical_cdf(v, lo);
+            covered.extend(line_pixels(chart.plotting_area(), &cdf));
             chart
-                .draw_series(LineSeries::new(empirical_cdf(v, lo), color.stroke_width(3)))
+                .draw_series(LineSeries::new(cdf, color.stroke_width(3)))
                 .map_err(err)?;
         }
-        house_legend(&mut chart, SeriesLabelPosition::UpperLeft)
+        let corner = legend_corner(
+            &chart.plotting_area().get_pixel_range(),
+            &covered,
+            std::slice::from_ref(label),
+        );
+        house_legend(&mut chart, corner)
     }
 }
 
 impl super::Figure for EnergyFigure {
+    /// Panels (above [`PANELS_ABOVE`] series) take 0.62 of the figure's height per row.
+    fn height(&self, size: super::Size) -> f64 {
+        let h = size.inches().1;
+        if self.series.len() > PANELS_ABOVE {
+            h * 0.62 * self.series.len().div_ceil(2) as f64
+        } else {
+            h
+        }
+    }
     fn caption(&self) -> String {
         self.caption.clone()
     }
@@ -536,24 +649,6 @@ impl super::Figure for StabilityFigure {
     {
         draw_stability(root, self)
     }
-}
-
-/// Least-squares slope of log y against log x (points with y > 0).
-pub fn loglog_slope(points: &[(f64, f64, f64)]) -> Option<f64> {
-    let pts: Vec<(f64, f64)> = points
-        .iter()
-        .filter(|p| p.0 > 0.0 && p.1 > 0.0)
-        .map(|p| (p.0.ln(), p.1.ln()))
-        .collect();
-    if pts.len() < 2 {
-        return None;
-    }
-    let k = pts.len() as f64;
-    let mx = pts.iter().map(|p| p.0).sum::<f64>() / k;
-    let my = pts.iter().map(|p| p.1).sum::<f64>() / k;
-    let sxx: f64 = pts.iter().map(|p| (p.0 - mx) * (p.0 - mx)).sum();
-    let sxy: f64 = pts.iter().map(|p| (p.0 - mx) * (p.1 - my)).sum();
-    (sxx > 0.0).then(|| sxy / sxx)
 }
 
 /// Greedy word wrap at `width` characters.
@@ -733,9 +828,110 @@ where
         hi = hi.max(*v);
     }
     let pad = 0.08 * (hi - lo).max(1e-3);
-    let (lo, hi) = (lo - pad, hi + 2.5 * pad);
-    let mut chart = ChartBuilder::on(&main)
+    let (lo, mut hi) = (lo - pad, hi + 2.5 * pad);
+    let count = fig.series.len();
+    if count <= PANELS_ABOVE {
+        // Headroom for the legend: the top of the range is raised until a legend box of every
+        // entry fits above all the data (estimated as `legend_corner` does), so one of the
+        // upper corners is always free; `legend_corner` then chooses among the corners.
+        let (_, h) = main.dim_in_pixel();
+        let plot_h = h as f64 - pt(13.0 + 5.0 + 20.0);
+        let entries = (count + fig.theory.len()) as f64;
+        let box_h = entries * 1.3 * pt(6.5) + 20.0 + pt(3.0);
+        let f = (box_h / plot_h).min(0.6);
+        let top = hi - 2.5 * pad + pad;
+        hi = hi.max((top - f * lo) / (1.0 - f));
+    }
+    if count > PANELS_ABOVE {
+        // One panel per series, shared axes (the same ranges), two columns; the y description
+        // once, down the left edge, the x description under the bottom row, the sizes over the
+        // top row, the theory lines' legend in the first panel.
+        let rows = count.div_ceil(2);
+        let (strip, grid) = main.split_horizontally(pt(11.0) as u32);
+        let style = TextStyle::from(("sans-serif", pt(8.0)).into_font())
+            .color(&BLACK)
+            .transform(FontTransform::Rotate270);
+        let text = ENERGY_AXIS;
+        let (w, _) = strip.estimate_text_size(text, &style).map_err(err)?;
+        let (_, h) = strip.dim_in_pixel();
+        strip
+            .draw_text(text, &style, (pt(2.0) as i32, (h as i32 + w as i32) / 2))
+            .map_err(err)?;
+        // Columns and rows split one at a time (exact halves of this area).
+        let (w, h) = grid.dim_in_pixel();
+        let (left, right) = grid.split_horizontally(w / 2);
+        let cells: Vec<DrawingArea<DB, Shift>> = (0..rows)
+            .flat_map(|r| {
+                let y0 = (h as usize * r / rows) as i32;
+                let y1 = (h as usize * (r + 1) / rows) as i32;
+                [
+                    left.clone().shrink((0, y0), (w / 2, (y1 - y0) as u32)),
+                    right.clone().shrink((0, y0), (w - w / 2, (y1 - y0) as u32)),
+                ]
+            })
+            .collect();
+        for (j, area) in cells.iter().enumerate() {
+            if j < count {
+                let role = Role {
+                    title: true,
+                    y_desc: false,
+                    x_desc: j + 2 >= count,
+                    sizes: true,
+                    theory_legend: j == 0,
+                };
+                energy_panel(area, fig, &[j], (xmax, lo, hi), role)?;
+            }
+        }
+    } else {
+        let all: Vec<usize> = (0..count).collect();
+        let role = Role {
+            title: false,
+            y_desc: true,
+            x_desc: true,
+            sizes: true,
+            theory_legend: true,
+        };
+        energy_panel(&main, fig, &all, (xmax, lo, hi), role)?;
+    }
+    root.present().map_err(err)
+}
+
+/// The energy axis' description (the sign convention with it: kiln maximises H).
+const ENERGY_AXIS: &str = "energy per spin H/n (maximised)";
+
+/// What one panel of the energy figure draws besides its data.
+#[derive(Clone, Copy)]
+struct Role {
+    /// A panel: its series named in a title line above the plot, not in a legend.
+    title: bool,
+    y_desc: bool,
+    x_desc: bool,
+    sizes: bool,
+    theory_legend: bool,
+}
+
+/// Above this many series the energy figure is drawn as panels, one per series.
+pub const PANELS_ABOVE: usize = 4;
+
+/// One plot of the energy figure on `main`: the series `which` (indices into `fig.series`,
+/// which keep their styles) and every theory line, on the axes (n^-ω from 0 to `xmax`, energy
+/// from `lo` to `hi`) shared by all panels.
+fn energy_panel<DB: DrawingBackend>(
+    main: &DrawingArea<DB, Shift>,
+    fig: &EnergyFigure,
+    which: &[usize],
+    (xmax, lo, hi): (f64, f64, f64),
+    role: Role,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let xs = |n: f64| n.powf(-fig.omega);
+    let mut chart = ChartBuilder::on(main)
         .margin(pt(5.0) as u32)
+        // Room above the plot for the sizes run (a second axis in n), and in a panel for its
+        // title above them.
+        .margin_top(pt(if role.title { 24.0 } else { 13.0 }) as u32)
         .x_label_area_size(pt(20.0) as u32)
         .y_label_area_size(pt(30.0) as u32)
         // A margin left of n^-ω = 0, so the extrapolated points are drawn whole.
@@ -745,20 +941,52 @@ where
     house_mesh(
         &mut chart.configure_mesh(),
         "",
-        "energy per spin H/n (maximised)",
+        if role.y_desc { ENERGY_AXIS } else { "" },
         (5, 6),
     )
     .x_label_formatter(&fx)
     .y_label_formatter(&fy)
     .draw()
     .map_err(err)?;
-    power_label(&main, chart.plotting_area().get_pixel_range(), fig.omega)?;
+    if role.x_desc {
+        power_label(main, chart.plotting_area().get_pixel_range(), fig.omega)?;
+    }
+    let mut sizes: Vec<u64> = fig
+        .series
+        .iter()
+        .flat_map(|s| s.points.iter().map(|p| p.0 as u64))
+        .collect();
+    sizes.sort_unstable();
+    sizes.dedup();
+    let at: Vec<(i32, u64)> = sizes
+        .iter()
+        .map(|&n| {
+            (
+                chart.plotting_area().map_coordinate(&(xs(n as f64), hi)).0,
+                n,
+            )
+        })
+        .collect();
+    if role.sizes {
+        n_axis(main, chart.plotting_area().get_pixel_range(), &at)?;
+    }
     // What the legend must not cover: every drawn point and line, in pixels.
     let mut drawn: Vec<(i32, i32)> = Vec::new();
     let mut labels: Vec<String> = Vec::new();
     for (v, label) in &fig.theory {
-        theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
-        labels.push(label.clone());
+        if role.theory_legend {
+            theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
+            labels.push(label.clone());
+        } else {
+            chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(0.0, *v), (xmax, *v)],
+                    pt(3.0) as u32,
+                    pt(2.0) as u32,
+                    BLACK.stroke_width(3),
+                ))
+                .map_err(err)?;
+        }
         drawn.extend((0..=40).map(|k| {
             chart
                 .plotting_area()
@@ -766,6 +994,9 @@ where
         }));
     }
     for (i, s) in fig.series.iter().enumerate() {
+        if !which.contains(&i) {
+            continue;
+        }
         let style = series(i);
         let color = style.color;
         if let Some(f) = &s.fit {
@@ -796,19 +1027,20 @@ where
                     color.mix(0.22).filled(),
                 )))
                 .map_err(err)?;
-            chart
+            let fitted = chart
                 .draw_series(LineSeries::new(
                     grid.iter().map(|&x| (x, at(x).0)),
                     color.stroke_width(3),
                 ))
-                .map_err(err)?
-                .label({
-                    let e = with_error(f.e_inf, f.e_inf_se).replace('-', "\u{2212}");
-                    let l = format!("{}: e∞ = {e}", s.label);
-                    labels.push(l.clone());
-                    l
-                })
-                .legend(move |c| legend_glyph(style, c));
+                .map_err(err)?;
+            let e = with_error(f.e_inf, f.e_inf_se).replace('-', "\u{2212}");
+            let l = format!("{}: e∞ = {e}", s.label);
+            if role.title {
+                panel_title(main, style, &l)?;
+            } else {
+                labels.push(l.clone());
+                fitted.label(l).legend(move |c| legend_glyph(style, c));
+            }
             drawn.extend(
                 grid.iter()
                     .map(|&x| chart.plotting_area().map_coordinate(&(x, at(x).0))),
@@ -842,9 +1074,36 @@ where
             drawn.push(chart.plotting_area().map_coordinate(&(x, p.1)));
         }
     }
+    if labels.is_empty() {
+        return Ok(());
+    }
     let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &drawn, &labels);
-    house_legend(&mut chart, corner)?;
-    root.present().map_err(err)
+    house_legend(&mut chart, corner)
+}
+
+/// A panel's title in its top margin: the series' line sample and marker, then its text.
+fn panel_title<DB: DrawingBackend>(
+    main: &DrawingArea<DB, Shift>,
+    style: SeriesStyle,
+    text: &str,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let y = pt(9.0) as i32;
+    let x = pt(12.0) as i32;
+    main.draw(&Glyph {
+        at: (x, y),
+        style,
+        line: true,
+        r: pt(2.0) as i32,
+        open: false,
+    })
+    .map_err(err)?;
+    let font = TextStyle::from(("sans-serif", pt(6.5)).into_font()).color(&BLACK);
+    let (_, h) = main.estimate_text_size(text, &font).map_err(err)?;
+    main.draw_text(text, &font, (x + pt(7.0) as i32, y - h as i32 / 2))
+        .map_err(err)
 }
 
 /// Draws a stability figure: distance against ε, log–log, one curve per size.
@@ -859,7 +1118,7 @@ where
     let pos: Vec<&(f64, f64, f64)> = fig
         .series
         .iter()
-        .flat_map(|s| s.points.iter())
+        .flat_map(|s| s.points.iter().chain(&s.before_rounding))
         .filter(|p| p.0 > 0.0 && p.1 > 0.0)
         .collect();
     if pos.is_empty() {
@@ -868,20 +1127,20 @@ where
     let (xlo, xhi) = pos
         .iter()
         .fold((f64::MAX, 0.0f64), |(l, h), p| (l.min(p.0), h.max(p.0)));
-    let (ylo, yhi) = pos.iter().fold((f64::MAX, 0.0f64), |(l, h), p| {
-        (l.min((p.1 - p.2).max(p.1 * 0.5)), h.max(p.1 + p.2))
-    });
+    let ylo = pos
+        .iter()
+        .fold(f64::MAX, |l, p| l.min((p.1 - p.2).max(p.1 * 0.5)));
+    // A distance between two outputs of norm √n is at most 2: the axis ends there, with the
+    // line at √2 (two unrelated outputs, overlap 0) inside it.
+    let (ylo, yhi) = ((ylo / 1.3).min(1.0), 2.0);
+    let (xlo, xhi) = (xlo / 1.6, xhi * 1.6);
     let mut chart = ChartBuilder::on(&main)
         .margin(pt(5.0) as u32)
         .x_label_area_size(pt(20.0) as u32)
         .y_label_area_size(pt(30.0) as u32)
         .build_cartesian_2d(
-            (xlo / 1.6..xhi * 1.6)
-                .log_scale()
-                .with_key_points(log_ticks(xlo / 1.6, xhi * 1.6)),
-            (ylo / 1.3..yhi * 4.0)
-                .log_scale()
-                .with_key_points(log_ticks(ylo / 1.3, yhi * 4.0)),
+            (xlo..xhi).log_scale().with_key_points(log_ticks(xlo, xhi)),
+            (ylo..yhi).log_scale().with_key_points(log_ticks(ylo, yhi)),
         )
         .map_err(err)?;
     house_mesh(
@@ -909,8 +1168,8 @@ where
             .copied()
             .filter(|p| p.0 > 0.0 && p.1 > 0.0)
             .collect();
-        let label = match s.slope {
-            Some(k) => format!("{}  (slope {k:.2})", s.label),
+        let label = match s.slope.filter(Slope::printable) {
+            Some(k) => format!("{}  (slope {})", s.label, with_error(k.slope, k.se)),
             None => s.label.clone(),
         };
         labels.push(label.clone());
@@ -937,10 +1196,109 @@ where
             drawn.push(chart.plotting_area().map_coordinate(&(p.0, p.1)));
             drawn.push(chart.plotting_area().map_coordinate(&(p.0, p.1 + p.2)));
         }
+        // Before rounding: the same colour and marker, open, on a dotted line.
+        let before: Vec<(f64, f64)> = s
+            .before_rounding
+            .iter()
+            .filter(|p| p.0 > 0.0 && p.1 > 0.0)
+            .map(|p| (p.0, p.1))
+            .collect();
+        chart
+            .draw_series(DashedLineSeries::new(
+                before.clone(),
+                pt(1.0) as u32,
+                pt(1.5) as u32,
+                color.stroke_width(2),
+            ))
+            .map_err(err)?;
+        for p in &before {
+            marker(chart.plotting_area(), i, *p, true)?;
+            drawn.push(chart.plotting_area().map_coordinate(p));
+        }
+    }
+    if fig.series.iter().any(|s| !s.before_rounding.is_empty()) {
+        let text = "dotted, open: before rounding";
+        labels.push(text.into());
+        chart
+            .draw_series(LineSeries::new(std::iter::empty::<(f64, f64)>(), BLACK))
+            .map_err(err)?
+            .label(text)
+            .legend(|(x, y)| {
+                EmptyElement::at((x, y))
+                    + PathElement::new(vec![(0, 0), (4, 0)], BLACK.stroke_width(2))
+                    + PathElement::new(vec![(10, 0), (14, 0)], BLACK.stroke_width(2))
+                    + PathElement::new(vec![(20, 0), (24, 0)], BLACK.stroke_width(2))
+            });
+    }
+    let root2 = std::f64::consts::SQRT_2;
+    theory_line(
+        &mut chart,
+        vec![(xlo, root2), (xhi, root2)],
+        "√2: unrelated outputs",
+    )?;
+    labels.push("√2: unrelated outputs".into());
+    for k in 0..=40 {
+        let x = xlo * (xhi / xlo).powf(k as f64 / 40.0);
+        drawn.push(chart.plotting_area().map_coordinate(&(x, root2)));
     }
     let corner = legend_corner(&chart.plotting_area().get_pixel_range(), &drawn, &labels);
     house_legend(&mut chart, corner)?;
     root.present().map_err(err)
+}
+
+/// The sizes run, as a second axis along the top of the energy figure: a tick at each n's
+/// position n^{−ω} (pixel x in `at`) and its value above it, values that would touch the one
+/// to their left left out (the largest n, leftmost, always shown), and "n =" before the first.
+fn n_axis<DB: DrawingBackend>(
+    main: &DrawingArea<DB, Shift>,
+    plot: (std::ops::Range<i32>, std::ops::Range<i32>),
+    at: &[(i32, u64)],
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    let font = pt(6.5);
+    let style = TextStyle::from(("sans-serif", font).into_font()).color(&BLACK);
+    // `plot` and `at` are in the backend's pixels; this area draws relative to its corner.
+    let (bx, by) = main.get_base_pixel();
+    let top = plot.1.start - by;
+    let at: Vec<(i32, u64)> = at.iter().map(|&(x, n)| (x - bx, n)).collect();
+    let tick = pt(2.5) as i32;
+    let size = |t: &str| main.estimate_text_size(t, &style).map_err(err);
+    // From the left (largest n, x nearest 0) to the right: keep a label when it clears the
+    // last one kept.
+    let mut sorted: Vec<(i32, u64)> = at;
+    sorted.sort_by_key(|p| p.0);
+    let gap = (0.4 * font) as i32;
+    let mut right_edge = i32::MIN;
+    let mut first_left = None;
+    for &(x, n) in &sorted {
+        main.draw(&PathElement::new(
+            vec![(x, top), (x, top - tick)],
+            BLACK.stroke_width(2),
+        ))
+        .map_err(err)?;
+        let text = n.to_string();
+        let (w, h) = size(&text)?;
+        let left = x - w as i32 / 2;
+        if left > right_edge + gap {
+            main.draw_text(&text, &style, (left, top - tick - 2 - h as i32))
+                .map_err(err)?;
+            right_edge = left + w as i32;
+            first_left.get_or_insert(left);
+        }
+    }
+    // The axis' name before its first value, where the plot's top-left corner leaves room.
+    if let Some(left) = first_left {
+        let (w, h) = size("n =")?;
+        main.draw_text(
+            "n =",
+            &style,
+            (left - 2 * gap - w as i32, top - tick - 2 - h as i32),
+        )
+        .map_err(err)?;
+    }
+    Ok(())
 }
 
 /// The energy figure's x-axis description, n^{−ω} with a real superscript (the exponent drawn
@@ -969,8 +1327,10 @@ where
         })
         .collect::<Result<_, _>>()?;
     let total: i32 = widths.iter().sum();
-    let mut x = (plot.0.start + plot.0.end) / 2 - total / 2;
-    let y = plot.1.end + pt(13.0) as i32;
+    // `plot` is in the backend's pixels; this area draws relative to its corner.
+    let (bx, by) = main.get_base_pixel();
+    let mut x = (plot.0.start + plot.0.end) / 2 - total / 2 - bx;
+    let y = plot.1.end + pt(13.0) as i32 - by;
     for ((text, style, dy), w) in pieces.iter().zip(&widths) {
         main.draw_text(text, style, (x, y + dy)).map_err(err)?;
         x += w;
@@ -1130,11 +1490,43 @@ fn legend_corner(
             .filter(|(px, py)| bx.contains(px) && by.contains(py))
             .count()
     };
-    corners
+    let (corner, count) = corners
         .into_iter()
-        .min_by_key(|(_, bx, by)| covered(&(bx.clone(), by.clone())))
-        .map(|c| c.0)
-        .expect("four corners")
+        .map(|(c, bx, by)| (c, covered(&(bx, by))))
+        .min_by_key(|c| c.1)
+        .expect("four corners");
+    LEGEND_COVERS.with(|c| c.borrow_mut().push(count));
+    corner
+}
+
+thread_local! {
+    /// How many drawn points each legend placed on this thread covers (by the estimated box):
+    /// read by the render tests.
+    static LEGEND_COVERS: std::cell::RefCell<Vec<usize>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// The pixels a polyline through `pts` (data coordinates) covers, sampled every few pixels
+/// along each segment: what a legend placed by [`legend_corner`] must not hide.
+fn line_pixels<DB, X, Y>(
+    area: &DrawingArea<DB, plotters::coord::cartesian::Cartesian2d<X, Y>>,
+    pts: &[(f64, f64)],
+) -> Vec<(i32, i32)>
+where
+    DB: DrawingBackend,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+{
+    let px: Vec<(i32, i32)> = pts.iter().map(|p| area.map_coordinate(p)).collect();
+    let mut out = Vec::new();
+    for w in px.windows(2) {
+        let ((x0, y0), (x1, y1)) = (w[0], w[1]);
+        let steps = ((x1 - x0).abs().max((y1 - y0).abs()) / 4).max(1);
+        for k in 0..steps {
+            out.push((x0 + (x1 - x0) * k / steps, y0 + (y1 - y0) * k / steps));
+        }
+    }
+    out.extend(px.last());
+    out
 }
 
 /// The legend box every figure uses.
@@ -1194,14 +1586,38 @@ mod tests {
         assert!(log_ticks(3.0, 4.0).is_empty());
     }
 
+    /// An exact power law gives its exponent with χ² = 0; the slope is printed only with at
+    /// least three points, a straight-line fit, and a slope clear of 0; its error is the
+    /// weighted-least-squares one (checked against the closed form for equal weights:
+    /// σ/sqrt(Σ(x − x̄)²) in log ε).
     #[test]
     fn slopes() {
+        let law = |e: f64| 2.0 * e.powf(0.5);
         let pts: Vec<(f64, f64, f64)> = [0.01, 0.1, 1.0]
             .iter()
-            .map(|&e: &f64| (e, 2.0 * e.powf(0.5), 0.0))
+            .map(|&e: &f64| (e, law(e), 0.02 * law(e)))
             .collect();
-        assert!((loglog_slope(&pts).unwrap() - 0.5).abs() < 1e-12);
-        assert_eq!(loglog_slope(&pts[..1]), None);
+        let f = loglog_fit(&pts).unwrap();
+        assert!((f.slope - 0.5).abs() < 1e-12 && f.chi2 < 1e-20 && f.dof == 1);
+        let sxx: f64 = [-1.0f64, 0.0, 1.0]
+            .iter()
+            .map(|d| (d * 10f64.ln()).powi(2))
+            .sum();
+        assert!((f.se - 0.02 / sxx.sqrt()).abs() < 1e-12, "{f:?}");
+        assert!(f.printable());
+        // Two points: a slope, but not printed (no degree of freedom to judge the line).
+        assert!(!loglog_fit(&pts[..2]).unwrap().printable());
+        assert_eq!(loglog_fit(&pts[..1]), None);
+        // Flat within errors: not printed.
+        let flat: Vec<(f64, f64, f64)> = [0.01, 0.1, 1.0]
+            .iter()
+            .zip([1.40, 1.41, 1.40])
+            .map(|(&e, d)| (e, d, 0.05))
+            .collect();
+        assert!(!loglog_fit(&flat).unwrap().printable());
+        // Not a line (a kink far outside the error bars): not printed.
+        let kink = [(0.01, 0.1, 0.001), (0.1, 1.0, 0.01), (1.0, 1.05, 0.0105)];
+        assert!(!loglog_fit(&kink).unwrap().printable());
     }
 
     /// On the lattice of n = 64 overlaps the width is a whole number of steps 2/64 and every
@@ -1256,6 +1672,76 @@ mod tests {
             legend_corner(&range, &[], &labels),
             SeriesLabelPosition::UpperRight
         ));
+    }
+
+    /// Render test: figures whose data reach every corner (energies spread over the whole
+    /// range at both ends of the axis, with a theory line; distances at both ends of ε) are
+    /// drawn with legends that cover no drawn point or line (by the legend box as estimated from
+    /// its font). Common practice: a legend never hides data.
+    #[test]
+    fn rendered_legends_cover_no_data() {
+        use crate::plot::{Size, to_svg};
+        let take = || LEGEND_COVERS.with(|c| std::mem::take(&mut *c.borrow_mut()));
+        take();
+        for k in 1..=4usize {
+            let series: Vec<EnergySeries> = (0..k)
+                .map(|i| EnergySeries {
+                    label: format!("algorithm {i}"),
+                    // Sizes from 64 to 2^20 (x from near 0 to the right end), energies at
+                    // three levels spanning the range: every corner holds data.
+                    points: (0..15)
+                        .map(|j| {
+                            let level = [0.75, 0.55, 0.65][(i + j) % 3];
+                            (64.0 * 2f64.powf(j as f64 * 14.0 / 14.0), level, 0.01)
+                        })
+                        .collect(),
+                    // A flat fit at the series' first level: a legend entry per series.
+                    fit: Some(Fit {
+                        e_inf: [0.75, 0.55, 0.65][i % 3],
+                        e_inf_se: 0.005,
+                        a: 0.0,
+                        a_se: 0.0,
+                        b: None,
+                        omega: 2.0 / 3.0,
+                        omega_se: 0.0,
+                        chi2: 1.0,
+                        dof: 3,
+                        warnings: vec![],
+                        cov: vec![vec![2.5e-5, 0.0], vec![0.0, 0.0]],
+                    }),
+                })
+                .collect();
+            let fig = EnergyFigure {
+                omega: 2.0 / 3.0,
+                series,
+                theory: vec![(0.7632, "Parisi value".into())],
+                caption: String::new(),
+            };
+            for size in [Size::OneColumn, Size::TwoColumn] {
+                to_svg(size, &fig).unwrap();
+                let covers = take();
+                assert!(
+                    !covers.is_empty() && covers.iter().all(|&c| c == 0),
+                    "{k} series: {covers:?}"
+                );
+            }
+        }
+        let fig = StabilityFigure {
+            title: String::new(),
+            series: (0..3)
+                .map(|i| StabilitySeries {
+                    label: format!("n = {}", 100 << i),
+                    points: vec![(0.001, 0.05 + 0.3 * i as f64, 0.01), (0.1, 1.3, 0.02)],
+                    before_rounding: vec![(0.001, 0.04, 0.01), (0.1, 1.2, 0.02)],
+                    slope: None,
+                })
+                .collect(),
+            caption: String::new(),
+            modulo_flip: true,
+        };
+        to_svg(Size::OneColumn, &fig).unwrap();
+        let covers = take();
+        assert!(covers == vec![0], "{covers:?}");
     }
 
     /// Tick labels share their decimals, use U+2212 and never read −0 (common practice in

@@ -140,11 +140,24 @@ pub fn pixels(size: Size) -> (u32, u32) {
     ((w * DPI).round() as u32, (h * DPI).round() as u32)
 }
 
+/// Pixel size of one figure at `size` (its own height).
+fn fig_pixels(size: Size, fig: &impl Figure) -> (u32, u32) {
+    (
+        (size.inches().0 * DPI).round() as u32,
+        (fig.height(size) * DPI).round() as u32,
+    )
+}
+
 /// A figure drawable on any plotters backend (SVG and PNG share one drawing routine).
 pub trait Figure {
     /// The caption, with its sources: written beside the image (`.tex`, and the `.csv`
     /// header), never into it.
     fn caption(&self) -> String;
+    /// The height in inches at `size` (the size's own, unless the figure needs more, as a
+    /// figure split into panels does).
+    fn height(&self, size: Size) -> f64 {
+        size.inches().1
+    }
     fn draw<DB: DrawingBackend>(
         &self,
         root: DrawingArea<DB, plotters::coord::Shift>,
@@ -156,13 +169,13 @@ pub trait Figure {
 /// Renders a figure to an SVG string sized in inches.
 pub fn to_svg(size: Size, fig: &impl Figure) -> Result<String, String> {
     register_font();
-    let (w, h) = pixels(size);
+    let (w, h) = fig_pixels(size, fig);
     let mut s = String::new();
     {
         let root = SVGBackend::with_string(&mut s, (w, h)).into_drawing_area();
         fig.draw(root)?;
     }
-    let (wi, hi) = size.inches();
+    let (wi, hi) = (size.inches().0, fig.height(size));
     let from = format!("width=\"{w}\" height=\"{h}\"");
     let to = format!("width=\"{wi}in\" height=\"{hi}in\"");
     Ok(s.replacen(&from, &to, 1))
@@ -171,7 +184,7 @@ pub fn to_svg(size: Size, fig: &impl Figure) -> Result<String, String> {
 /// Renders a figure to a PNG at 300 dpi (resolution recorded in the pHYs chunk).
 pub fn to_png(size: Size, fig: &impl Figure) -> Result<Vec<u8>, String> {
     register_font();
-    let (w, h) = pixels(size);
+    let (w, h) = fig_pixels(size, fig);
     let mut rgb = vec![255u8; (w * h * 3) as usize];
     {
         let root = BitMapBackend::with_buffer(&mut rgb, (w, h)).into_drawing_area();

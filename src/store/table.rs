@@ -615,6 +615,9 @@ pub struct Cells {
     pub distance: Vec<f64>,
     /// Whether `distance` was read from `distance_sym`.
     pub distance_is_sym: bool,
+    /// `distance_point_sym` (or `distance_point`): the distance between the algorithm's points
+    /// before rounding, NaN where the algorithm has none.
+    pub distance_point: Vec<f64>,
     /// The clause density α of constraint families (k-SAT); None elsewhere and in tables
     /// written before the column.
     pub density: Vec<Option<f64>>,
@@ -671,6 +674,10 @@ impl Cells {
             energy_perturbed: f64s("energy_perturbed")?,
             distance: f64s(if sym { "distance_sym" } else { "distance" })?,
             distance_is_sym: sym,
+            distance_point: ["distance_point_sym", "distance_point"]
+                .iter()
+                .find(|c| df.column(c).is_ok())
+                .map_or_else(|| Ok(vec![f64::NAN; df.height()]), |c| f64s(c))?,
         })
     }
 
@@ -732,5 +739,28 @@ impl Cells {
             }
         }
         (order, energies, distances)
+    }
+
+    /// As the distances of [`Cells::groups`], for the distances before rounding: only the
+    /// (label, n, ε) that have them.
+    pub fn point_distances(&self) -> DistanceSamples {
+        let mut out: DistanceSamples = BTreeMap::new();
+        for i in 0..self.len() {
+            if self.epsilon[i] == 0.0 || !self.distance_point[i].is_finite() {
+                continue;
+            }
+            let label = match self.density[i] {
+                Some(a) => with_density(&self.algorithm[i], a),
+                None => self.algorithm[i].clone(),
+            };
+            out.entry(label)
+                .or_default()
+                .entry(self.n[i])
+                .or_default()
+                .entry(self.epsilon[i].to_bits())
+                .or_default()
+                .push(self.distance_point[i]);
+        }
+        out
     }
 }
