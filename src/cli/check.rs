@@ -56,6 +56,9 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 "available_bytes": budget,
             },
             "time": { "upper_bound_seconds": bound, "jobs": parallel },
+            "algorithms": spec.algorithms.iter().map(|a| serde_json::json!({
+                "label": a.label, "kind": a.algo.kind(), "settings": a.algo.settings(),
+            })).collect::<Vec<_>>(),
         });
         out(&format!("{v}\n"));
     } else {
@@ -88,6 +91,25 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
             }
         );
         s += &format!("sweep       {sweep}\n");
+        // Every setting the cells run with, defaults filled in (the table's `settings`).
+        let width = spec
+            .algorithms
+            .iter()
+            .map(|a| a.label.len())
+            .max()
+            .unwrap_or(0);
+        for (i, a) in spec.algorithms.iter().enumerate() {
+            s += &format!(
+                "{}{:width$}  {}\n",
+                if i == 0 {
+                    "algorithms  "
+                } else {
+                    "            "
+                },
+                a.label,
+                a.algo.settings()
+            );
+        }
         s += &format!(
             "cells       {total} in total · {cached} cached · {} to run\n",
             total - cached

@@ -84,6 +84,16 @@ fn replay_passes_on_every_committed_example() {
         "perceptron-binary-capacity",
     ] {
         let dir = root.join(e);
+        // Committed numbers come from a committed tree: the manifest names a clean revision.
+        let manifest = std::fs::read_to_string(dir.join("manifest.toml")).unwrap();
+        let revision = manifest
+            .lines()
+            .find_map(|l| l.strip_prefix("git_revision = "))
+            .unwrap_or_else(|| panic!("{e}: no git_revision in the manifest"));
+        assert!(
+            !revision.contains("dirty") && revision.len() > 2,
+            "{e}: computed from an uncommitted tree ({revision})"
+        );
         let o = w.kiln(&[
             "replay",
             dir.to_str().unwrap(),

@@ -130,6 +130,34 @@ fn one_cell_by_key_prefix() {
     }
 }
 
+/// `kiln check` lists every algorithm with all its settings, defaults filled in (the string the
+/// table's `settings` column holds), on screen and in JSON.
+#[test]
+fn check_shows_settings_with_defaults() {
+    let w = Work::new();
+    let s = w.spec("small.toml", SMALL);
+    let o = w.kiln(&["check", "small.toml"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let text = String::from_utf8_lossy(&o.stdout).into_owned();
+    // SMALL gives anneal only `sweeps` and `beta`: `quench` is a default.
+    assert!(
+        text.contains("\"quench\":true") && text.contains("\"sweeps\":20"),
+        "{text}"
+    );
+    let o = w.kiln(&["check", "small.toml", "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    w.run_json(&s, &[]);
+    let df = table::read(&w.path().join("results/small/cells.parquet")).unwrap();
+    let settings = strings(&df, "settings");
+    for a in v["algorithms"].as_array().unwrap() {
+        let want = a["settings"].as_str().unwrap();
+        assert!(
+            settings.iter().any(|x| x == want),
+            "{want} not in the table"
+        );
+    }
+}
+
 /// A bare `kiln` is a one-screen start (exit 0) naming the default run and the starter.
 #[test]
 fn bare_kiln_is_a_start_screen() {
