@@ -1057,6 +1057,16 @@ where
                 )))
                 .map_err(err)?;
             marker(chart.plotting_area(), i, (0.0, f.e_inf), true)?;
+        } else if role.title {
+            panel_title(main, style, &s.label)?;
+        } else {
+            // No fit (too few sizes, say): the series is still named, by its marker.
+            labels.push(s.label.clone());
+            chart
+                .draw_series(LineSeries::new(std::iter::empty::<(f64, f64)>(), color))
+                .map_err(err)?
+                .label(s.label.clone())
+                .legend(move |c| legend_glyph(style, c));
         }
         for p in &s.points {
             let x = xs(p.0);
@@ -1726,6 +1736,23 @@ mod tests {
                 );
             }
         }
+        // A series without a fit (too few sizes) is still named in the legend.
+        let unfitted = EnergyFigure {
+            omega: 2.0 / 3.0,
+            series: vec![EnergySeries {
+                label: "lonely series".into(),
+                points: vec![(64.0, 0.7, 0.01)],
+                fit: None,
+            }],
+            theory: vec![],
+            caption: String::new(),
+        };
+        assert!(
+            to_svg(Size::OneColumn, &unfitted)
+                .unwrap()
+                .contains("lonely series")
+        );
+        take();
         let fig = StabilityFigure {
             title: String::new(),
             series: (0..3)
