@@ -181,6 +181,7 @@ pub fn execute(
     let cached_later = AtomicU64::new(0);
     let cost_done = AtomicU64::new(0.0f64.to_bits());
     let phase = Mutex::new(String::from("reference runs"));
+    let waiting = AtomicU64::new(0);
     let board = progress::Board::default();
     let mut phase_base: Vec<&Cell> = missing
         .iter()
@@ -209,6 +210,7 @@ pub fn execute(
         cost_done: &cost_done,
         cost_all: phase_base.iter().chain(&phase_eps).map(cost).sum(),
         phase: &phase,
+        waiting: &waiting,
         note: opts.note.as_deref(),
         started: Instant::now(),
     };
@@ -246,10 +248,10 @@ pub fn execute(
                 if i == 1 && eps_count == 0 {
                     continue;
                 }
-                let name = ["reference runs", "perturbed runs (ε > 0)"][i];
+                *phase.lock().expect("phase") =
+                    ["reference runs", "perturbed runs (ε > 0)"][i].into();
                 let mut pending = cells;
                 loop {
-                    *phase.lock().expect("phase") = name.into();
                     let deferred: Mutex<Vec<&Cell>> = Mutex::new(Vec::new());
                     pending.par_iter().with_max_len(1).for_each(|cell| {
                         if INTERRUPTED.load(Ordering::Relaxed) || abort.load(Ordering::Relaxed) {
@@ -272,6 +274,7 @@ pub fn execute(
                             }
                             Ok(Outcome::Cached(r)) => {
                                 new_records.lock().expect("lock").push(r);
+                                progress::add(&cost_done, cost(cell));
                                 cached_later.fetch_add(1, Ordering::Relaxed);
                                 bar.inc(1);
                             }
@@ -291,6 +294,7 @@ pub fn execute(
                         bar.set_message(line.compose(&board));
                     });
                     pending = deferred.into_inner().expect("lock");
+                    waiting.store(pending.len() as u64, Ordering::Relaxed);
                     if pending.is_empty() {
                         // The next phase reads this one's outputs from the cache.
                         flush(&writes);
@@ -301,10 +305,6 @@ pub fn execute(
                         flush(&writes);
                         break;
                     }
-                    *phase.lock().expect("phase") = format!(
-                        "waiting for {} cells claimed by other runners",
-                        pending.len()
-                    );
                     std::thread::sleep(std::time::Duration::from_millis(150));
                 }
             }

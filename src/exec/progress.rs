@@ -151,6 +151,8 @@ pub struct Line<'a> {
     pub cost_done: &'a AtomicU64,
     pub cost_all: f64,
     pub phase: &'a Mutex<String>,
+    /// Cells of this phase held by other runners, waited for.
+    pub waiting: &'a AtomicU64,
     pub note: Option<&'a str>,
     pub started: Instant,
 }
@@ -171,6 +173,10 @@ impl Line<'_> {
         );
         if failed > 0 {
             s += &format!(", {failed} failed");
+        }
+        let waiting = self.waiting.load(Ordering::Relaxed);
+        if waiting > 0 {
+            s += &format!(" │ waiting for {waiting} cells claimed by other runners");
         }
         // Finished cells plus the shares the cells in flight report of themselves.
         let done = f64::from_bits(self.cost_done.load(Ordering::Relaxed)) + board.in_flight();
@@ -234,6 +240,7 @@ mod tests {
         let (computed, reused, failed) = (AtomicU64::new(5), AtomicU64::new(2), AtomicU64::new(1));
         let cost_done = AtomicU64::new(0.0f64.to_bits());
         let phase = Mutex::new("reference runs".to_string());
+        let waiting = AtomicU64::new(0);
         let line = Line {
             experiment: "demo",
             total: 20,
@@ -244,6 +251,7 @@ mod tests {
             cost_done: &cost_done,
             cost_all: 100.0,
             phase: &phase,
+            waiting: &waiting,
             note: None,
             started: Instant::now(),
         };
@@ -256,5 +264,7 @@ mod tests {
         assert!(text.contains("estimating"), "{text}");
         add(&cost_done, 50.0);
         assert!(line.compose(&board).contains("left"));
+        waiting.store(4, Ordering::Relaxed);
+        assert!(line.compose(&board).contains("waiting for 4 cells"));
     }
 }

@@ -582,7 +582,13 @@ fn validate(raw: RawSpec, loc: &Locator) -> Result<Spec, SpecError> {
         Some(fit),
     ) = (model, models, sizes, seeds, replicas, epsilons, fit)
     else {
-        unreachable!("every section without an error has a value");
+        // Every section without an error has a value; should one not, refuse rather than panic.
+        return Err(loc.at(
+            None,
+            "sweep",
+            "the spec could not be read completely",
+            Some("run `kiln check` on it and report this message".into()),
+        ));
     };
 
     let cells = sizes.len() as u128
