@@ -759,6 +759,7 @@ impl<C, DB: DrawingBackend> Drawable<DB> for Glyph<C> {
 
 /// A legend entry: a line sample with the series' marker on it.
 fn legend_glyph(style: SeriesStyle, (x, y): (i32, i32)) -> Glyph<(i32, i32)> {
+    LEGEND_STYLES.with(|c| c.borrow_mut().push(style));
     Glyph {
         at: (x + 15, y),
         style,
@@ -1100,6 +1101,7 @@ fn panel_title<DB: DrawingBackend>(
 where
     DB::ErrorType: 'static,
 {
+    LEGEND_STYLES.with(|c| c.borrow_mut().push(style));
     let y = pt(9.0) as i32;
     let x = pt(12.0) as i32;
     main.draw(&Glyph {
@@ -1510,6 +1512,8 @@ fn legend_corner(
 }
 
 thread_local! {
+    /// The series styles legend entries were drawn with on this thread (read by the grey test).
+    static LEGEND_STYLES: std::cell::RefCell<Vec<SeriesStyle>> = const { std::cell::RefCell::new(Vec::new()) };
     /// How many drawn points each legend placed on this thread covers (by the estimated box):
     /// read by the render tests.
     static LEGEND_COVERS: std::cell::RefCell<Vec<usize>> = const { std::cell::RefCell::new(Vec::new()) };
@@ -1682,6 +1686,113 @@ mod tests {
             legend_corner(&range, &[], &labels),
             SeriesLabelPosition::UpperRight
         ));
+    }
+
+    /// Grey test, through the drawing code: every figure kind with six series draws its legend
+    /// entries (or panel titles) with six styles that differ pairwise in marker shape (outline
+    /// or fill), so a grey print tells them apart even where grey levels coincide (common
+    /// practice for print).
+    #[test]
+    fn every_figure_kind_reads_in_grey() {
+        use crate::plot::{Size, to_png};
+        let take = || LEGEND_STYLES.with(|c| std::mem::take(&mut *c.borrow_mut()));
+        let labels: Vec<String> = (0..6).map(|i| format!("series {i}")).collect();
+        let check = |kind: &str, styles: Vec<SeriesStyle>| {
+            assert!(styles.len() >= 6, "{kind}: {} legend entries", styles.len());
+            let distinct: Vec<SeriesStyle> = styles.iter().fold(Vec::new(), |mut v, s| {
+                if !v.contains(s) {
+                    v.push(*s);
+                }
+                v
+            });
+            assert_eq!(distinct.len(), 6, "{kind}: {distinct:?}");
+            for (i, a) in distinct.iter().enumerate() {
+                for b in &distinct[..i] {
+                    assert_ne!(a.shape, b.shape, "{kind}: two entries share a marker");
+                }
+            }
+        };
+        take();
+        let energy = EnergyFigure {
+            omega: 2.0 / 3.0,
+            series: labels
+                .iter()
+                .map(|l| EnergySeries {
+                    label: l.clone(),
+                    points: vec![(64.0, 0.7, 0.01), (128.0, 0.72, 0.01)],
+                    fit: None,
+                })
+                .collect(),
+            theory: vec![],
+            caption: String::new(),
+        };
+        // Six series: panels, each named by its title line.
+        to_png(Size::TwoColumn, &energy).unwrap();
+        check("energy (panels)", take());
+        let mut four = energy.clone();
+        four.series.truncate(4);
+        to_png(Size::OneColumn, &four).unwrap();
+        assert_eq!(take().len(), 4, "energy");
+        let stability = StabilityFigure {
+            title: String::new(),
+            series: labels
+                .iter()
+                .map(|l| StabilitySeries {
+                    label: l.clone(),
+                    points: vec![(0.01, 0.5, 0.01), (0.1, 1.0, 0.01)],
+                    before_rounding: vec![],
+                    slope: None,
+                })
+                .collect(),
+            caption: String::new(),
+            modulo_flip: false,
+        };
+        to_png(Size::OneColumn, &stability).unwrap();
+        check("stability", take());
+        let overlaps = OverlapFigure {
+            title: String::new(),
+            series: labels
+                .iter()
+                .map(|l| OverlapSeries {
+                    label: l.clone(),
+                    bins: vec![(-1.0, 0.0, 0.4), (0.0, 1.0, 0.6)],
+                })
+                .collect(),
+            caption: String::new(),
+            markers: None,
+            distribution: None,
+        };
+        to_png(Size::OneColumn, &overlaps).unwrap();
+        check("overlaps", take());
+        let traces = TraceFigure {
+            title: String::new(),
+            unit: "sweep".into(),
+            series: labels
+                .iter()
+                .map(|l| TraceSeries {
+                    label: l.clone(),
+                    points: vec![(1.0, 0.5), (10.0, 0.7)],
+                })
+                .collect(),
+            caption: String::new(),
+            target: None,
+        };
+        to_png(Size::OneColumn, &traces).unwrap();
+        check("traces", take());
+        let scan = ScanFigure {
+            panels: vec![ScanPanel {
+                x_label: "β".into(),
+                y_label: "energy".into(),
+                series: labels
+                    .iter()
+                    .map(|l| (l.clone(), vec![(0.5, 0.3, 0.01), (1.0, 0.5, 0.01)]))
+                    .collect(),
+                theory: None,
+            }],
+            caption: String::new(),
+        };
+        to_png(Size::OneColumn, &scan).unwrap();
+        check("scan", take());
     }
 
     /// Render test: figures whose data reach every corner (energies spread over the whole
