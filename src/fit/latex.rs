@@ -48,6 +48,7 @@ pub fn text(s: &str) -> String {
             'δ' => "\\delta",
             'ε' => "\\varepsilon",
             'κ' => "\\kappa",
+            'χ' => "\\chi",
             'λ' => "\\lambda",
             'ξ' => "\\xi",
             'σ' => "\\sigma",
@@ -77,7 +78,12 @@ pub fn text(s: &str) -> String {
     let mut i = 0;
     while i < chars.len() {
         let c = chars[i];
+        // An underscore inside a name (`distance_sym`: a word of two or more letters before
+        // it) is the character itself, not a subscript.
+        let in_name =
+            c == '_' && i >= 2 && chars[i - 1].is_alphabetic() && chars[i - 2].is_alphabetic();
         match c {
+            '_' if in_name => out.push_str("\\_"),
             '^' | '_' if i + 1 < chars.len() && !chars[i + 1].is_whitespace() => {
                 // The token after it: an optional sign, then letters, digits or a symbol.
                 let mut j = i + 1;
@@ -134,6 +140,11 @@ mod tests {
     fn captions_in_latex() {
         assert_eq!(super::text("n^-ω fits"), "n$^{-\\omega}$ fits");
         assert_eq!(super::text("a 50% & b_1"), "a 50\\% \\& b$_{1}$");
+        // Column names keep their underscores (a double subscript would not compile).
+        assert_eq!(
+            super::text("column distance_point_sym, χ²"),
+            "column distance\\_point\\_sym, $\\chi^2$"
+        );
         assert_eq!(
             super::text("at ε = 0, ±1 SE."),
             "at $\\varepsilon$ = 0, $\\pm$1 SE."
