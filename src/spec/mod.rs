@@ -104,26 +104,29 @@ pub(crate) fn type_words(v: &toml::Value) -> String {
     }
 }
 
-/// The whole numbers of a list (each element located) and whether every element was one; the
-/// others' errors are kept for the report.
-fn whole_list(
+/// The elements of a list that `read` accepts (each located) and whether it accepted every
+/// one; the others' errors ("… is not `what`", a hint naming `plural` with `example`) are
+/// kept for the report.
+fn list_of<T>(
     raw: &Spanned<Vec<Spanned<toml::Value>>>,
     key: &str,
     loc: &Locator,
     errs: &mut Vec<SpecError>,
-) -> (Spanned<Vec<Spanned<i64>>>, bool) {
+    (what, plural, example): (&str, &str, &str),
+    read: impl Fn(&toml::Value) -> Option<T>,
+) -> (Spanned<Vec<Spanned<T>>>, bool) {
     let mut out = Vec::new();
     let mut ok = true;
     for v in raw.get_ref() {
-        match v.get_ref() {
-            toml::Value::Integer(i) => out.push(Spanned::new(v.span(), *i)),
-            other => {
+        match read(v.get_ref()) {
+            Some(x) => out.push(Spanned::new(v.span(), x)),
+            None => {
                 ok = false;
                 errs.push(loc.at(
                     Some(v.span()),
                     key,
-                    format!("{} is not a whole number", type_words(other)),
-                    Some(format!("`{key}` lists whole numbers, e.g. [64, 128, 256]")),
+                    format!("{} is not {what}", type_words(v.get_ref())),
+                    Some(format!("`{key}` lists {plural}, e.g. {example}")),
                 ));
             }
         }
@@ -131,31 +134,43 @@ fn whole_list(
     (Spanned::new(raw.span(), out), ok)
 }
 
-/// A list of numbers (whole numbers read as numbers), or the errors of the elements that are not.
+/// A list of whole numbers ([`list_of`]).
+fn whole_list(
+    raw: &Spanned<Vec<Spanned<toml::Value>>>,
+    key: &str,
+    loc: &Locator,
+    errs: &mut Vec<SpecError>,
+) -> (Spanned<Vec<Spanned<i64>>>, bool) {
+    list_of(
+        raw,
+        key,
+        loc,
+        errs,
+        ("a whole number", "whole numbers", "[64, 128, 256]"),
+        |v| v.as_integer(),
+    )
+}
+
+/// A list of numbers, whole numbers read as numbers ([`list_of`]); None if any element is not.
 fn number_list(
     raw: &Spanned<Vec<Spanned<toml::Value>>>,
     key: &str,
     loc: &Locator,
     errs: &mut Vec<SpecError>,
 ) -> Option<Spanned<Vec<Spanned<f64>>>> {
-    let mut out = Vec::new();
-    let mut ok = true;
-    for v in raw.get_ref() {
-        match v.get_ref() {
-            toml::Value::Integer(i) => out.push(Spanned::new(v.span(), *i as f64)),
-            toml::Value::Float(x) => out.push(Spanned::new(v.span(), *x)),
-            other => {
-                ok = false;
-                errs.push(loc.at(
-                    Some(v.span()),
-                    key,
-                    format!("{} is not a number", type_words(other)),
-                    Some(format!("`{key}` lists numbers, e.g. [0.01, 0.1]")),
-                ));
-            }
-        }
-    }
-    ok.then(|| Spanned::new(raw.span(), out))
+    let (list, ok) = list_of(
+        raw,
+        key,
+        loc,
+        errs,
+        ("a number", "numbers", "[0.01, 0.1]"),
+        |v| match v {
+            toml::Value::Integer(i) => Some(*i as f64),
+            toml::Value::Float(x) => Some(*x),
+            _ => None,
+        },
+    );
+    ok.then_some(list)
 }
 
 /// One `[[algorithm]]` table, kept as parsed values with their positions: which keys apply
