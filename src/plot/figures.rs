@@ -1328,7 +1328,7 @@ where
     let pieces = [
         ("n", &base, 0),
         ("\u{2212}ω", &small, -(pt(3.0) as i32)),
-        (&*format!(",  ω = {omega:.3}"), &base, 0),
+        (&*format!(", ω = {omega:.3}"), &base, 0),
     ];
     let widths: Vec<i32> = pieces
         .iter()
