@@ -712,11 +712,7 @@ impl Cells {
             if seen.insert(label.clone()) {
                 order.push(label.clone());
             }
-            // Stability at several densities is drawn per (algorithm, density).
-            let stability_label = match self.density[i] {
-                Some(a) => with_density(label, a),
-                None => label.clone(),
-            };
+            let stability_label = self.stability_label(i);
             if self.epsilon[i] != 0.0 && seen.insert(stability_label.clone()) {
                 order.push(stability_label.clone());
             }
@@ -728,17 +724,30 @@ impl Cells {
                     .or_default()
                     .push((self.n[i], self.energy[i]));
             } else {
-                distances
-                    .entry(stability_label)
-                    .or_default()
-                    .entry(self.n[i])
-                    .or_default()
-                    .entry(self.epsilon[i].to_bits())
-                    .or_default()
-                    .push(self.distance[i]);
+                self.push_distance(&mut distances, i, stability_label, self.distance[i]);
             }
         }
         (order, energies, distances)
+    }
+
+    /// How row i's algorithm is named in stability figures: per (algorithm, density) when the
+    /// sweep has densities (`walksat α=4`).
+    fn stability_label(&self, i: usize) -> String {
+        match self.density[i] {
+            Some(a) => with_density(&self.algorithm[i], a),
+            None => self.algorithm[i].clone(),
+        }
+    }
+
+    /// Files distance `d` of row i under label → n → ε.
+    fn push_distance(&self, into: &mut DistanceSamples, i: usize, label: String, d: f64) {
+        into.entry(label)
+            .or_default()
+            .entry(self.n[i])
+            .or_default()
+            .entry(self.epsilon[i].to_bits())
+            .or_default()
+            .push(d);
     }
 
     /// As the distances of [`Cells::groups`], for the distances before rounding: only the
@@ -749,17 +758,7 @@ impl Cells {
             if self.epsilon[i] == 0.0 || !self.distance_point[i].is_finite() {
                 continue;
             }
-            let label = match self.density[i] {
-                Some(a) => with_density(&self.algorithm[i], a),
-                None => self.algorithm[i].clone(),
-            };
-            out.entry(label)
-                .or_default()
-                .entry(self.n[i])
-                .or_default()
-                .entry(self.epsilon[i].to_bits())
-                .or_default()
-                .push(self.distance_point[i]);
+            self.push_distance(&mut out, i, self.stability_label(i), self.distance_point[i]);
         }
         out
     }
