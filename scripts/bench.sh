@@ -107,6 +107,12 @@ else
     echo "bench: numpy/scipy/threadpoolctl unavailable (no venv or pip): BLAS and eigsh rows skipped" >&2
     p_mv=""; p_eig=""; p_mv_env=""; p_eig_env=""; kernel=""; kernel_env=""
 fi
+# reference fair|env FAIR ENV: sets $src to that run's output and $tag to its kernel; fails
+# when that run did not happen (no override in the environment).
+reference() {
+    if [ "$1" = fair ]; then src=$2; tag="$kernel"; else src=$3; tag="$kernel_env, override"; fi
+    [ -n "$src" ]
+}
 
 echo "bench: kiln runs (no-op rerun, cores, memory)" >&2
 work="$out/work"; mkdir -p "$work"
@@ -197,8 +203,7 @@ read -r no_m no_lo no_hi <<<"$noop"
             # one triangle, as kiln does).
             for op in gemv symv; do
                 for which in fair env; do
-                    if [ "$which" = fair ]; then src=$p_mv; tag="$kernel"; else src=$p_mv_env; tag="$kernel_env, override"; fi
-                    [ -n "$src" ] || continue
+                    reference "$which" "$p_mv" "$p_mv_env" || continue
                     pm=$(echo "$src" | grep "op=$op n=$n dtype=float64 threads=1 ")
                     pt=$(echo "$pm" | get t_med_ms)
                     printf '%-34s %-34s %-34s %s\n' "matvec f64 n=$n 1 thread (ms)" \
@@ -221,8 +226,7 @@ read -r no_m no_lo no_hi <<<"$noop"
         kt=$(echo "$ke" | get t_med_s)
         if [ -n "$p_eig" ]; then
             for which in fair env; do
-                if [ "$which" = fair ]; then src=$p_eig; tag="$kernel"; else src=$p_eig_env; tag="$kernel_env, override"; fi
-                [ -n "$src" ] || continue
+                reference "$which" "$p_eig" "$p_eig_env" || continue
                 pe=$(echo "$src" | grep "n=$n ")
                 pt=$(echo "$pe" | get t_med_s)
                 printf '%-34s %-34s %-34s %s\n' "top eigenvector n=$n (s)" \

@@ -145,18 +145,15 @@ fn pairs(a: &DataFrame, b: &DataFrame) -> anyhow::Result<Pairs> {
         .enumerate()
         .filter_map(|(i, k)| ib.get(k.as_str()).map(|&j| (label(a, i, k), i, j)))
         .collect();
-    let only_a = pa
-        .iter()
-        .enumerate()
-        .filter(|(_, k)| !ib.contains_key(k.as_str()))
-        .map(|(i, k)| label(a, i, k))
-        .collect();
-    let only_b = pb
-        .iter()
-        .enumerate()
-        .filter(|(_, k)| !ia.contains_key(k.as_str()))
-        .map(|(i, k)| label(b, i, k))
-        .collect();
+    // The rows of one side whose place the other lacks.
+    let only = |d: &DataFrame, mine: &[String], other: &BTreeMap<&str, usize>| -> Vec<String> {
+        mine.iter()
+            .enumerate()
+            .filter(|(_, k)| !other.contains_key(k.as_str()))
+            .map(|(i, k)| label(d, i, k))
+            .collect()
+    };
+    let (only_a, only_b) = (only(a, &pa, &ib), only(b, &pb, &ia));
     Ok((both, only_a, only_b))
 }
 

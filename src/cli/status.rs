@@ -51,6 +51,14 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
             t.missing += 1;
         }
     }
+    // The user's `i/N` of 0-based part i.
+    let part = |i: u32| {
+        shard::Shard {
+            index: i,
+            count: a.parts,
+        }
+        .label()
+    };
     let mut all = Tally::default();
     for t in per.values() {
         all.cells += t.cells;
@@ -67,7 +75,7 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
             "all": row(&all),
             "parts": per.iter().map(|(i, t)| {
                 let mut r = row(t);
-                r["part"] = serde_json::json!(format!("{}/{}", i + 1, a.parts));
+                r["part"] = serde_json::json!(part(*i));
                 r
             }).collect::<Vec<_>>(),
         });
@@ -92,7 +100,7 @@ pub fn run(a: &StatusArgs) -> anyhow::Result<ExitCode> {
         };
         if a.parts > 1 {
             for (i, t) in &per {
-                s += &line(format!("{}/{}", i + 1, a.parts), t);
+                s += &line(part(*i), t);
             }
         }
         s += &line("all".into(), &all);

@@ -168,7 +168,7 @@ pub fn execute(
     let cached = records.len() as u64;
 
     let bar = if opts.progress {
-        ProgressBar::with_draw_target(Some(total), ProgressDrawTarget::stderr())
+        ProgressBar::with_draw_target(None, ProgressDrawTarget::stderr())
     } else {
         ProgressBar::hidden()
     };
@@ -270,20 +270,17 @@ pub fn execute(
                                 new_records.lock().expect("lock").push(r);
                                 progress::add(&cost_done, cost(cell));
                                 computed.fetch_add(1, Ordering::Relaxed);
-                                bar.inc(1);
                             }
                             Ok(Outcome::Cached(r)) => {
                                 new_records.lock().expect("lock").push(r);
                                 progress::add(&cost_done, cost(cell));
                                 cached_later.fetch_add(1, Ordering::Relaxed);
-                                bar.inc(1);
                             }
                             Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
                             Ok(Outcome::Failed(m)) => {
                                 failures.lock().expect("lock").push((cell.key.hex(), m));
                                 progress::add(&cost_done, cost(cell));
                                 failed.fetch_add(1, Ordering::Relaxed);
-                                bar.inc(1);
                             }
                             Err(e) => {
                                 abort.store(true, Ordering::Relaxed);

@@ -63,40 +63,25 @@ impl Slope {
 /// 1/σ² with σ = se/y (the error of log y), floored at 1e-3 so that a point whose seeds all
 /// agree does not take all the weight. None below two points.
 pub fn loglog_fit(points: &[(f64, f64, f64)]) -> Option<Slope> {
-    let pts: Vec<(f64, f64, f64)> = points
-        .iter()
-        .filter(|p| p.0 > 0.0 && p.1 > 0.0)
-        .map(|p| {
-            let sigma = (p.2 / p.1).max(1e-3);
-            (p.0.ln(), p.1.ln(), 1.0 / (sigma * sigma))
-        })
-        .collect();
+    let pts: Vec<&(f64, f64, f64)> = points.iter().filter(|p| p.0 > 0.0 && p.1 > 0.0).collect();
     if pts.len() < 2 {
         return None;
     }
-    let w: f64 = pts.iter().map(|p| p.2).sum();
-    let mx = pts.iter().map(|p| p.2 * p.0).sum::<f64>() / w;
-    let my = pts.iter().map(|p| p.2 * p.1).sum::<f64>() / w;
-    let sxx: f64 = pts.iter().map(|p| p.2 * (p.0 - mx) * (p.0 - mx)).sum();
-    if sxx <= 0.0 {
-        return None;
-    }
-    let sxy: f64 = pts.iter().map(|p| p.2 * (p.0 - mx) * (p.1 - my)).sum();
-    let slope = sxy / sxx;
-    let chi2: f64 = pts
-        .iter()
-        .map(|p| p.2 * (p.1 - my - slope * (p.0 - mx)).powi(2))
-        .sum();
+    let x: Vec<Vec<f64>> = pts.iter().map(|p| vec![1.0, p.0.ln()]).collect();
+    let y: Vec<f64> = pts.iter().map(|p| p.1.ln()).collect();
+    let w: Vec<f64> = pts.iter().map(|p| (p.2 / p.1).max(1e-3).powi(-2)).collect();
+    // The project's weighted least squares (QR); None when every ε is the same.
+    let sol = crate::fit::wls::solve(&x, &y, &w)?;
     let dof = pts.len() - 2;
     let birge = if dof > 0 {
-        (chi2 / dof as f64).sqrt().max(1.0)
+        (sol.chi2 / dof as f64).sqrt().max(1.0)
     } else {
         1.0
     };
     Some(Slope {
-        slope,
-        se: birge / sxx.sqrt(),
-        chi2,
+        slope: sol.beta[1],
+        se: birge * sol.cov[1][1].sqrt(),
+        chi2: sol.chi2,
         dof,
     })
 }
@@ -759,6 +744,7 @@ impl<C, DB: DrawingBackend> Drawable<DB> for Glyph<C> {
 
 /// A legend entry: a line sample with the series' marker on it.
 fn legend_glyph(style: SeriesStyle, (x, y): (i32, i32)) -> Glyph<(i32, i32)> {
+    #[cfg(test)]
     LEGEND_STYLES.with(|c| c.borrow_mut().push(style));
     Glyph {
         at: (x + 15, y),
@@ -979,14 +965,7 @@ where
             theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
             labels.push(label.clone());
         } else {
-            chart
-                .draw_series(DashedLineSeries::new(
-                    vec![(0.0, *v), (xmax, *v)],
-                    pt(3.0) as u32,
-                    pt(2.0) as u32,
-                    BLACK.stroke_width(3),
-                ))
-                .map_err(err)?;
+            dashed(&mut chart, vec![(0.0, *v), (xmax, *v)])?;
         }
         drawn.extend((0..=40).map(|k| {
             chart
@@ -1101,6 +1080,7 @@ fn panel_title<DB: DrawingBackend>(
 where
     DB::ErrorType: 'static,
 {
+    #[cfg(test)]
     LEGEND_STYLES.with(|c| c.borrow_mut().push(style));
     let y = pt(9.0) as i32;
     let x = pt(12.0) as i32;
@@ -1440,14 +1420,7 @@ where
     X: Ranged<ValueType = f64>,
     Y: Ranged<ValueType = f64>,
 {
-    chart
-        .draw_series(DashedLineSeries::new(
-            pts,
-            pt(3.0) as u32,
-            pt(2.0) as u32,
-            BLACK.stroke_width(3),
-        ))
-        .map_err(err)?
+    dashed(chart, pts)?
         .label(label.to_string())
         .legend(|(x, y)| {
             // Dashed, as the line is.
@@ -1457,6 +1430,28 @@ where
                 + PathElement::new(vec![(24, 0), (30, 0)], BLACK.stroke_width(3))
         });
     Ok(())
+}
+
+/// A dashed black reference line through `pts`, as theory lines are drawn (without a legend
+/// entry; [`theory_line`] adds one).
+fn dashed<'a, 'b, DB, X, Y>(
+    chart: &'b mut ChartContext<'a, DB, plotters::coord::cartesian::Cartesian2d<X, Y>>,
+    pts: Vec<(f64, f64)>,
+) -> Result<&'b mut plotters::chart::SeriesAnno<'a, DB>, String>
+where
+    DB: DrawingBackend + 'a,
+    DB::ErrorType: 'static,
+    X: Ranged<ValueType = f64>,
+    Y: Ranged<ValueType = f64>,
+{
+    chart
+        .draw_series(DashedLineSeries::new(
+            pts,
+            pt(3.0) as u32,
+            pt(2.0) as u32,
+            BLACK.stroke_width(3),
+        ))
+        .map_err(err)
 }
 
 /// The corner of the plotting area `range` (pixels) where a legend box of `labels` covers the
@@ -1507,10 +1502,13 @@ fn legend_corner(
         .map(|(c, bx, by)| (c, covered(&(bx, by))))
         .min_by_key(|c| c.1)
         .expect("four corners");
+    #[cfg(test)]
     LEGEND_COVERS.with(|c| c.borrow_mut().push(count));
+    let _ = count;
     corner
 }
 
+#[cfg(test)]
 thread_local! {
     /// The series styles legend entries were drawn with on this thread (read by the grey test).
     static LEGEND_STYLES: std::cell::RefCell<Vec<SeriesStyle>> = const { std::cell::RefCell::new(Vec::new()) };

@@ -198,16 +198,25 @@ pub fn k_step_value(xi: &Mixture, sol: &cube::Solution) -> Option<f64> {
 pub fn parisi_best(cache: &Cache, xi: &Mixture) -> Result<(f64, String), StoreError> {
     let full = full_rsb(cache, xi)?;
     let s = cube::Settings::default();
+    let ks = (1..=2)
+        .map(|k| k_rsb(cache, xi, k, &s))
+        .collect::<Result<Vec<_>, _>>()?;
+    Ok(best_bound(xi, &full, &ks))
+}
+
+/// The least of the full-RSB value and the resolved k-step values (`ks[k − 1]` is the k-step
+/// solution), with the name of the solution that attains it.
+fn best_bound(xi: &Mixture, full: &full::FullRsb, ks: &[cube::Solution]) -> (f64, String) {
     let mut bounds = vec![(
         full.value,
         format!("full RSB on {} free q-intervals", full.m.len()),
     )];
-    for k in 1..=2 {
-        if let Some(v) = k_step_value(xi, &k_rsb(cache, xi, k, &s)?) {
-            bounds.push((v, format!("{k}-step RSB")));
+    for (k, sol) in ks.iter().enumerate() {
+        if let Some(v) = k_step_value(xi, sol) {
+            bounds.push((v, format!("{}-step RSB", k + 1)));
         }
     }
-    Ok(least(bounds))
+    least(bounds)
 }
 
 /// [`stored`]: the best Parisi bound with its solution's name, and the algorithmic threshold.
@@ -228,22 +237,11 @@ pub fn stored(cache: &Cache, xi: &Mixture) -> Result<Stored, StoreError> {
     let Some(full) = read(&settings_key(xi, &s, "theory-full-rsb"))? else {
         return Ok((None, alg));
     };
-    let mut bounds = vec![(
-        full.value,
-        format!("full RSB on {} free q-intervals", full.m.len()),
-    )];
-    let ks = cube::Settings::default();
-    for k in 1..=2 {
-        match stored_k_rsb(cache, &k_rsb_key(xi, k, &ks))? {
-            Some(sol) => {
-                if let Some(v) = k_step_value(xi, &sol) {
-                    bounds.push((v, format!("{k}-step RSB")));
-                }
-            }
-            None => return Ok((None, alg)),
-        }
-    }
-    Ok((Some(least(bounds)), alg))
+    let s = cube::Settings::default();
+    let ks = (1..=2)
+        .map(|k| stored_k_rsb(cache, &k_rsb_key(xi, k, &s)))
+        .collect::<Result<Option<Vec<_>>, _>>()?;
+    Ok((ks.map(|ks| best_bound(xi, &full, &ks)), alg))
 }
 
 /// The least of several upper bounds on the Parisi value, with its name (the first of equals).
