@@ -31,7 +31,7 @@
 use kiln::algo::{anneal, descent, glauber, walksat};
 use kiln::linalg::top_eigen;
 use kiln::model::Couplings;
-use kiln::model::sk::sample;
+use kiln::model::sk::{Storage, sample, sample_as};
 use kiln::model::sparse::regular;
 use kiln::rng::{Purpose, stream};
 use std::time::Instant;
@@ -72,6 +72,9 @@ fn main() {
     }
     if parts.contains(&"matvec") {
         matvec(reps);
+    }
+    if parts.contains(&"implicit") {
+        implicit(reps);
     }
     if parts.contains(&"eigen") {
         eigen(reps.min(3));
@@ -154,30 +157,63 @@ fn sparse(reps: usize) {
 }
 
 fn matvec(reps: usize) {
-    for n in [4096usize, 8192] {
-        let d = sample(n, Couplings::Gaussian, &[9; 32], 0.0);
-        let x: Vec<f64> = (0..n)
-            .map(|i| ((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
-            .collect();
-        let mut y = vec![0.0; n];
-        d.matvec(&x, &mut y); // warm
-        let mut ts = Vec::new();
-        for _ in 0..reps.max(5) * 4 {
-            let t = Instant::now();
-            d.matvec(&x, &mut y);
-            ts.push(t.elapsed().as_secs_f64());
+    for storage in [Storage::F64, Storage::F32] {
+        for n in [4096usize, 8192] {
+            let d = sample_as(storage, n, Couplings::Gaussian, &[9; 32], 0.0);
+            let x: Vec<f64> = (0..n)
+                .map(|i| ((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
+                .collect();
+            let mut y = vec![0.0; n];
+            d.matvec(&x, &mut y); // warm
+            let mut ts = Vec::new();
+            for _ in 0..reps.max(5) * 4 {
+                let t = Instant::now();
+                d.matvec(&x, &mut y);
+                ts.push(t.elapsed().as_secs_f64());
+            }
+            let (m, lo, hi) = stats(&ts);
+            // f64: the bytes of the full matrix (the product reads half of them: bench.sh
+            // halves it); f32: the bytes of the triangle, all of which it reads.
+            let (dtype, bytes) = match storage {
+                Storage::F32 => ("float32", (n * (n - 1) / 2 * 4) as f64),
+                _ => ("float64", (n * n * 8) as f64),
+            };
+            println!(
+                "prog=kiln_matvec n={n} dtype={dtype} threads=1 t_med_ms={:.3} t_min_ms={:.3} t_max_ms={:.3} GBs_med={:.2} check={:.6}",
+                m * 1e3,
+                lo * 1e3,
+                hi * 1e3,
+                bytes / m / 1e9,
+                y.iter().sum::<f64>()
+            );
         }
-        let (m, lo, hi) = stats(&ts);
-        let bytes = (n * n * 8) as f64;
-        println!(
-            "prog=kiln_matvec n={n} dtype=float64 threads=1 t_med_ms={:.3} t_min_ms={:.3} t_max_ms={:.3} GBs_med={:.2} check={:.6}",
-            m * 1e3,
-            lo * 1e3,
-            hi * 1e3,
-            bytes / m / 1e9,
-            y.iter().sum::<f64>()
-        );
     }
+}
+
+/// The implicit storage's product at n = 4096 on all threads: couplings generated per second
+/// (n(n−1)/2 per product).
+fn implicit(reps: usize) {
+    let n = 4096usize;
+    let d = sample_as(Storage::Implicit, n, Couplings::Gaussian, &[9; 32], 0.0);
+    let x: Vec<f64> = (0..n).map(|i| (i % 7) as f64 - 3.0).collect();
+    let mut y = vec![0.0; n];
+    let mut ts = Vec::new();
+    for _ in 0..reps.max(3) {
+        let t = Instant::now();
+        d.matvec(&x, &mut y);
+        ts.push(t.elapsed().as_secs_f64());
+    }
+    let (m, lo, hi) = stats(&ts);
+    let pairs = (n * (n - 1) / 2) as f64;
+    println!(
+        "prog=kiln_implicit_matvec n={n} threads={} t_med_ms={:.1} t_min_ms={:.1} t_max_ms={:.1} couplings_per_s={:.3e} ns_per_coupling_core={:.1}",
+        rayon::current_num_threads(),
+        m * 1e3,
+        lo * 1e3,
+        hi * 1e3,
+        pairs / m,
+        m * 1e9 * rayon::current_num_threads() as f64 / pairs
+    );
 }
 
 /// Residual target of the eigenvector runs, ‖Av − λv‖ ≤ tol·|λ|. The reference, eigsh with
@@ -218,7 +254,7 @@ fn couplings(reps: usize) {
         let t = Instant::now();
         let d = sample(n, Couplings::Gaussian, &[r as u8 + 30; 32], 0.0);
         rates.push((n * (n - 1) / 2) as f64 / t.elapsed().as_secs_f64());
-        std::hint::black_box(d.row(0)[1]);
+        std::hint::black_box(d.coupling(0, 1));
     }
     let (m, lo, hi) = stats(&rates);
     println!(

@@ -45,6 +45,7 @@ read_bw=$(echo "$c_stream" | get sum_median_GBs)
 # One reference run and one kiln run per round, alternating, so that a change in the load of
 # the (shared) machine hits both sides alike.
 c_d=""; c_a=""; c_s=""; k_d=""; k_a=""; k_s=""; bw_4096=""; bw_8192=""; bw_s=""
+bw32_4096=""; bw32_8192=""
 for r in $(seq 1 "$runs"); do
     # Three instances a side per round (descent takes only milliseconds); new ones each round.
     c_d+=" $("$out/sk_greedy" 2048 3 $((3 * r)) | get t_total_med_ms)"
@@ -58,9 +59,13 @@ for r in $(seq 1 "$runs"); do
     # each round's pair is what the table reports (their median, with min-max).
     bw=$(OMP_NUM_THREADS=1 "$out/stream" 1 5 | get sum_median_GBs)
     km=$(RAYON_NUM_THREADS=1 "$kb" 2048 1 matvec)
-    g4=$(echo "$km" | grep "kiln_matvec n=4096 " | get GBs_med)
-    g8=$(echo "$km" | grep "kiln_matvec n=8192 " | get GBs_med)
+    g4=$(echo "$km" | grep "kiln_matvec n=4096 dtype=float64" | get GBs_med)
+    g8=$(echo "$km" | grep "kiln_matvec n=8192 dtype=float64" | get GBs_med)
     bw_4096+=" $(calc "$g4 / 2 / $bw")"; bw_8192+=" $(calc "$g8 / 2 / $bw")"
+    # storage = "f32": the bytes of the triangle, all of which the product reads.
+    f4=$(echo "$km" | grep "kiln_matvec n=4096 dtype=float32" | get GBs_med)
+    f8=$(echo "$km" | grep "kiln_matvec n=8192 dtype=float32" | get GBs_med)
+    bw32_4096+=" $(calc "$f4 / $bw")"; bw32_8192+=" $(calc "$f8 / $bw")"
     bw_s+=" $bw"
 done
 col() { echo "$1" | tr ' ' '\n' | grep . | stats; }
@@ -73,6 +78,7 @@ k=$(RAYON_NUM_THREADS=1 "$kb" 2048 "$runs" matvec,eigen)
 c_stream2=$(OMP_NUM_THREADS=1 "$out/stream" 1 10)
 read_bw=$(printf '%s\n%s\n' "$read_bw" "$(echo "$c_stream2" | get sum_median_GBs)" | sort -g | tail -1)
 kc=$("$kb" 2048 "$runs" couplings)
+ki=$("$kb" 2048 "$runs" implicit)
 
 py=""
 venv="$HOME/.cache/kiln-bench-venv"
@@ -93,12 +99,12 @@ if [ -n "$py" ]; then
     # together, its kernel printed by threadpoolctl (the blasinfo line); when the environment
     # sets an override, the reference also runs under it and both rows are reported.
     p_mv=$(env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE OPENBLAS_NUM_THREADS=1 \
-        "$py" "$ref/dense_matvec.py" --n 4096 8192 --dtype float64 --threads 1)
+        "$py" "$ref/dense_matvec.py" --n 4096 8192 --dtype float64 float32 --threads 1)
     p_eig=$(env -u OPENBLAS_CORETYPE -u OPENBLAS_L2_SIZE OPENBLAS_NUM_THREADS=1 \
         "$py" "$ref/top_eig.py" --n 2048 4096 --reps "$runs" --seed 1)
     p_mv_env=""; p_eig_env=""
     if [ -n "${OPENBLAS_CORETYPE:-}${OPENBLAS_L2_SIZE:-}" ]; then
-        p_mv_env=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/dense_matvec.py" --n 4096 8192 --dtype float64 --threads 1)
+        p_mv_env=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/dense_matvec.py" --n 4096 8192 --dtype float64 float32 --threads 1)
         p_eig_env=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/top_eig.py" --n 2048 4096 --reps "$runs" --seed 1)
     fi
     kernel=$(echo "$p_mv" | grep "prog=blasinfo" | head -1 | sed 's/.*architecture=\([^ ]*\).*/\1/')
@@ -178,6 +184,10 @@ EOF
 rss_kib=$( { /usr/bin/time -f "maxrss_kib=%M" "$kiln" run "$work/mem.toml" --cache "$work/cm" \
     --results "$work/rm" --quiet --jobs 1; } 2>&1 | get maxrss_kib)
 coupling_mib=$(calc "8 * 8192 * 8192 / 1048576")
+sed -e 's/^family = "sk"/family = "sk"\nstorage = "f32"/' "$work/mem.toml" > "$work/mem32.toml"
+rss32_kib=$( { /usr/bin/time -f "maxrss_kib=%M" "$kiln" run "$work/mem32.toml" --cache "$work/cm32" \
+    --results "$work/rm32" --quiet --jobs 1; } 2>&1 | get maxrss_kib)
+triangle_mib=$(calc "4 * 8192 * 8191 / 2 / 1048576")
 
 mkdir -p results/bench
 report=results/bench/bench-$(date -u +%Y%m%dT%H%M%SZ).txt
@@ -196,7 +206,7 @@ read -r no_m no_lo no_hi <<<"$noop"
     printf '%-34s %-34s %-34s %s\n' "sparse anneal 3-reg n=1e6 (ns/att)" "$ks_m ($ks_lo-$ks_hi)" \
         "C $cs_m ($cs_lo-$cs_hi)" "$(calc "$ks_m / $cs_m") [<= 1.2]"
     for n in 4096 8192; do
-        km=$(echo "$k" | grep "kiln_matvec n=$n ")
+        km=$(echo "$k" | grep "kiln_matvec n=$n dtype=float64")
         kt=$(echo "$km" | get t_med_ms)
         if [ -n "$p_mv" ]; then
             # A @ x (gemv, what a user writes) and the symmetric product (symv, which reads
@@ -221,6 +231,24 @@ read -r no_m no_lo no_hi <<<"$noop"
         printf '%-34s %-34s %-34s %s\n' "  same, paired per round" "-" "stream sum $bw_m ($bw_lo-$bw_hi)" \
             "read $b_m ($b_lo-$b_hi) of bandwidth [>= 0.8]"
     done
+    for n in 4096 8192; do
+        km=$(echo "$k" | grep "kiln_matvec n=$n dtype=float32")
+        kt=$(echo "$km" | get t_med_ms)
+        if [ -n "$p_mv" ]; then
+            for which in fair env; do
+                reference "$which" "$p_mv" "$p_mv_env" || continue
+                pm=$(echo "$src" | grep "op=symv n=$n dtype=float32 threads=1 ")
+                printf '%-34s %-34s %-34s %s\n' "matvec f32 n=$n 1 thread (ms)" \
+                    "$kt ($(echo "$km" | get t_min_ms)-$(echo "$km" | get t_max_ms))" \
+                    "numpy symv f32 [$tag] $(echo "$pm" | get t_med_ms)" \
+                    "$(calc "$kt / $(echo "$pm" | get t_med_ms)") (sums in f64 here, f32 there)"
+            done
+        fi
+        if [ "$n" = 4096 ]; then pr=$bw32_4096; else pr=$bw32_8192; fi
+        read -r b_m b_lo b_hi <<<"$(col "$pr")"
+        printf '%-34s %-34s %-34s %s\n' "  f32 triangle read, paired" "$(echo "$km" | get GBs_med) GB/s" \
+            "stream sum $bw_m ($bw_lo-$bw_hi)" "read $b_m ($b_lo-$b_hi) of bandwidth [>= 0.8]"
+    done
     for n in 2048 4096; do
         ke=$(echo "$k" | grep "kiln_eigen n=$n ")
         kt=$(echo "$ke" | get t_med_s)
@@ -240,6 +268,9 @@ read -r no_m no_lo no_hi <<<"$noop"
     done
     printf '%-34s %-34s %-34s %s\n' "coupling generation n=4096 (1/s)" \
         "$(echo "$kc" | get couplings_per_s_med) ($(echo "$kc" | get threads) threads)" "-" "-"
+    printf '%-34s %-34s %-34s %s\n' "implicit couplings, product n=4096" \
+        "$(echo "$ki" | get couplings_per_s) /s ($(echo "$ki" | get threads) threads)" "-" \
+        "$(echo "$ki" | get ns_per_coupling_core) ns per coupling and core"
     printf '%-34s %-34s %-34s %s\n' "10k-cell no-op rerun (s)" "$no_m ($no_lo-$no_hi)" "-" "[< 1 s]"
     printf '%-34s %-34s %-34s %s\n' "128 anneal cells n=1024, 1|2 jobs" "$t1 / $t2 s" "-" \
         "speed-up $(calc "$t1 / $t2") [>= 1.8]"
@@ -249,14 +280,17 @@ read -r no_m no_lo no_hi <<<"$noop"
         "speed-up $(calc "$m1 / $m2") (reference)"
     printf '%-34s %-34s %-34s %s\n' "peak RSS, SK n=8192 descent (MiB)" "$(calc "$rss_kib / 1024")" \
         "couplings $coupling_mib" "$(calc "$rss_kib / 1024 / $coupling_mib") [<= 1.2 + const]"
+    printf '%-34s %-34s %-34s %s\n' "peak RSS, same with storage f32" "$(calc "$rss32_kib / 1024")" \
+        "f32 triangle $triangle_mib" "$(calc "$rss32_kib / 1024 / $triangle_mib") [<= 1.2]"
     echo
     echo "raw:"; echo "$c_stream"; echo "$c_stream2"
     echo "paired read/stream per round: n=4096:$bw_4096; n=8192:$bw_8192; stream sum GB/s:$bw_s"
+    echo "paired f32 read/stream per round: n=4096:$bw32_4096; n=8192:$bw32_8192"
     echo "C descent t_total_ms (med min max): $c_desc"
     echo "C dense attempts/s: $c_sa"; echo "C sparse ns/attempt: $c_sp"
     echo "kiln descent t_total_ms: $k_desc"; echo "kiln dense attempts/s: $k_sa"
     echo "kiln sparse ns/attempt: $k_sp"
-    echo "$k"; echo "$kc"; echo "$p_mv"; echo "$p_eig"
+    echo "$k"; echo "$kc"; echo "$ki"; echo "$p_mv"; echo "$p_eig"
     if [ -n "$p_mv_env" ]; then
         echo "under the environment's override (OPENBLAS_CORETYPE=${OPENBLAS_CORETYPE:-unset} OPENBLAS_L2_SIZE=${OPENBLAS_L2_SIZE:-unset}):"
         echo "$p_mv_env"; echo "$p_eig_env"

@@ -106,6 +106,46 @@ fn sym4_plain(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4]) -> [f64; 4]
     out
 }
 
+/// Rows of a symmetric product held in f32 (the `storage = "f32"` triangle), [`ROWS32`] at a
+/// time, with fused multiply–adds (IEEE fma: one rounding, the same on every machine —
+/// `f64::mul_add`): each entry widened exactly to f64; for each row r, four partial sums
+/// s_l ← fma(a_r[k], x[k], s_l) over k ≡ l (mod 4), combined as (s0 + s2) + (s1 + s3), then
+/// the tail by fma; and y[k] ← fma(a_7[k], c_7, … fma(a_0[k], c_0, y[k]) …), rows in order.
+/// Eight rows share one pass over x and y (four left the product short of the memory's
+/// bandwidth: x and y traffic, measured with scripts/bench.sh).
+#[inline(always)]
+fn sym_f32_plain(a: [&[f32]; ROWS32], x: &[f64], y: &mut [f64], c: [f64; ROWS32]) -> [f64; ROWS32] {
+    let n = x.len().min(y.len());
+    let full = n / 4 * 4;
+    let w = |r: usize, k: usize| a[r][k] as f64;
+    let upd = |yk: f64, k: usize| (0..ROWS32).fold(yk, |v, r| w(r, k).mul_add(c[r], v));
+    let mut acc = [[0.0f64; 4]; ROWS32];
+    for k0 in (0..full).step_by(4) {
+        for l in 0..4 {
+            let k = k0 + l;
+            for r in 0..ROWS32 {
+                acc[r][l] = w(r, k).mul_add(x[k], acc[r][l]);
+            }
+            y[k] = upd(y[k], k);
+        }
+    }
+    let mut out = [0.0; ROWS32];
+    for r in 0..ROWS32 {
+        let mut s = (acc[r][0] + acc[r][2]) + (acc[r][1] + acc[r][3]);
+        for k in full..n {
+            s = w(r, k).mul_add(x[k], s);
+        }
+        out[r] = s;
+    }
+    for k in full..n {
+        y[k] = upd(y[k], k);
+    }
+    out
+}
+
+/// Rows per pass of the f32 symmetric product.
+pub const ROWS32: usize = 8;
+
 #[inline(always)]
 fn axpy_plain(y: &mut [f64], c: f64, x: &[f64]) {
     for (yi, &xi) in y.iter_mut().zip(x) {
@@ -118,7 +158,7 @@ mod avx2 {
     //! The same arithmetic with explicit 256-bit operations: register j holds partial sums
     //! 4j..4j+3, each step is a separate multiply then add (no fused multiply–add), so every
     //! partial sum sees the same operations in the same order as the baseline code.
-    use super::{LANES, PREFETCH_AHEAD, combine};
+    use super::{LANES, PREFETCH_AHEAD, PREFETCH_AHEAD_F32, ROWS32, combine};
     use std::arch::x86_64::*;
 
     /// The sixteen partial sums held in four registers, in lane order.
@@ -186,6 +226,25 @@ mod avx2 {
         combine(&acc) + tail
     }
 
+    /// Prefetches element t of every row in `p` (rows of length n), or, past their ends,
+    /// element t − n of the `next` rows that have one. A hint only: never changes a result.
+    #[inline(always)]
+    fn prefetch_rows<T, const HINT: i32>(p: &[*const T], next: &[&[T]], t: usize, n: usize) {
+        if t < n {
+            for r in p {
+                // SAFETY: a prefetch of any address is harmless (wrapping_add: no UB).
+                unsafe { _mm_prefetch::<HINT>(r.wrapping_add(t) as *const i8) };
+            }
+        } else {
+            for r in next {
+                if t - n < r.len() {
+                    // SAFETY: as above.
+                    unsafe { _mm_prefetch::<HINT>(r.as_ptr().wrapping_add(t - n) as *const i8) };
+                }
+            }
+        }
+    }
+
     #[target_feature(enable = "avx2")]
     pub(super) fn sym4(
         a: [&[f64]; 4],
@@ -214,18 +273,7 @@ mod avx2 {
                 // and it cannot know where the next block's rows start. Near the rows' ends
                 // the prefetches run on into `next` (never into the parts of rows the
                 // product does not read). Hints only: results are unchanged.
-                let t = k + PREFETCH_AHEAD;
-                if t < n {
-                    for r in p {
-                        _mm_prefetch::<_MM_HINT_T0>(r.wrapping_add(t) as *const i8);
-                    }
-                } else {
-                    for r in next {
-                        if t - n < r.len() {
-                            _mm_prefetch::<_MM_HINT_T0>(r.as_ptr().wrapping_add(t - n) as *const i8);
-                        }
-                    }
-                }
+                prefetch_rows::<_, _MM_HINT_T0>(&p, &next, k + PREFETCH_AHEAD, n);
             }
             // SAFETY: k + 3 < full ≤ n ≤ every slice's length (asserted above).
             unsafe {
@@ -262,6 +310,71 @@ mod avx2 {
         out
     }
 
+    /// [`super::sym_f32_plain`]'s arithmetic: four f32 entries widened to four doubles
+    /// (exact), the fused multiply–adds in the same order.
+    #[target_feature(enable = "avx2,fma")]
+    pub(super) fn sym_f32(
+        a: [&[f32]; ROWS32],
+        x: &[f64],
+        y: &mut [f64],
+        c: [f64; ROWS32],
+        next: [&[f32]; ROWS32],
+    ) -> [f64; ROWS32] {
+        let n = x.len().min(y.len());
+        assert!(a.iter().all(|r| r.len() >= n));
+        let full = n / 4 * 4;
+        let (px, py) = (x.as_ptr(), y.as_mut_ptr());
+        let p = a.map(|r| r.as_ptr());
+        let cv = c.map(|v| _mm256_set1_pd(v));
+        let mut acc = [_mm256_setzero_pd(); ROWS32];
+        // One step: four columns of the rows (the order of `sym_f32_plain`).
+        let step = |k: usize, acc: &mut [__m256d; ROWS32]| {
+            // SAFETY: callers pass k + 3 < full ≤ n ≤ every slice's length (asserted above).
+            unsafe {
+                let xv = _mm256_loadu_pd(px.add(k));
+                let mut yv = _mm256_loadu_pd(py.add(k));
+                for r in 0..ROWS32 {
+                    let ar = _mm256_cvtps_pd(_mm_loadu_ps(p[r].add(k)));
+                    acc[r] = _mm256_fmadd_pd(ar, xv, acc[r]);
+                    yv = _mm256_fmadd_pd(ar, cv[r], yv);
+                }
+                _mm256_storeu_pd(py.add(k), yv);
+            }
+        };
+        let lines = full / 16 * 16;
+        let mut k = 0;
+        while k < lines {
+            // One prefetch per cache line (16 floats) and row, 4 KiB ahead into L2, running on
+            // into `next` near the rows' ends, as in `sym4`. Hints only.
+            prefetch_rows::<_, _MM_HINT_T1>(&p, &next, k + PREFETCH_AHEAD_F32, n);
+            step(k, &mut acc);
+            step(k + 4, &mut acc);
+            step(k + 8, &mut acc);
+            step(k + 12, &mut acc);
+            k += 16;
+        }
+        while k < full {
+            step(k, &mut acc);
+            k += 4;
+        }
+        let w = |r: usize, i: usize| a[r][i] as f64;
+        let mut out = [0.0; ROWS32];
+        for r in 0..ROWS32 {
+            let mut l = [0.0f64; 4];
+            // SAFETY: l has four entries.
+            unsafe { _mm256_storeu_pd(l.as_mut_ptr(), acc[r]) };
+            let mut s = (l[0] + l[2]) + (l[1] + l[3]);
+            for i in full..n {
+                s = w(r, i).mul_add(x[i], s);
+            }
+            out[r] = s;
+        }
+        for i in full..n {
+            y[i] = (0..ROWS32).fold(y[i], |v, r| w(r, i).mul_add(c[r], v));
+        }
+        out
+    }
+
     #[target_feature(enable = "avx2")]
     pub(super) fn axpy(y: &mut [f64], c: f64, x: &[f64]) {
         let n = y.len().min(x.len());
@@ -288,6 +401,12 @@ mod avx2 {
 /// sweep over 64–512 at n = 4096 and 8192 (bytes read per second against a sequential sum).
 #[cfg(target_arch = "x86_64")]
 const PREFETCH_AHEAD: usize = 256;
+
+/// How far ahead (in floats) [`sym_f32`] prefetches its eight row streams into L2: 4 KiB.
+/// Chosen by trials of 128–2048 floats into L1 or L2 at n = 4096 and 8192, each paired with a
+/// sequential sum (the machine's load moved both by ±25%; this one was best in the pairs).
+#[cfg(target_arch = "x86_64")]
+const PREFETCH_AHEAD_F32: usize = 1024;
 
 #[cfg(target_arch = "x86_64")]
 #[inline(always)]
@@ -348,6 +467,25 @@ pub fn sym4(a: [&[f64]; 4], x: &[f64], y: &mut [f64], c: [f64; 4], next: [&[f64]
     sym4_plain(a, x, y, c)
 }
 
+/// [`ROWS32`] rows of a symmetric product held in f32 (see `sym_f32_plain` for the fixed
+/// order and the fused multiply–adds): entries widened exactly, sums in f64.
+#[inline]
+pub fn sym_f32(
+    a: [&[f32]; ROWS32],
+    x: &[f64],
+    y: &mut [f64],
+    c: [f64; ROWS32],
+    next: [&[f32]; ROWS32],
+) -> [f64; ROWS32] {
+    #[cfg(target_arch = "x86_64")]
+    if has_avx2() && std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the CPU supports AVX2 and FMA (checked at run time).
+        return unsafe { avx2::sym_f32(a, x, y, c, next) };
+    }
+    let _ = next;
+    sym_f32_plain(a, x, y, c)
+}
+
 /// y += c·x (elementwise, no reduction: identical on every path).
 #[inline]
 pub fn axpy(y: &mut [f64], c: f64, x: &[f64]) {
@@ -395,6 +533,17 @@ mod tests {
                 let r2 = sym4_plain(rows, &a[..m], &mut y6, c);
                 assert_eq!(r1.map(f64::to_bits), r2.map(f64::to_bits));
                 assert_eq!(y5, y6);
+                let f: Vec<f32> = a.iter().map(|&v| v as f32).collect();
+                let g: Vec<f32> = b.iter().map(|&v| v as f32).collect();
+                let rows32: [&[f32]; ROWS32] =
+                    std::array::from_fn(|r| if r % 2 == 0 { &f[r / 2..] } else { &g[r / 2..] });
+                let m = n - ROWS32.min(n) / 2;
+                let c8: [f64; ROWS32] = std::array::from_fn(|r| 0.5 - r as f64 * 0.75);
+                let (mut y7, mut y8) = (b[..m].to_vec(), b[..m].to_vec());
+                let r3 = sym_f32(rows32, &a[..m], &mut y7, c8, [&g[..m / 2]; ROWS32]);
+                let r4 = sym_f32_plain(rows32, &a[..m], &mut y8, c8);
+                assert_eq!(r3.map(f64::to_bits), r4.map(f64::to_bits));
+                assert_eq!(y7, y8);
             }
             // And the pattern is the documented one: lanes k mod 16, tree, then the tail.
             let mut lanes = [0.0f64; LANES];

@@ -71,8 +71,16 @@ impl Rows for crate::model::sk::Dense {
     }
     #[inline]
     fn row_for_each(&self, i: usize, mut f: impl FnMut(usize, f64)) {
-        for (j, &a) in self.row(i).iter().enumerate() {
-            f(j, a)
+        if let Some(row) = self.full_row(i) {
+            for (j, &a) in row.iter().enumerate() {
+                f(j, a)
+            }
+        } else {
+            let mut row = vec![0.0; self.n()];
+            self.row_into(i, &mut row);
+            for (j, &a) in row.iter().enumerate() {
+                f(j, a)
+            }
         }
     }
     fn energy(&self, s: &[i8]) -> f64 {

@@ -28,6 +28,10 @@ pub struct FitArgs {
     /// Drop sizes below N. Default: `[fit] min_n`, else none.
     #[arg(long, value_name = "N")]
     pub min_n: Option<u64>,
+    /// Drop sizes above N (to see what the fit would say without the largest sizes, on the
+    /// same seeds). Default: none.
+    #[arg(long, value_name = "N")]
+    pub max_n: Option<u64>,
     /// Bootstrap replicates over instance seeds (0 to skip). Default: `[fit] bootstrap`,
     /// else 1000.
     #[arg(long, value_name = "B")]
@@ -98,7 +102,8 @@ pub fn run(a: &FitArgs) -> anyhow::Result<ExitCode> {
         .as_ref()
         .is_some_and(|m| m.family.spins() && m.mixture().is_some() && m.field == 0.0);
     let cells = crate::store::table::Cells::read(&table_path)?;
-    let study = fit::study::extrapolate(&cells, &params, min_n, settings.reference_only, bootstrap);
+    let sizes = min_n..=a.max_n.unwrap_or(u64::MAX);
+    let study = fit::study::extrapolate(&cells, &params, sizes, settings.reference_only, bootstrap);
     let (rows, diffs, problems) = (&study.rows, &study.differences, &study.problems);
     // The threshold view of a constraint family swept over densities.
     let solved = fit::study::solved(&cells);

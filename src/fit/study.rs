@@ -58,12 +58,12 @@ pub struct Study {
     pub problems: Vec<String>,
 }
 
-/// Fits every group of the table: sizes below `min_n` dropped, only ε = 0 when
+/// Fits every group of the table: only the sizes in `sizes`, only ε = 0 when
 /// `reference_only`, `bootstrap` paired replicates (0 to skip).
 pub fn extrapolate(
     cells: &Cells,
     params: &Params,
-    min_n: u64,
+    sizes: std::ops::RangeInclusive<u64>,
     reference_only: bool,
     bootstrap: usize,
 ) -> Study {
@@ -72,7 +72,7 @@ pub fn extrapolate(
     let energy = &cells.energy_perturbed;
     let mut groups: Groups = BTreeMap::new();
     for i in 0..cells.len() {
-        if ns[i] < min_n || (reference_only && eps[i] != 0.0) {
+        if !sizes.contains(&ns[i]) || (reference_only && eps[i] != 0.0) {
             continue;
         }
         groups

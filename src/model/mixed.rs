@@ -97,7 +97,7 @@ impl Mixed {
         let mut m = vec![0.0; n * n];
         if let Some(d) = &self.dense {
             for i in 0..n {
-                m[i * n..(i + 1) * n].copy_from_slice(d.row(i));
+                d.row_into(i, &mut m[i * n..(i + 1) * n]);
             }
         }
         for t in &self.tensors {

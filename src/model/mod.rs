@@ -10,6 +10,7 @@
 //!   instance, and every ε sees the same perturbation direction (J' moves continuously with ε).
 
 pub mod families;
+pub mod implicit;
 pub mod ksat;
 pub mod mixed;
 pub mod perceptron;
@@ -298,7 +299,7 @@ impl ModelSpec {
 
     /// The SK model with the given coupling law.
     pub fn sk(couplings: Couplings) -> ModelSpec {
-        ModelSpec::new(families::sk::Sk, couplings)
+        ModelSpec::new(families::sk::Sk::default(), couplings)
     }
 
     /// The mixed p-spin model on the cube.

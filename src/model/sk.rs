@@ -23,25 +23,151 @@ use rayon::prelude::*;
 /// Revision of this sampler. Bump when a seed's numbers change.
 pub const REVISION: u32 = 1;
 
-/// Peak bytes of a dense SK instance of size n: the n×n f64 matrix plus O(n) work space.
-pub fn instance_bytes(n: u64) -> u128 {
-    let n = n as u128;
-    8 * n * n + 64 * n
+/// How the couplings of an SK instance are held (`[model] storage`), a part of the cell key
+/// when not the default.
+/// - `F64`: the full symmetric matrix in f64 (8n² bytes), each row contiguous;
+/// - `F32`: one triangle in f32 (2n(n−1) bytes): the f64 couplings sampled exactly as for
+///   `F64`, then rounded once to f32; kernels read f32 and accumulate in f64. Its instance is
+///   the f64 one rounded, so its numbers differ from f64 storage by that rounding;
+/// - `Implicit`: no matrix: every coupling recomputed from a counter-based generator keyed by
+///   (instance, i, j) ([`super::implicit`]); O(n) memory, n²/2 generations per product. A
+///   different instance of the same law as the stored ones.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Storage {
+    #[default]
+    F64,
+    F32,
+    Implicit,
 }
 
-/// Dense symmetric coupling matrix A = J/√n, zero diagonal.
+impl Storage {
+    /// The names written in `storage = "…"`, in variant order.
+    pub const NAMES: [&'static str; 3] = ["f64", "f32", "implicit"];
+
+    pub fn name(self) -> &'static str {
+        Self::NAMES[self as usize]
+    }
+
+    pub fn from_index(i: usize) -> Storage {
+        [Storage::F64, Storage::F32, Storage::Implicit][i]
+    }
+}
+
+/// Peak bytes of a dense SK instance of size n held as f64: the n×n matrix plus O(n) work space.
+pub fn instance_bytes(n: u64) -> u128 {
+    instance_bytes_as(Storage::F64, n)
+}
+
+/// Peak bytes of a dense SK instance of size n under `storage`: the couplings plus work space
+/// (f32: one row in f64 per sampling thread; implicit: the product's [`BLOCKS`] partial sums).
+pub fn instance_bytes_as(storage: Storage, n: u64) -> u128 {
+    let n = n as u128;
+    match storage {
+        Storage::F64 => 8 * n * n + 64 * n,
+        Storage::F32 => 4 * n * n.saturating_sub(1) / 2 + 64 * n + 8 * n * 64,
+        Storage::Implicit => 8 * n * BLOCKS as u128 + 64 * n,
+    }
+}
+
+/// Dense symmetric coupling matrix A = J/√n, zero diagonal, in one of three storages.
 pub struct Dense {
     n: usize,
-    a: Vec<f64>,
+    store: Store,
 }
+
+enum Store {
+    /// Row-major n×n.
+    Full(Vec<f64>),
+    /// The upper triangle, row by row: row i's entries j = i+1..n from [`upper_offset`]`(n, i)`.
+    Upper(Vec<f32>),
+    /// No storage.
+    Implicit(super::implicit::Generator),
+}
+
+/// Where row i's upper part (j = i+1..n) starts in the packed triangle.
+#[inline(always)]
+fn upper_offset(n: usize, i: usize) -> usize {
+    i * (2 * n - i - 1) / 2
+}
+
+/// Fixed blocks of rows of an implicit product (each a partial sum, added in block order), so
+/// the result does not depend on the thread count.
+pub const BLOCKS: usize = 64;
 
 struct SendPtr(*mut f64);
 unsafe impl Send for SendPtr {}
 unsafe impl Sync for SendPtr {}
 
-/// Samples the instance (ε = 0) or its correlated copy (ε > 0).
+/// Samples the instance (ε = 0) or its correlated copy (ε > 0), held as f64.
 pub fn sample(n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Dense {
     sample_weighted(n, couplings, 0.5, instance, epsilon)
+}
+
+/// Samples the instance or its copy under `storage` (see [`Storage`]).
+pub fn sample_as(
+    storage: Storage,
+    n: usize,
+    couplings: Couplings,
+    instance: &Id,
+    epsilon: f64,
+) -> Dense {
+    match storage {
+        Storage::F64 => sample(n, couplings, instance, epsilon),
+        Storage::F32 => {
+            let mut t = vec![0.0f32; n * n.saturating_sub(1) / 2];
+            let mut parts: Vec<&mut [f32]> = Vec::with_capacity(n);
+            let mut rest = &mut t[..];
+            for i in 0..n {
+                let (row, tail) = rest.split_at_mut(n - 1 - i);
+                parts.push(row);
+                rest = tail;
+            }
+            parts.into_par_iter().enumerate().for_each(|(i, out)| {
+                let mut row = vec![0.0f64; n - 1 - i];
+                upper_row(&mut row, i, couplings, 0.5, instance, epsilon, n);
+                for (o, v) in out.iter_mut().zip(&row) {
+                    *o = *v as f32;
+                }
+            });
+            Dense {
+                n,
+                store: Store::Upper(t),
+            }
+        }
+        Storage::Implicit => Dense {
+            n,
+            store: Store::Implicit(super::implicit::Generator::new(
+                couplings,
+                instance,
+                epsilon,
+                1.0 / (n as f64).sqrt(),
+            )),
+        },
+    }
+}
+
+/// Row i's upper part (j > i) of the f64 sampler: drawn, perturbed, scaled.
+fn upper_row(
+    upper: &mut [f64],
+    i: usize,
+    couplings: Couplings,
+    c2: f64,
+    instance: &Id,
+    epsilon: f64,
+    n: usize,
+) {
+    let scale = (2.0 * c2).sqrt() / (n as f64).sqrt();
+    let keep = 1.0 - epsilon;
+    let fresh = (epsilon * (2.0 - epsilon)).sqrt();
+    let mut js = stream(instance, Purpose::Couplings, i as u64);
+    super::draw(&mut js, couplings, upper);
+    if epsilon > 0.0 {
+        let mut gs = stream(instance, Purpose::Perturbation, i as u64);
+        super::perturb(&mut gs, couplings, keep, fresh, epsilon, upper);
+    }
+    for x in upper.iter_mut() {
+        *x *= scale;
+    }
 }
 
 /// The p = 2 term of a mixture with weight c2 = c_2²: A = sqrt(2·c2)·J/√n (c2 = 1/2 is SK,
@@ -54,20 +180,8 @@ pub fn sample_weighted(
     epsilon: f64,
 ) -> Dense {
     let mut a = vec![0.0f64; n * n];
-    let scale = (2.0 * c2).sqrt() / (n as f64).sqrt();
-    let keep = 1.0 - epsilon;
-    let fresh = (epsilon * (2.0 - epsilon)).sqrt();
     a.par_chunks_mut(n).enumerate().for_each(|(i, row)| {
-        let mut js = stream(instance, Purpose::Couplings, i as u64);
-        let upper = &mut row[i + 1..];
-        super::draw(&mut js, couplings, upper);
-        if epsilon > 0.0 {
-            let mut gs = stream(instance, Purpose::Perturbation, i as u64);
-            super::perturb(&mut gs, couplings, keep, fresh, epsilon, upper);
-        }
-        for x in upper.iter_mut() {
-            *x *= scale;
-        }
+        upper_row(&mut row[i + 1..], i, couplings, c2, instance, epsilon, n);
     });
     // Mirror the upper triangle into the lower one. Row i writes only a[i][j] for j < i and
     // reads only a[j][i] for j < i (upper triangle), so rows are independent.
@@ -82,7 +196,10 @@ pub fn sample_weighted(
             }
         }
     });
-    Dense { n, a }
+    Dense {
+        n,
+        store: Store::Full(a),
+    }
 }
 
 impl Dense {
@@ -93,7 +210,7 @@ impl Dense {
         let scale = 1.0 / (n as f64).sqrt();
         Dense {
             n,
-            a: j.iter().map(|x| x * scale).collect(),
+            store: Store::Full(j.iter().map(|x| x * scale).collect()),
         }
     }
 
@@ -101,62 +218,190 @@ impl Dense {
         self.n
     }
 
-    /// Row i of A = J/√n.
+    /// How the couplings are held.
+    pub fn storage(&self) -> Storage {
+        match self.store {
+            Store::Full(_) => Storage::F64,
+            Store::Upper(_) => Storage::F32,
+            Store::Implicit(_) => Storage::Implicit,
+        }
+    }
+
+    /// Row i of A = J/√n, when the matrix is held in full (f64 storage).
     #[inline(always)]
-    pub fn row(&self, i: usize) -> &[f64] {
-        &self.a[i * self.n..(i + 1) * self.n]
+    pub fn full_row(&self, i: usize) -> Option<&[f64]> {
+        match &self.store {
+            Store::Full(a) => Some(&a[i * self.n..(i + 1) * self.n]),
+            _ => None,
+        }
+    }
+
+    #[inline(always)]
+    fn row(&self, i: usize) -> &[f64] {
+        self.full_row(i).expect("f64 storage")
+    }
+
+    /// Row i's upper part (j = i+1..n) of the f32 triangle.
+    #[inline(always)]
+    fn upper(t: &[f32], n: usize, i: usize) -> &[f32] {
+        let o = upper_offset(n, i);
+        &t[o..o + (n - 1 - i)]
+    }
+
+    /// A_ij in any storage (f32 entries widened exactly).
+    pub fn coupling(&self, i: usize, j: usize) -> f64 {
+        let n = self.n;
+        match &self.store {
+            Store::Full(a) => a[i * n + j],
+            Store::Upper(t) => match i.cmp(&j) {
+                std::cmp::Ordering::Equal => 0.0,
+                std::cmp::Ordering::Less => t[upper_offset(n, i) + j - i - 1] as f64,
+                std::cmp::Ordering::Greater => t[upper_offset(n, j) + i - j - 1] as f64,
+            },
+            Store::Implicit(g) => g.a(i, j),
+        }
+    }
+
+    /// Writes row i of A into `out` (length n), in any storage.
+    pub fn row_into(&self, i: usize, out: &mut [f64]) {
+        let n = self.n;
+        match &self.store {
+            Store::Full(_) => out.copy_from_slice(self.row(i)),
+            Store::Upper(t) => {
+                for (j, o) in out[..i].iter_mut().enumerate() {
+                    *o = t[upper_offset(n, j) + i - j - 1] as f64;
+                }
+                out[i] = 0.0;
+                for (o, v) in out[i + 1..].iter_mut().zip(Self::upper(t, n, i)) {
+                    *o = *v as f64;
+                }
+            }
+            Store::Implicit(g) => out.par_chunks_mut(CHUNK).enumerate().for_each(|(c, o)| {
+                for (k, v) in o.iter_mut().enumerate() {
+                    *v = g.a(i, c * CHUNK + k);
+                }
+            }),
+        }
     }
 
     /// Local fields h = Aσ.
     pub fn fields(&self, s: &[i8], h: &mut [f64]) {
-        for (i, hi) in h.iter_mut().enumerate() {
-            *hi = dot_signs(self.row(i), s);
+        match &self.store {
+            Store::Full(_) => {
+                for (i, hi) in h.iter_mut().enumerate() {
+                    *hi = dot_signs(self.row(i), s);
+                }
+            }
+            _ => {
+                let x: Vec<f64> = s.iter().map(|&v| v as f64).collect();
+                self.matvec(&x, h);
+            }
         }
     }
 
-    /// y = A x, reading only the upper triangle, four rows at a time: rows i..i+4 add their
-    /// parts right of the 4×4 diagonal block to y_i..y_{i+3} (dot products) and x_i..x_{i+3}
-    /// times those parts to y_j, j ≥ i + 4, in one pass ([`crate::kernels::sym4`]); the
-    /// diagonal block and the last n mod 4 rows are summed in a fixed scalar order. Half the
-    /// memory traffic of a full product; deterministic.
+    /// y = A x. f64: reading only the upper triangle, four rows at a time: rows i..i+4 add
+    /// their parts right of the 4×4 diagonal block to y_i..y_{i+3} (dot products) and
+    /// x_i..x_{i+3} times those parts to y_j, j ≥ i + 4, in one pass
+    /// ([`crate::kernels::sym4`]); the diagonal block and the last n mod 4 rows are summed in a
+    /// fixed scalar order. Half the memory traffic of a full product; deterministic. f32: the
+    /// same pattern, eight rows at a time, on the packed triangle
+    /// ([`crate::kernels::sym_f32`]). Implicit: [`BLOCKS`]
+    /// fixed blocks of rows in parallel, each generating its pairs once into its own partial
+    /// sum, added in block order.
     pub fn matvec(&self, x: &[f64], y: &mut [f64]) {
         let n = self.n;
         y.iter_mut().for_each(|v| *v = 0.0);
-        let mut i = 0;
-        while i + 4 <= n {
-            self.add_block(i, i + 4, x, y);
-            let rows = [
-                &self.row(i)[i + 4..],
-                &self.row(i + 1)[i + 4..],
-                &self.row(i + 2)[i + 4..],
-                &self.row(i + 3)[i + 4..],
-            ];
-            let c = [x[i], x[i + 1], x[i + 2], x[i + 3]];
-            let (head, tail) = y.split_at_mut(i + 4);
-            let next = if i + 8 <= n {
-                [
-                    &self.row(i + 4)[i + 8..],
-                    &self.row(i + 5)[i + 8..],
-                    &self.row(i + 6)[i + 8..],
-                    &self.row(i + 7)[i + 8..],
-                ]
-            } else {
-                [&[][..]; 4]
-            };
-            let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c, next);
-            for r in 0..4 {
-                head[i + r] += s[r];
+        match &self.store {
+            Store::Full(_) => {
+                let mut i = 0;
+                while i + 4 <= n {
+                    self.add_block(i, i + 4, x, y);
+                    let rows = [
+                        &self.row(i)[i + 4..],
+                        &self.row(i + 1)[i + 4..],
+                        &self.row(i + 2)[i + 4..],
+                        &self.row(i + 3)[i + 4..],
+                    ];
+                    let c = [x[i], x[i + 1], x[i + 2], x[i + 3]];
+                    let (head, tail) = y.split_at_mut(i + 4);
+                    let next = if i + 8 <= n {
+                        [
+                            &self.row(i + 4)[i + 8..],
+                            &self.row(i + 5)[i + 8..],
+                            &self.row(i + 6)[i + 8..],
+                            &self.row(i + 7)[i + 8..],
+                        ]
+                    } else {
+                        [&[][..]; 4]
+                    };
+                    let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c, next);
+                    for r in 0..4 {
+                        head[i + r] += s[r];
+                    }
+                    i += 4;
+                }
+                self.add_block(i, n, x, y);
             }
-            i += 4;
+            Store::Upper(t) => {
+                const R: usize = crate::kernels::ROWS32;
+                // Row i + r's entries from column i + R on start R − 1 − r places into its
+                // part.
+                let part = |i: usize| -> [&[f32]; R] {
+                    std::array::from_fn(|r| &Self::upper(t, n, i + r)[R - 1 - r..])
+                };
+                let mut i = 0;
+                while i + R <= n {
+                    self.add_block(i, i + R, x, y);
+                    let c: [f64; R] = std::array::from_fn(|r| x[i + r]);
+                    let (head, tail) = y.split_at_mut(i + R);
+                    let next = if i + 2 * R <= n {
+                        part(i + R)
+                    } else {
+                        [&[][..]; R]
+                    };
+                    let s = crate::kernels::sym_f32(part(i), &x[i + R..], tail, c, next);
+                    for r in 0..R {
+                        head[i + r] += s[r];
+                    }
+                    i += R;
+                }
+                self.add_block(i, n, x, y);
+            }
+            Store::Implicit(g) => {
+                let bounds = blocks(n);
+                let parts: Vec<Vec<f64>> = bounds
+                    .par_windows(2)
+                    .map(|w| {
+                        let mut part = vec![0.0f64; n];
+                        for i in w[0]..w[1] {
+                            let xi = x[i];
+                            let mut acc = 0.0;
+                            for j in i + 1..n {
+                                let a = g.a(i, j);
+                                acc += a * x[j];
+                                part[j] += a * xi;
+                            }
+                            part[i] += acc;
+                        }
+                        part
+                    })
+                    .collect();
+                y.par_chunks_mut(CHUNK).enumerate().for_each(|(c, yc)| {
+                    for part in &parts {
+                        for (k, v) in yc.iter_mut().enumerate() {
+                            *v += part[c * CHUNK + k];
+                        }
+                    }
+                });
+            }
         }
-        self.add_block(i, n, x, y);
     }
 
     /// The pairs lo ≤ a < b < hi of a symmetric product, in a fixed scalar order.
     fn add_block(&self, lo: usize, hi: usize, x: &[f64], y: &mut [f64]) {
         for a in lo..hi {
             for b in a + 1..hi {
-                let v = self.a[a * self.n + b];
+                let v = self.coupling(a, b);
                 y[a] += v * x[b];
                 y[b] += v * x[a];
             }
@@ -171,20 +416,79 @@ impl Dense {
 
     /// H(σ) = ½ σᵀAσ, from scratch, summed in a fixed order.
     pub fn energy(&self, s: &[i8]) -> f64 {
-        let mut e = 0.0;
-        for (i, &si) in s.iter().enumerate() {
-            e += si as f64 * dot_signs(self.row(i), s);
+        match &self.store {
+            Store::Full(_) => {
+                let mut e = 0.0;
+                for (i, &si) in s.iter().enumerate() {
+                    e += si as f64 * dot_signs(self.row(i), s);
+                }
+                0.5 * e
+            }
+            _ => {
+                let mut h = vec![0.0; self.n];
+                self.fields(s, &mut h);
+                0.5 * dot_signs(&h, s)
+            }
         }
-        0.5 * e
     }
 
-    /// Flips spin k in `s` and updates the fields: h += 2 σ_k' A_{k·}.
+    /// Flips spin k in `s` and updates the fields: h += 2 σ_k' A_{k·}. f64: one contiguous
+    /// row. f32: row k's upper part is contiguous, its lower part (column k of the triangle)
+    /// strided. Implicit: n − 1 couplings generated, in parallel chunks for large n. Every
+    /// update is elementwise, so the result does not depend on the split.
     #[inline(always)]
     pub fn flip(&self, s: &mut [i8], h: &mut [f64], k: usize) {
         s[k] = -s[k];
         let c = 2.0 * s[k] as f64;
-        crate::kernels::axpy(h, c, self.row(k));
+        let n = self.n;
+        match &self.store {
+            Store::Full(a) => crate::kernels::axpy(h, c, &a[k * n..(k + 1) * n]),
+            Store::Upper(t) => {
+                for (j, hj) in h[..k].iter_mut().enumerate() {
+                    *hj += c * t[upper_offset(n, j) + k - j - 1] as f64;
+                }
+                for (hj, v) in h[k + 1..].iter_mut().zip(Self::upper(t, n, k)) {
+                    *hj += c * *v as f64;
+                }
+            }
+            Store::Implicit(g) => {
+                let update = |base: usize, hc: &mut [f64]| {
+                    for (m, hj) in hc.iter_mut().enumerate() {
+                        *hj += c * g.a(k, base + m);
+                    }
+                };
+                if n >= 4 * CHUNK {
+                    h.par_chunks_mut(CHUNK)
+                        .enumerate()
+                        .for_each(|(b, hc)| update(b * CHUNK, hc));
+                } else {
+                    update(0, h);
+                }
+            }
+        }
     }
+}
+
+/// Elements per parallel chunk of the implicit generator's elementwise loops.
+const CHUNK: usize = 4096;
+
+/// [`BLOCKS`] row ranges of about equal triangle area (row i has n − 1 − i pairs): bounds
+/// b_0 = 0 ≤ … ≤ b_BLOCKS = n, fixed by n alone.
+fn blocks(n: usize) -> Vec<usize> {
+    let total = (n as f64) * (n as f64 - 1.0) / 2.0;
+    let mut b = vec![0usize];
+    let mut done = 0.0;
+    let mut i = 0usize;
+    for k in 1..BLOCKS {
+        let target = total * k as f64 / BLOCKS as f64;
+        while i < n && done < target {
+            done += (n - 1 - i) as f64;
+            i += 1;
+        }
+        b.push(i);
+    }
+    b.push(n);
+    b
 }
 
 pub(crate) use crate::kernels::{dot, dot_signs};
@@ -320,6 +624,111 @@ mod tests {
             }
         }
     }
+
+    /// The f32 triangle is the f64 instance rounded once, entry by entry, for the instance and
+    /// its correlated copy.
+    #[test]
+    fn f32_storage_rounds_the_f64_instance() {
+        let n = 37;
+        for eps in [0.0, 0.3] {
+            let d = sample(n, Couplings::Gaussian, &inst(8), eps);
+            let t = sample_as(Storage::F32, n, Couplings::Gaussian, &inst(8), eps);
+            assert_eq!(t.storage(), Storage::F32);
+            for i in 0..n {
+                for j in 0..n {
+                    let want = (d.row(i)[j] as f32) as f64;
+                    assert_eq!(t.coupling(i, j).to_bits(), want.to_bits(), "({i},{j})");
+                }
+            }
+        }
+    }
+
+    /// Every storage's operations agree with the plain sums over its own couplings (read
+    /// through `coupling`): the product, fields, energy, row copies and flips. Tolerance
+    /// n·ε_mach relative to the sums' size, common practice for reordered sums.
+    #[test]
+    fn every_storage_computes_the_same_operations() {
+        for n in [1usize, 5, 33, 70] {
+            for storage in [Storage::F64, Storage::F32, Storage::Implicit] {
+                for couplings in [Couplings::Gaussian, Couplings::Pm1] {
+                    let d = sample_as(storage, n, couplings, &inst(9), 0.1);
+                    let a = |i: usize, j: usize| d.coupling(i, j);
+                    for i in 0..n {
+                        assert_eq!(a(i, i), 0.0);
+                        for j in 0..n {
+                            assert_eq!(a(i, j).to_bits(), a(j, i).to_bits());
+                        }
+                        let mut row = vec![f64::NAN; n];
+                        d.row_into(i, &mut row);
+                        for (j, v) in row.iter().enumerate() {
+                            assert_eq!(v.to_bits(), a(i, j).to_bits());
+                        }
+                    }
+                    let mut r = stream(&inst(10), Purpose::Algorithm, n as u64);
+                    let x: Vec<f64> = (0..n).map(|_| r.normal()).collect();
+                    let mut y = vec![0.0; n];
+                    d.matvec(&x, &mut y);
+                    let tol = 1e-13 * (n as f64 + 1.0);
+                    for (i, yi) in y.iter().enumerate() {
+                        let want: f64 = (0..n).map(|j| a(i, j) * x[j]).sum();
+                        assert!((yi - want).abs() < tol, "{storage:?} n={n}: {yi} vs {want}");
+                    }
+                    let mut s: Vec<i8> = (0..n).map(|_| r.sign() as i8).collect();
+                    let mut h = vec![0.0; n];
+                    d.fields(&s, &mut h);
+                    let brute: f64 = (0..n)
+                        .flat_map(|i| (i + 1..n).map(move |j| (i, j)))
+                        .map(|(i, j)| a(i, j) * (s[i] * s[j]) as f64)
+                        .sum();
+                    assert!((d.energy(&s) - brute).abs() < tol * n as f64);
+                    for _ in 0..3 * n {
+                        let k = r.below(n as u64) as usize;
+                        d.flip(&mut s, &mut h, k);
+                    }
+                    let mut fresh = vec![0.0; n];
+                    d.fields(&s, &mut fresh);
+                    for (u, v) in h.iter().zip(&fresh) {
+                        assert!((u - v).abs() < tol * n as f64, "{storage:?}: {u} vs {v}");
+                    }
+                }
+            }
+        }
+    }
+
+    /// The implicit product's blocks cover the rows once, in order, for any n.
+    #[test]
+    fn implicit_blocks_cover_the_rows() {
+        for n in [0usize, 1, 2, 63, 64, 65, 1000, 4097] {
+            let b = blocks(n);
+            assert_eq!(b.len(), BLOCKS + 1);
+            assert_eq!((b[0], b[BLOCKS]), (0, n));
+            assert!(b.windows(2).all(|w| w[0] <= w[1]), "{b:?}");
+        }
+    }
+
+    /// Value stability of the compact storages: the f32 triangle's first entries (the f64
+    /// pins rounded) and the implicit instance's (the generator's, scaled by 1/√n).
+    #[test]
+    fn pinned_first_couplings_of_each_storage() {
+        let pairs = [(0, 1), (0, 2), (0, 3), (1, 2)];
+        let t = sample_as(Storage::F32, 4, Couplings::Gaussian, &inst(6), 0.0);
+        for (&(i, j), &bits) in pairs.iter().zip(&PINNED) {
+            let want = (f64::from_bits(bits) as f32) as f64;
+            assert_eq!(t.coupling(i, j).to_bits(), want.to_bits());
+        }
+        let m = sample_as(Storage::Implicit, 4, Couplings::Gaussian, &inst(6), 0.0);
+        let got: Vec<u64> = pairs
+            .iter()
+            .map(|&(i, j)| m.coupling(i, j).to_bits())
+            .collect();
+        assert_eq!(got, PINNED_IMPLICIT, "{got:?}");
+    }
+    const PINNED_IMPLICIT: [u64; 4] = [
+        4608507290665320466,
+        13826895822758101086,
+        13831667471158523080,
+        4604494267944878170,
+    ];
 
     /// Value stability: the first couplings of a seeded instance are pinned.
     #[test]

@@ -23,6 +23,7 @@ mod replay;
 mod rerun;
 mod samplers;
 mod satisfiability;
+mod storage;
 mod tables;
 mod theory;
 mod views;

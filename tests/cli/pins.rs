@@ -155,6 +155,8 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
             "perceptron",
             "density = 1.0\nmargin = 0.25\ndomain = \"sphere\"",
         ),
+        "sk-f32" => ("sk", "storage = \"f32\""),
+        "sk-implicit" => ("sk", "storage = \"implicit\""),
         f => (f, params_of(f)),
     };
     kiln::spec::model_of(&format!(
@@ -278,6 +280,35 @@ type CopyPin = (
 );
 
 const COPY_PINS: &[CopyPin] = &[
+    // SK's compact storages: the f32 triangle (the f64 instance rounded) and the implicit
+    // generator (another instance of the same law).
+    (
+        "sk-f32",
+        "gaussian",
+        1,
+        24,
+        "0.2045422260680425",
+        "0.048615514914369364",
+        "79647fe58aafe437",
+    ),
+    (
+        "sk-implicit",
+        "gaussian",
+        1,
+        24,
+        "-0.003991958730895473",
+        "-0.0952724757252812",
+        "76f1453c936e9857",
+    ),
+    (
+        "sk-implicit",
+        "pm1",
+        1,
+        24,
+        "0.06804138174397716",
+        "-0.11907241805196005",
+        "d9311d69cbd00137",
+    ),
     (
         "sk",
         "gaussian",

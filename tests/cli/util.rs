@@ -117,7 +117,7 @@ pub fn reference_top(inst: &kiln::model::Instance) -> f64 {
         }
     };
     let n = d.n();
-    let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.row(i)[j]);
+    let mat = nalgebra::DMatrix::from_fn(n, n, |i, j| d.coupling(i, j));
     nalgebra::SymmetricEigen::new(mat)
         .eigenvalues
         .iter()
