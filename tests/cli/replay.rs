@@ -82,6 +82,7 @@ fn replay_passes_on_every_committed_example() {
         "ksat-walk-threshold",
         "perceptron-sphere-capacity",
         "perceptron-binary-capacity",
+        "sk-large-n",
     ] {
         let dir = root.join(e);
         // Committed numbers come from a committed tree: the manifest names a clean revision.
