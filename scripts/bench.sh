@@ -108,7 +108,9 @@ if [ -n "$py" ]; then
         p_eig_env=$(OPENBLAS_NUM_THREADS=1 "$py" "$ref/top_eig.py" --n 2048 4096 --reps "$runs" --seed 1)
     fi
     kernel=$(echo "$p_mv" | grep "prog=blasinfo" | head -1 | sed 's/.*architecture=\([^ ]*\).*/\1/')
-    kernel_env=$(echo "$p_mv_env" | grep "prog=blasinfo" | head -1 | sed 's/.*architecture=\([^ ]*\).*/\1/')
+    # No override in the environment: no second run, and no kernel to name (grep finds
+    # nothing; under `set -e -o pipefail` that must not end the script).
+    kernel_env=$(echo "$p_mv_env" | { grep "prog=blasinfo" || true; } | head -1 | sed 's/.*architecture=\([^ ]*\).*/\1/')
 else
     echo "bench: numpy/scipy/threadpoolctl unavailable (no venv or pip): BLAS and eigsh rows skipped" >&2
     p_mv=""; p_eig=""; p_mv_env=""; p_eig_env=""; kernel=""; kernel_env=""
