@@ -23,6 +23,10 @@
 //!   variable: ns per flip, the initial clause state included (scripts/bench-walksat.sh runs it
 //!   beside scripts/perf/walksat.c).
 //!
+//! - regular: a ±1 3-regular graph with n vertices (the first argument): generation, the
+//!   copy, 100 annealing sweeps on each, peak RSS, and the per-attempt time against n = 10⁶
+//!   in the same process (`bench_kernels 100000000 1 regular`).
+//!
 //! Instances are generated outside the timed region. `cargo run --release --example
 //! bench_kernels -- [n=2048] [reps=5] [parts=dense,sparse,matvec,eigen,couplings] [first=0]`;
 //! the dense part uses instances first .. first + reps − 1 (scripts/bench.sh, which runs it
@@ -66,6 +70,9 @@ fn main() {
     }
     if parts.contains(&"walksat") {
         walk(reps as u64, first as u64);
+    }
+    if parts.contains(&"regular") {
+        regular_scale(n, first);
     }
     if parts.contains(&"sparse") {
         sparse(reps.min(3));
@@ -153,6 +160,67 @@ fn sparse(reps: usize) {
     let (m, lo, hi) = stats(&ns);
     println!(
         "prog=kiln_sparse n={n} degree=3 sweeps=200 reps={reps} ns_per_attempt_med={m:.3} ns_per_attempt_min={lo:.3} ns_per_attempt_max={hi:.3} E_per_spin={e:.5}"
+    );
+}
+
+/// Peak resident memory of this process so far (Linux `VmHWM`), in MiB; 0 elsewhere.
+fn peak_mib() -> f64 {
+    std::fs::read_to_string("/proc/self/status")
+        .ok()
+        .and_then(|s| {
+            s.lines()
+                .find_map(|l| l.strip_prefix("VmHWM:"))
+                .and_then(|v| v.trim().trim_end_matches("kB").trim().parse::<f64>().ok())
+        })
+        .map_or(0.0, |kb| kb / 1024.0)
+}
+
+/// A ±1 3-regular graph at n vertices (`bench_kernels N 1 regular`): generation, the copy at
+/// ε = 0.1, and 100 annealing sweeps on each (sequential sweeps, β 0.1 → 3), then the same
+/// annealing at n = 10⁶ in the same process for the per-attempt ratio; peak RSS after each.
+fn regular_scale(n: usize, first: usize) {
+    let p = anneal::Params {
+        sweeps: 100,
+        beta: [0.1, 3.0],
+        quench: false,
+    };
+    let inst = [first as u8 + 90; 32];
+    let per_attempt = |g: &kiln::model::sparse::Graph, what: &str| {
+        let t = Instant::now();
+        let out = anneal::run(&p, g, &mut stream(&inst, Purpose::Algorithm, 0));
+        let s = t.elapsed().as_secs_f64();
+        let m = g.n();
+        let ns = s * 1e9 / (m as f64 * 100.0);
+        println!(
+            "prog=kiln_regular_scale n={m} stage={what} anneal_s={s:.1} ns_per_attempt={ns:.3} E_per_spin={:.5} peak_mib={:.0}",
+            kiln::model::SpinModel::energy(g, &out.spins) / m as f64,
+            peak_mib()
+        );
+        ns
+    };
+    let t = Instant::now();
+    let g = regular(n, 3, Couplings::Pm1, &inst, 0.0);
+    println!(
+        "prog=kiln_regular_scale n={n} stage=generate s={:.1} peak_mib={:.0}",
+        t.elapsed().as_secs_f64(),
+        peak_mib()
+    );
+    let big = per_attempt(&g, "anneal");
+    drop(g);
+    let t = Instant::now();
+    let g = regular(n, 3, Couplings::Pm1, &inst, 0.1);
+    println!(
+        "prog=kiln_regular_scale n={n} stage=copy s={:.1} peak_mib={:.0}",
+        t.elapsed().as_secs_f64(),
+        peak_mib()
+    );
+    per_attempt(&g, "anneal-copy");
+    drop(g);
+    let small = regular(1_000_000, 3, Couplings::Pm1, &inst, 0.0);
+    let base = per_attempt(&small, "reference-1e6");
+    println!(
+        "prog=kiln_regular_scale n={n} ratio_per_attempt_vs_1e6={:.2}",
+        big / base
     );
 }
 

@@ -414,6 +414,41 @@ fn has_avx2() -> bool {
     std::arch::is_x86_feature_detected!("avx2")
 }
 
+/// Asks the kernel to back a large, not yet written buffer with 2 MiB pages (Linux, where
+/// transparent huge pages are often "madvise" only): a flip on the f32 triangle reads column k
+/// with a stride of a row, and a sweep on a large random graph updates fields all over memory,
+/// one 4 KiB page per access. A hint only: it never changes a result, and is ignored where
+/// unsupported.
+pub fn huge_pages<T>(v: &mut [T]) {
+    #[cfg(target_os = "linux")]
+    {
+        const HUGE: usize = 2 << 20;
+        let p = v.as_mut_ptr() as usize;
+        let (start, end) = (
+            (p + HUGE - 1) & !(HUGE - 1),
+            (p + std::mem::size_of_val(v)) & !(HUGE - 1),
+        );
+        if end > start {
+            // SAFETY: the range lies inside the buffer; MADV_HUGEPAGE changes no contents.
+            unsafe { libc::madvise(start as *mut libc::c_void, end - start, libc::MADV_HUGEPAGE) };
+        }
+    }
+    #[cfg(not(target_os = "linux"))]
+    let _ = v;
+}
+
+/// Prefetches the cache line holding `x` for writing soon (a hint: never changes a result).
+#[inline(always)]
+pub fn prefetch_write<T>(x: *const T) {
+    #[cfg(target_arch = "x86_64")]
+    // SAFETY: a prefetch of any address is harmless.
+    unsafe {
+        std::arch::x86_64::_mm_prefetch::<{ std::arch::x86_64::_MM_HINT_T0 }>(x as *const i8)
+    };
+    #[cfg(not(target_arch = "x86_64"))]
+    let _ = x;
+}
+
 /// Σ a_k b_k summed left to right, one term at a time: for short vectors (a rank-k row, a
 /// q-grid) whose pinned numbers were computed in this order. Long vectors use [`dot`].
 #[inline]

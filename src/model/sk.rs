@@ -115,7 +115,7 @@ pub fn sample_as(
         Storage::F64 => sample(n, couplings, instance, epsilon),
         Storage::F32 => {
             let mut t = vec![0.0f32; n * n.saturating_sub(1) / 2];
-            huge_pages(&mut t);
+            crate::kernels::huge_pages(&mut t);
             let mut parts: Vec<&mut [f32]> = Vec::with_capacity(n);
             let mut rest = &mut t[..];
             for i in 0..n {
@@ -145,28 +145,6 @@ pub fn sample_as(
             )),
         },
     }
-}
-
-/// Asks the kernel to back a large, not yet written buffer with 2 MiB pages (Linux, where
-/// transparent huge pages are often "madvise" only): a flip on the f32 triangle reads column k
-/// with a stride of a row, one page per entry with 4 KiB pages. A hint only: it never changes
-/// a result, and is ignored where unsupported.
-fn huge_pages<T>(v: &mut [T]) {
-    #[cfg(target_os = "linux")]
-    {
-        const HUGE: usize = 2 << 20;
-        let p = v.as_mut_ptr() as usize;
-        let (start, end) = (
-            (p + HUGE - 1) & !(HUGE - 1),
-            (p + std::mem::size_of_val(v)) & !(HUGE - 1),
-        );
-        if end > start {
-            // SAFETY: the range lies inside the buffer; MADV_HUGEPAGE changes no contents.
-            unsafe { libc::madvise(start as *mut libc::c_void, end - start, libc::MADV_HUGEPAGE) };
-        }
-    }
-    #[cfg(not(target_os = "linux"))]
-    let _ = v;
 }
 
 /// Row i's upper part (j > i) of the f64 sampler: drawn, perturbed, scaled.
@@ -203,7 +181,7 @@ pub fn sample_weighted(
     epsilon: f64,
 ) -> Dense {
     let mut a = vec![0.0f64; n * n];
-    huge_pages(&mut a);
+    crate::kernels::huge_pages(&mut a);
     a.par_chunks_mut(n).enumerate().for_each(|(i, row)| {
         upper_row(&mut row[i + 1..], i, couplings, c2, instance, epsilon, n);
     });
