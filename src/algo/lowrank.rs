@@ -71,16 +71,19 @@ impl Rows for crate::model::sk::Dense {
     }
     #[inline]
     fn row_for_each(&self, i: usize, mut f: impl FnMut(usize, f64)) {
-        if let Some(row) = self.full_row(i) {
-            for (j, &a) in row.iter().enumerate() {
-                f(j, a)
+        // f64 storage lends its row; the compact ones write it into a buffer.
+        let buf;
+        let row = match self.full_row(i) {
+            Some(row) => row,
+            None => {
+                let mut b = vec![0.0; self.n()];
+                self.row_into(i, &mut b);
+                buf = b;
+                &buf
             }
-        } else {
-            let mut row = vec![0.0; self.n()];
-            self.row_into(i, &mut row);
-            for (j, &a) in row.iter().enumerate() {
-                f(j, a)
-            }
+        };
+        for (j, &a) in row.iter().enumerate() {
+            f(j, a)
         }
     }
     fn energy(&self, s: &[i8]) -> f64 {

@@ -315,59 +315,20 @@ impl Dense {
         y.iter_mut().for_each(|v| *v = 0.0);
         match &self.store {
             Store::Full(_) => {
-                let mut i = 0;
-                while i + 4 <= n {
-                    self.add_block(i, i + 4, x, y);
-                    let rows = [
-                        &self.row(i)[i + 4..],
-                        &self.row(i + 1)[i + 4..],
-                        &self.row(i + 2)[i + 4..],
-                        &self.row(i + 3)[i + 4..],
-                    ];
-                    let c = [x[i], x[i + 1], x[i + 2], x[i + 3]];
-                    let (head, tail) = y.split_at_mut(i + 4);
-                    let next = if i + 8 <= n {
-                        [
-                            &self.row(i + 4)[i + 8..],
-                            &self.row(i + 5)[i + 8..],
-                            &self.row(i + 6)[i + 8..],
-                            &self.row(i + 7)[i + 8..],
-                        ]
-                    } else {
-                        [&[][..]; 4]
-                    };
-                    let s = crate::kernels::sym4(rows, &x[i + 4..], tail, c, next);
-                    for r in 0..4 {
-                        head[i + r] += s[r];
-                    }
-                    i += 4;
-                }
-                self.add_block(i, n, x, y);
+                // Row i + r's entries from column i + 4 on.
+                let part = |i: usize| -> [&[f64]; 4] {
+                    std::array::from_fn(|r| &self.row(i + r)[i + 4..])
+                };
+                self.blocked(x, y, part, crate::kernels::sym4);
             }
             Store::Upper(t) => {
                 const R: usize = crate::kernels::ROWS32;
                 // Row i + r's entries from column i + R on start R − 1 − r places into its
-                // part.
+                // packed part.
                 let part = |i: usize| -> [&[f32]; R] {
                     std::array::from_fn(|r| &Self::upper(t, n, i + r)[R - 1 - r..])
                 };
-                let mut i = 0;
-                while i + R <= n {
-                    self.add_block(i, i + R, x, y);
-                    let c: [f64; R] = std::array::from_fn(|r| x[i + r]);
-                    let (head, tail) = y.split_at_mut(i + R);
-                    let next = if i + 2 * R <= n {
-                        part(i + R)
-                    } else {
-                        [&[][..]; R]
-                    };
-                    let s = crate::kernels::sym_f32(part(i), &x[i + R..], tail, c, next);
-                    for r in 0..R {
-                        head[i + r] += s[r];
-                    }
-                    i += R;
-                }
-                self.add_block(i, n, x, y);
+                self.blocked(x, y, part, crate::kernels::sym_f32);
             }
             Store::Implicit(g) => {
                 let bounds = blocks(n);
@@ -397,6 +358,36 @@ impl Dense {
                 });
             }
         }
+    }
+
+    /// The stored symmetric product, R rows per pass: the R×R diagonal block in a fixed scalar
+    /// order, then `kernel` on the rows' parts right of it (`part(i)`: rows i..i+R from column
+    /// i + R on), given the next block's parts to prefetch; the last n mod R rows scalar.
+    fn blocked<'a, T: 'a, const R: usize>(
+        &'a self,
+        x: &[f64],
+        y: &mut [f64],
+        part: impl Fn(usize) -> [&'a [T]; R],
+        kernel: impl Fn([&'a [T]; R], &[f64], &mut [f64], [f64; R], [&'a [T]; R]) -> [f64; R],
+    ) {
+        let n = self.n;
+        let mut i = 0;
+        while i + R <= n {
+            self.add_block(i, i + R, x, y);
+            let c: [f64; R] = std::array::from_fn(|r| x[i + r]);
+            let (head, tail) = y.split_at_mut(i + R);
+            let next = if i + 2 * R <= n {
+                part(i + R)
+            } else {
+                [&[][..]; R]
+            };
+            let s = kernel(part(i), &x[i + R..], tail, c, next);
+            for r in 0..R {
+                head[i + r] += s[r];
+            }
+            i += R;
+        }
+        self.add_block(i, n, x, y);
     }
 
     /// The pairs lo ≤ a < b < hi of a symmetric product, in a fixed scalar order.
