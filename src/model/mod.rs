@@ -401,6 +401,14 @@ impl ModelSpec {
     }
 }
 
+/// A raw pointer that parallel tasks may share, for filling disjoint parts of one buffer (each
+/// use states, at its `unsafe`, why the parts are disjoint).
+pub(crate) struct SendPtr<T>(pub(crate) *mut T);
+// SAFETY: the pointer is only dereferenced where the caller proves the accesses disjoint.
+unsafe impl<T> Send for SendPtr<T> {}
+// SAFETY: as above.
+unsafe impl<T> Sync for SendPtr<T> {}
+
 /// What every ±1 instance (SK, the cube's mixtures, graphs, lattices) offers the algorithms:
 /// energy, local fields h_i with gain −2σ_i h_i for flipping i, and the O(cost) update of all
 /// fields after a flip.

@@ -94,9 +94,7 @@ fn upper_offset(n: usize, i: usize) -> usize {
 /// the result does not depend on the thread count.
 pub const BLOCKS: usize = 64;
 
-struct SendPtr(*mut f64);
-unsafe impl Send for SendPtr {}
-unsafe impl Sync for SendPtr {}
+use super::SendPtr;
 
 /// Samples the instance (ε = 0) or its correlated copy (ε > 0), held as f64.
 pub fn sample(n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Dense {
@@ -250,6 +248,23 @@ impl Dense {
         &t[o..o + (n - 1 - i)]
     }
 
+    /// Calls f(j, A_kj) for every j ≠ k of the f32 triangle, in increasing j: column k of the
+    /// rows above (one entry per row, its index advanced by the row lengths, no per-entry
+    /// offset arithmetic), then row k's own contiguous upper part. Entries widened exactly.
+    #[inline(always)]
+    fn visit_row(t: &[f32], n: usize, k: usize, mut f: impl FnMut(usize, f64)) {
+        // Entry (j, k) for j < k sits at upper_offset(n, j) + k − j − 1; from row j to j + 1
+        // that moves by the length of row j's upper part less one, n − 2 − j.
+        let mut at = k.wrapping_sub(1);
+        for j in 0..k {
+            f(j, t[at] as f64);
+            at = at.wrapping_add(n - 2 - j);
+        }
+        for (m, v) in Self::upper(t, n, k).iter().enumerate() {
+            f(k + 1 + m, *v as f64);
+        }
+    }
+
     /// A_ij in any storage (f32 entries widened exactly).
     pub fn coupling(&self, i: usize, j: usize) -> f64 {
         let n = self.n;
@@ -270,13 +285,8 @@ impl Dense {
         match &self.store {
             Store::Full(_) => out.copy_from_slice(self.row(i)),
             Store::Upper(t) => {
-                for (j, o) in out[..i].iter_mut().enumerate() {
-                    *o = t[upper_offset(n, j) + i - j - 1] as f64;
-                }
                 out[i] = 0.0;
-                for (o, v) in out[i + 1..].iter_mut().zip(Self::upper(t, n, i)) {
-                    *o = *v as f64;
-                }
+                Self::visit_row(t, n, i, |j, a| out[j] = a);
             }
             Store::Implicit(g) => out.par_chunks_mut(CHUNK).enumerate().for_each(|(c, o)| {
                 for (k, v) in o.iter_mut().enumerate() {
@@ -436,14 +446,7 @@ impl Dense {
         let n = self.n;
         match &self.store {
             Store::Full(a) => crate::kernels::axpy(h, c, &a[k * n..(k + 1) * n]),
-            Store::Upper(t) => {
-                for (j, hj) in h[..k].iter_mut().enumerate() {
-                    *hj += c * t[upper_offset(n, j) + k - j - 1] as f64;
-                }
-                for (hj, v) in h[k + 1..].iter_mut().zip(Self::upper(t, n, k)) {
-                    *hj += c * *v as f64;
-                }
-            }
+            Store::Upper(t) => Self::visit_row(t, n, k, |j, a| h[j] += c * a),
             Store::Implicit(g) => {
                 let update = |base: usize, hc: &mut [f64]| {
                     for (m, hj) in hc.iter_mut().enumerate() {

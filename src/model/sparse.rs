@@ -53,12 +53,7 @@ pub struct Graph {
     edges: usize,
 }
 
-struct SendPtr(*mut f64);
-unsafe impl Send for SendPtr {}
-unsafe impl Sync for SendPtr {}
-struct SendPtr32(*mut u32);
-unsafe impl Send for SendPtr32 {}
-unsafe impl Sync for SendPtr32 {}
+use super::SendPtr;
 
 /// Edges (i < j, J) of one row i, sorted by j.
 type Row = Vec<(u32, f64)>;
@@ -166,7 +161,7 @@ impl Graph {
         // Sort each list (neighbours are distinct: a simple graph), then draw row i's upper
         // couplings into its own suffix.
         let wp = SendPtr(w.as_mut_ptr());
-        let np = SendPtr32(nbr.as_mut_ptr());
+        let np = SendPtr(nbr.as_mut_ptr());
         (0..n).into_par_iter().for_each(|i| {
             let (np, wp) = (&np, &wp);
             let (lo, hi) = (offsets[i] as usize, offsets[i + 1] as usize);
