@@ -198,7 +198,7 @@ pub fn run(
     let mut z = vec![0.0; n];
     let mut info = Info::default();
     while info.iterations < p.max_iterations {
-        crate::exec::progress::step(info.iterations, p.max_iterations, "iteration");
+        crate::exec::progress::step_upto(info.iterations, p.max_iterations, "iteration");
         let moved = step(
             p.beta,
             xi,

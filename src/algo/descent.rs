@@ -165,7 +165,7 @@ pub(crate) fn descend<M: SpinModel>(
                     rng.shuffle(&mut perm);
                 }
                 info.sweeps += 1;
-                crate::exec::progress::step(info.sweeps, p.max_sweeps, "sweep");
+                crate::exec::progress::step_upto(info.sweeps, p.max_sweeps, "sweep");
                 let mut flipped = false;
                 for &i in &perm {
                     let i = i as usize;

@@ -171,7 +171,7 @@ pub fn run_cube(
     let mut g = vec![0.0; n];
     let mut info = Info::default();
     while info.iterations < p.max_iterations {
-        crate::exec::progress::step(info.iterations, p.max_iterations, "step");
+        crate::exec::progress::step_upto(info.iterations, p.max_iterations, "step");
         grad(&x, &mut g);
         let mut moved = 0.0;
         for (xi, &gi) in x.iter_mut().zip(&g) {
@@ -210,7 +210,7 @@ pub fn ascend_sphere<S: Smooth>(p: &Params, m: &S, mut x: Vec<f64>) -> Output {
     let mut g = vec![0.0; n];
     let mut info = Info::default();
     while info.iterations < p.max_iterations {
-        crate::exec::progress::step(info.iterations, p.max_iterations, "step");
+        crate::exec::progress::step_upto(info.iterations, p.max_iterations, "step");
         m.value_grad(&x, &mut g);
         // Tangential part: g − (g·x/n) x.
         let radial = g.iter().zip(&x).map(|(a, b)| a * b).sum::<f64>() / n as f64;

@@ -231,7 +231,7 @@ pub fn run<A: Rows>(p: &Params, a: &A, rng: &mut Stream) -> (Output, f64) {
     let mut info = Info::default();
     while info.sweeps < p.max_sweeps {
         info.sweeps += 1;
-        crate::exec::progress::step(info.sweeps, p.max_sweeps, "sweep");
+        crate::exec::progress::step_upto(info.sweeps, p.max_sweeps, "sweep");
         let mut gain = 0.0;
         for i in 0..n {
             g.iter_mut().for_each(|x| *x = 0.0);

@@ -208,7 +208,7 @@ pub fn run(p: &Params, f: &Formula, rng: &mut Stream) -> Output {
     };
     while !w.unsat.is_empty() && flips < budget {
         if flips.is_multiple_of(4096) {
-            crate::exec::progress::step(flips, budget, "flip");
+            crate::exec::progress::step_upto(flips, budget, "flip");
         }
         let c = w.unsat[rng.below(w.unsat.len() as u64) as usize] as usize;
         let clause = &lits[c * k..c * k + k];

@@ -165,8 +165,9 @@ pub struct RunArgs {
         env = "KILN_LEASE"
     )]
     pub lease: f64,
-    /// After SIGTERM or Ctrl-C, how long to let the cells in flight finish before abandoning
-    /// them (their claims are released) and writing the table, in seconds.
+    /// After SIGTERM or Ctrl-C, how long to let the cells in flight finish, in seconds. A cell
+    /// whose pace says it cannot stops at its next sweep at once, the others when the time is
+    /// up; nothing of a stopped cell is recorded, its claim is released, the table is written.
     #[arg(
         long,
         value_name = "SECONDS",

@@ -130,6 +130,7 @@ pub fn run(a: &RunArgs) -> anyhow::Result<ExitCode> {
             "jobs": jobs,
             "wall_seconds": wall,
             "interrupted": report.interrupted,
+            "stopped": report.stopped,
             "failures": failures_json(&report),
             "damaged": report.damaged,
             "takeovers": report.takeovers,
@@ -165,6 +166,7 @@ fn shard_summary(a: &RunArgs, name: &str, sh: Shard, report: &exec::Report, wall
             "cells": counts_json(k),
             "wall_seconds": wall,
             "interrupted": report.interrupted,
+            "stopped": report.stopped,
             "failures": failures_json(report),
             "damaged": report.damaged,
         });
@@ -201,6 +203,9 @@ fn failures_json(report: &exec::Report) -> serde_json::Value {
 fn finish(report: &exec::Report, done: &str) -> ExitCode {
     for (key, m) in &report.failures {
         eprintln!("failed: cell {}: {m}", &key[..12]);
+    }
+    for s in &report.stopped {
+        eprintln!("stop: {s}; nothing of it is recorded");
     }
     if report.interrupted {
         eprintln!(
@@ -348,8 +353,9 @@ impl Outputs<'_> {
 }
 
 /// Watches a run for a stop signal: once one has come, gives the cells in flight `grace` to
-/// finish; if the run is still going then, releases the claims it holds, writes the table of
-/// what the cache holds (not for a shard) and exits with the signal's status.
+/// finish and then [`super::signals::AFTER_GRACE`] to reach a step boundary; if the run is
+/// still going then (a cell that reports no steps), releases the claims it holds, writes the
+/// table of what the cache holds (not for a shard) and exits with the signal's status.
 fn watchdog(
     finished: std::sync::mpsc::Receiver<()>,
     grace: std::time::Duration,
@@ -366,14 +372,14 @@ fn watchdog(
         if since.is_none() && super::signals::received() {
             since = Some(Instant::now());
         }
-        if since.is_some_and(|t| t.elapsed() >= grace) {
+        if since.is_some_and(|t| t.elapsed() >= grace + super::signals::AFTER_GRACE) {
             break;
         }
     }
     crate::store::claims::release_all();
     eprintln!(
-        "stop: cells still in flight after {:.0} s are abandoned (their claims released)",
-        grace.as_secs_f64()
+        "stop: cells still in flight {:.0} s after the signal report no step to stop at; abandoned (their claims released)",
+        (grace + super::signals::AFTER_GRACE).as_secs_f64()
     );
     if !shard {
         let damaged = std::sync::Mutex::new(Vec::new());

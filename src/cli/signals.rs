@@ -1,12 +1,19 @@
 //! SIGINT (Ctrl-C) and SIGTERM (what Slurm sends at a time limit or on `scancel`, and what
-//! `kill` sends by default) stop a run the same way: no new cells start, the cells in flight
-//! get a grace period to finish, then the claims still held are released and the table is
-//! written from what is done. A second signal leaves at once (claims released). The exit
-//! status is 128 + the signal: 130 after SIGINT, 143 after SIGTERM.
+//! `kill` sends by default) stop a run the same way: no new cells start; a cell in flight
+//! finishes if its own progress says it can within the grace, and otherwise leaves at its next
+//! step boundary (a sweep, a product) without recording anything; then the claims still held
+//! are released and the table is written from what is done. A cell that reports no steps and
+//! is still running [`AFTER_GRACE`] past the grace is abandoned with the process. A second
+//! signal leaves at once (claims released). The exit status is 128 + the signal: 130 after
+//! SIGINT, 143 after SIGTERM.
 
 use crate::exec::INTERRUPTED;
 use signal_hook::consts::{SIGINT, SIGTERM};
 use std::sync::atomic::{AtomicI32, Ordering};
+
+/// How long past the grace the run waits for its cells to reach a step boundary before it
+/// abandons the ones still running (a sweep of the largest cells takes seconds).
+pub const AFTER_GRACE: std::time::Duration = std::time::Duration::from_secs(10);
 
 /// The first stopping signal received (0: none).
 static RECEIVED: AtomicI32 = AtomicI32::new(0);
@@ -22,6 +29,12 @@ pub fn exit_status() -> u8 {
 /// Whether a stopping signal has arrived.
 pub fn received() -> bool {
     RECEIVED.load(Ordering::SeqCst) != 0
+}
+
+/// A number of seconds as a person writes it: "20", "0.3".
+fn seconds(s: f64) -> String {
+    let t = format!("{s:.1}");
+    t.strip_suffix(".0").map(str::to_string).unwrap_or(t)
 }
 
 fn name(sig: i32) -> &'static str {
@@ -57,15 +70,21 @@ pub fn install(grace_seconds: f64, then: &'static str) {
                         std::process::exit(128 + sig);
                     }
                     RECEIVED.store(sig, Ordering::SeqCst);
-                    let limit = if grace_seconds.is_finite() {
-                        format!(" (at most {grace_seconds:.0} s)")
+                    if grace_seconds.is_finite() {
+                        crate::exec::progress::request_stop(std::time::Duration::from_secs_f64(
+                            grace_seconds,
+                        ));
+                        eprintln!(
+                            "\n{}: cells in flight finish if they can within {} s, the others stop at their next sweep or step; then {then} (a second signal leaves at once)",
+                            name(sig),
+                            seconds(grace_seconds)
+                        );
                     } else {
-                        String::new()
-                    };
-                    eprintln!(
-                        "\n{}: finishing the cells in flight{limit}, then {then} (a second signal leaves at once)",
-                        name(sig)
-                    );
+                        eprintln!(
+                            "\n{}: finishing the cells in flight, then {then} (a second signal leaves at once)",
+                            name(sig)
+                        );
+                    }
                 }
             })
             .expect("signal thread");

@@ -112,7 +112,7 @@ pub fn run(a: &SlurmArgs) -> anyhow::Result<ExitCode> {
          #SBATCH --time={time}\n\
          {part}\
          #SBATCH --output={out}/part-%a.out\n\
-         # SIGTERM a minute before the time limit: kiln finishes or abandons its cells in flight\n\
+         # SIGTERM a minute before the time limit: kiln finishes its cells in flight or stops them at a sweep\n\
          # (--grace), releases its claims and exits 143; the next submission resumes.\n\
          #SBATCH --signal=B:TERM@60\n\
          set -euo pipefail\n\

@@ -60,6 +60,8 @@ pub struct Report {
     /// Stale claims of other runners taken over, with the reason.
     pub takeovers: Vec<String>,
     pub interrupted: bool,
+    /// Cells that a stop signal made leave at a step boundary, described with where they were.
+    pub stopped: Vec<String>,
 }
 
 /// The verified cache entry of a cell: its record and, for a reference cell, its spins
@@ -219,6 +221,7 @@ pub fn execute(
 
     let new_records: Mutex<Vec<Record>> = Mutex::new(Vec::new());
     let failures: Mutex<Vec<(String, String)>> = Mutex::new(Vec::new());
+    let stopped: Mutex<Vec<String>> = Mutex::new(Vec::new());
     let fatal: Mutex<Option<StoreError>> = Mutex::new(None);
     let abort = AtomicBool::new(false);
     let running = AtomicBool::new(true);
@@ -277,6 +280,18 @@ pub fn execute(
                                 cached_later.fetch_add(1, Ordering::Relaxed);
                             }
                             Ok(Outcome::Deferred) => deferred.lock().expect("lock").push(cell),
+                            Ok(Outcome::Stopped(at)) => {
+                                skipped.fetch_add(1, Ordering::Relaxed);
+                                stopped.lock().expect("lock").push(format!(
+                                    "{} n = {} (cell {}) left at {} {} of {}",
+                                    spec.algorithms[cell.algo].label,
+                                    cell.n,
+                                    &cell.key.hex()[..12],
+                                    at.unit,
+                                    at.done,
+                                    at.total
+                                ));
+                            }
                             Ok(Outcome::Failed(m)) => {
                                 failures.lock().expect("lock").push((cell.key.hex(), m));
                                 progress::add(&cost_done, cost(cell));
@@ -338,6 +353,11 @@ pub fn execute(
         damaged: damaged.into_inner().expect("lock"),
         takeovers: takeovers.into_inner().expect("lock"),
         interrupted: INTERRUPTED.load(Ordering::Relaxed),
+        stopped: {
+            let mut v = stopped.into_inner().expect("lock");
+            v.sort();
+            v
+        },
     })
 }
 
@@ -417,6 +437,8 @@ enum Outcome {
     /// Another live runner holds its claim: try again later.
     Deferred,
     Failed(String),
+    /// Left at a step boundary after a stop signal (nothing recorded).
+    Stopped(progress::Stopped),
 }
 
 /// Claims a cell, rechecks the cache under the claim, and computes it if still missing.
@@ -444,7 +466,19 @@ fn attempt(
     if let Some(r) = cached_record(spec, cache, cell, damaged)? {
         return Ok(Outcome::Cached(r));
     }
-    match compute_cell(spec, cell, cache, prov, damaged) {
+    // A stop signal makes a long cell leave at a step boundary (see `progress`): nothing of it
+    // is recorded, and dropping the guard releases its claim. Any other panic goes on.
+    let computed = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+        compute_cell(spec, cell, cache, prov, damaged)
+    }));
+    let computed = match computed {
+        Ok(c) => c,
+        Err(payload) => match payload.downcast::<progress::Stopped>() {
+            Ok(stopped) => return Ok(Outcome::Stopped(*stopped)),
+            Err(other) => std::panic::resume_unwind(other),
+        },
+    };
+    match computed {
         Ok(files) => {
             let record = files.record.clone();
             let job = WriteJob::Cell(Box::new(files), guard);

@@ -6,7 +6,11 @@
 //! the thread that runs it ([`Board::enter`]); a ticker thread composes the line from the
 //! run's counters and the longest-running cell in flight.
 //!
-//! Nothing here touches a result: the reports are read only for display.
+//! Nothing here touches a result: the reports are read only for display, and to stop a cell
+//! at a step boundary once a stop signal has come ([`request_stop`]): a cell whose own reports
+//! say it cannot finish within the grace, or that is still running when the grace is over,
+//! leaves at its next report by unwinding with [`Stopped`], which the executor catches. Nothing
+//! of such a cell is recorded; its claim is released like any other.
 
 use std::cell::RefCell;
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -24,6 +28,40 @@ pub struct Slot {
     unit: OnceLock<&'static str>,
 }
 
+/// What a cell unwinds with when a stop makes it leave at a step boundary: where it was.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Stopped {
+    pub done: u64,
+    pub total: u64,
+    pub unit: &'static str,
+}
+
+/// When the grace after a stop signal ends (unset: no stop requested, or an infinite grace).
+static STOP_AT: OnceLock<Instant> = OnceLock::new();
+
+/// Asks the cells in flight to leave at their next step once `grace` has passed, or at once
+/// if their own progress says they would not finish by then. Called by the signal handler;
+/// only the first call counts.
+pub fn request_stop(grace: Duration) {
+    let _ = STOP_AT.set(Instant::now() + grace);
+}
+
+/// Whether a cell started at `started`, having done `done` of `total` units (`exact`: the
+/// total is the real count, not a cap the loop may stop short of), should leave now, given
+/// the end of the grace. Reached only after a stop signal.
+fn should_stop(started: Instant, done: u64, total: u64, exact: bool, end: Instant) -> bool {
+    let now = Instant::now();
+    if now >= end {
+        return true;
+    }
+    if !exact || done == 0 || total <= done {
+        return false;
+    }
+    // Finished at the pace so far: elapsed × total / done after the start.
+    let projected = now.duration_since(started).as_secs_f64() * total as f64 / done as f64;
+    started + Duration::from_secs_f64(projected.min(1e9)) > end
+}
+
 thread_local! {
     /// The cell this thread is computing (a stack through [`Entered`], since a thread that waits
     /// inside a parallel kernel may start another cell meanwhile).
@@ -31,15 +69,33 @@ thread_local! {
 }
 
 /// Reports that the cell on this thread has done `done` of `total` units (`unit` names
-/// them: "sweep", "product", "iteration"). A no-op outside a run (tests, `kiln replay`).
+/// them: "sweep", "product", "iteration"), `total` being the exact count the loop runs. A
+/// no-op outside a run (tests, library use). After a stop signal this is where a cell
+/// leaves (see the module notes): call it only where leaving loses nothing but the cell.
 pub fn step(done: u64, total: u64, unit: &'static str) {
-    CURRENT.with(|c| {
-        if let Some(s) = c.borrow().as_ref() {
-            s.done.store(done, Ordering::Relaxed);
-            s.total.store(total, Ordering::Relaxed);
-            let _ = s.unit.set(unit);
-        }
+    report(done, total, unit, true);
+}
+
+/// As [`step`], for a loop that may end before `total` (a cap: descent's `max_sweeps`, an
+/// iteration limit): a stop waits for the grace to end rather than judging from the pace.
+pub fn step_upto(done: u64, cap: u64, unit: &'static str) {
+    report(done, cap, unit, false);
+}
+
+fn report(done: u64, total: u64, unit: &'static str, exact: bool) {
+    let leave = CURRENT.with(|c| {
+        let c = c.borrow();
+        let s = c.as_ref()?;
+        s.done.store(done, Ordering::Relaxed);
+        s.total.store(total, Ordering::Relaxed);
+        let _ = s.unit.set(unit);
+        let end = STOP_AT.get()?;
+        should_stop(s.started, done, total, exact, *end).then_some(Stopped { done, total, unit })
     });
+    if let Some(stopped) = leave {
+        // Not a panic: no message, no hook; the executor catches exactly this payload.
+        std::panic::resume_unwind(Box::new(stopped));
+    }
 }
 
 /// The cells in flight of one run.
@@ -231,6 +287,30 @@ mod tests {
         assert!(board.slots.lock().unwrap().is_empty());
         assert!(board.longest().is_none());
         assert_eq!(duration(Duration::from_secs(185)), "3 min 05 s");
+    }
+
+    /// The stop rule: past the end of the grace every cell leaves; before it, only a cell
+    /// with an exact total whose pace projects it past the end; a cell that has reported no
+    /// work, or has a cap rather than a total, waits for the end.
+    #[test]
+    fn cells_leave_when_they_cannot_finish_in_the_grace() {
+        let now = Instant::now();
+        let started = now - Duration::from_secs(10);
+        let end = now + Duration::from_secs(20);
+        // 10 s for 1 of 100: 1000 s in all, far past the end.
+        assert!(should_stop(started, 1, 100, true, end));
+        assert!(!should_stop(started, 1, 100, false, end));
+        // 10 s for 90 of 100: about 11 s in all, within the grace.
+        assert!(!should_stop(started, 90, 100, true, end));
+        assert!(!should_stop(started, 0, 100, true, end));
+        assert!(should_stop(started, 90, 100, true, now));
+        assert!(should_stop(
+            started,
+            0,
+            100,
+            false,
+            now - Duration::from_secs(1)
+        ));
     }
 
     /// The line's finished count is the sum of its parts (they are read from the same

@@ -358,39 +358,91 @@ fn sigterm_writes_what_is_done_and_resumes() {
     assert_eq!(numbers(&w.path().join("results/lease/cells.parquet")), want);
 }
 
-/// SIGTERM while a long cell computes, with a grace of 0.3 s: the cell is abandoned, its
-/// claim released, the (empty) table and the manifest written, exit status 143.
-#[test]
-fn sigterm_abandons_a_long_cell_after_the_grace() {
-    let w = Work::new();
-    let spec = w.spec(
+/// A spec of one long cell: `model` (the lines of `[model]`), size `n`, `algorithm` (the lines
+/// of `[[algorithm]]`).
+fn long_cell(w: &Work, model: &str, n: u64, algorithm: &str) -> PathBuf {
+    w.spec(
         "s.toml",
-        r#"[experiment]
-name = "long"
-[model]
-family = "sk"
-[sweep]
-sizes = [1500]
-seeds = 1
-[[algorithm]]
-kind = "anneal"
-sweeps = 200000
-"#,
-    );
-    let child = spawn_run(&w, &spec, &["--grace", "0.3"]);
-    let cache = w.path().join("results/.cache");
+        &format!(
+            "[experiment]\nname = \"long\"\n[model]\n{model}\n[sweep]\nsizes = [{n}]\nseeds = 1\n[[algorithm]]\n{algorithm}\n"
+        ),
+    )
+}
+
+/// Waits (up to 30 s) until the run holds a claim: its cell is in flight.
+fn wait_for_claim(cache: &Path) {
     let t = Instant::now();
-    while claim_files(&cache).is_empty() && t.elapsed() < Duration::from_secs(30) {
+    while claim_files(cache).is_empty() && t.elapsed() < Duration::from_secs(30) {
         std::thread::sleep(Duration::from_millis(20));
     }
-    signal(&child, "-TERM");
-    let o = wait_within(child, Duration::from_secs(30));
-    let err = stderr(&o);
-    assert_eq!(o.status.code(), Some(143), "{err}");
-    assert!(err.contains("abandoned"), "{err}");
+}
+
+/// The stop was clean: no claim, no record, an empty table and a manifest counting the cell
+/// as skipped.
+fn nothing_recorded(w: &Work) {
+    let cache = w.path().join("results/.cache");
     assert!(claim_files(&cache).is_empty());
+    let records: Vec<_> = std::fs::read_dir(cache.join("records"))
+        .map(|d| d.flatten().collect())
+        .unwrap_or_default();
+    assert!(records.is_empty(), "{records:?}");
     let df = table::read(&w.path().join("results/long/cells.parquet")).unwrap();
     assert_eq!(df.height(), 0);
     let m = std::fs::read_to_string(w.path().join("results/long/manifest.toml")).unwrap();
     assert!(m.contains("skipped = 1"), "{m}");
+}
+
+/// Ctrl-C while a cell runs that its own pace projects far past the grace (10⁷ sweeps of
+/// annealing at n = 1500; the grace is 60 s): the cell leaves at its next sweep instead of
+/// using the grace, says where it was, records nothing, releases its claim; exit status 130.
+/// The 40 s limit is a liveness check: without the stop the run would last until the grace
+/// ended (60 s) and then be abandoned.
+#[test]
+fn ctrl_c_stops_a_long_cell_at_its_next_sweep() {
+    let w = Work::new();
+    let spec = long_cell(
+        &w,
+        "family = \"sk\"",
+        1500,
+        "kind = \"anneal\"\nsweeps = 10000000",
+    );
+    let child = spawn_run(&w, &spec, &["--grace", "60"]);
+    wait_for_claim(&w.path().join("results/.cache"));
+    std::thread::sleep(Duration::from_millis(300));
+    signal(&child, "-INT");
+    let o = wait_within(child, Duration::from_secs(40));
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(130), "{err}");
+    assert!(err.contains("left at sweep"), "{err}");
+    assert!(err.contains("nothing of it is recorded"), "{err}");
+    assert!(!err.contains("abandoned"), "{err}");
+    let v = summary(&o);
+    assert_eq!(v["interrupted"], true);
+    let stopped = v["stopped"].as_array().unwrap();
+    assert_eq!(stopped.len(), 1, "{v}");
+    assert!(stopped[0].as_str().unwrap().contains("of 10000000"), "{v}");
+    nothing_recorded(&w);
+}
+
+/// SIGTERM while a cell computes that reports no steps to stop at (exhaustive search over the
+/// 2²⁹ state pairs of the pure 3-spin cube at n = 30, measured over a minute), with a grace of
+/// 0.3 s: after the grace and the wait for a step boundary (10 s) the cell is abandoned, its
+/// claim released, the (empty) table and the manifest written, exit status 143.
+#[test]
+fn sigterm_abandons_a_cell_without_steps_after_the_grace() {
+    let w = Work::new();
+    let spec = long_cell(
+        &w,
+        "family = \"cube\"\nxi = { 3 = 0.5 }",
+        30,
+        "kind = \"exhaustive\"",
+    );
+    let child = spawn_run(&w, &spec, &["--grace", "0.3"]);
+    wait_for_claim(&w.path().join("results/.cache"));
+    signal(&child, "-TERM");
+    let o = wait_within(child, Duration::from_secs(40));
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(143), "{err}");
+    assert!(err.contains("abandoned"), "{err}");
+    nothing_recorded(&w);
 }
