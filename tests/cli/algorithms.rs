@@ -412,6 +412,11 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         ),
         (cube.clone(), AlgoSpec::new(iamp::Params::default())),
         (
+            // The start at overlap δ with the field from t = δ (ξ''(0) = 0).
+            ModelSpec::cube(kiln::theory::Mixture::pure(3), Couplings::Gaussian),
+            AlgoSpec::new(iamp::Params::default()),
+        ),
+        (
             cube.clone(),
             AlgoSpec::new(kiln::algo::glauber::Params::default()),
         ),
@@ -463,10 +468,11 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
             // tempering's `temperatures` is canonically "replicas", its name before a rename
             // (kept so cache keys did not change); its `output` enters only when it is not the
             // default "best" (so the keys of cells from before the sampling mode did not
-            // change): checked with `output = "sample"` below.
+            // change): checked with `output = "sample"` below; so does iamp's `start` (keys
+            // from before it existed), checked with `start = 0.02` below.
             let canonical = match (a.kind(), key.name) {
                 ("tempering", "temperatures") => "replicas",
-                ("tempering", "output") => continue,
+                ("tempering", "output") | ("iamp", "start") => continue,
                 (_, name) => name,
             };
             assert!(
@@ -483,6 +489,11 @@ fn every_algorithm_is_deterministic_and_keyed_by_its_revision() {
         ..Default::default()
     });
     assert!(sampling.settings().contains("\"output\":\"sample\""));
+    let started = AlgoSpec::new(iamp::Params {
+        start: Some(0.02),
+        ..Default::default()
+    });
+    assert!(started.settings().contains("\"start\":0.02"));
     assert_ne!(
         sampling.settings(),
         AlgoSpec::new(tempering::Params::default()).settings()

@@ -498,14 +498,22 @@ fn algorithms_are_matched_to_families() {
         &family_spec("family = \"sk\"", "[16]", "kind = \"hessian\""),
         &["`hessian` cannot run on the `sk` family"],
     );
-    // Incremental AMP starts at q = 0: a pure p ≥ 3 model gives it nothing to follow.
+    // Incremental AMP needs a dense cube model (ξ), and a start overlap in (0, 0.5].
+    refuse(
+        &family_spec(
+            "family = \"regular\"\ndegree = 3",
+            "[16]",
+            "kind = \"iamp\"",
+        ),
+        &["`iamp` cannot run on the `regular` family", "dense model"],
+    );
     refuse(
         &family_spec(
             "family = \"cube\"\nxi = { 3 = 1.0 }",
             "[16]",
-            "kind = \"iamp\"",
+            "kind = \"iamp\"\nstart = 0",
         ),
-        &["`iamp` cannot run on the `cube` family", "p = 2 term"],
+        &["start = 0 is not an overlap in (0, 0.5]", "norm²"],
     );
     refuse(
         &family_spec(

@@ -26,7 +26,8 @@ type Pin = (
     &'static str,
 );
 
-/// One pin per kind (gradient twice: on the cube and on the sphere).
+/// One pin per kind (gradient twice: on the cube and on the sphere; iamp twice: with and
+/// without a p = 2 term).
 const ALGORITHM_PINS: &[Pin] = &[
     (
         "descent",
@@ -111,6 +112,15 @@ const ALGORITHM_PINS: &[Pin] = &[
         "0.51153388586043",
         "3ac065e7f5d8169b",
     ),
+    // The pure 3-spin cube (ξ''(0) = 0): the start at q₀ = δ with the field from t = δ.
+    (
+        "iamp",
+        3,
+        "cube-pure3",
+        24,
+        "0.37581291588424026",
+        "2fd1bc153aa6656c",
+    ),
     (
         "glauber",
         2,
@@ -156,6 +166,7 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
             "density = 1.0\nmargin = 0.25\ndomain = \"sphere\"",
         ),
         "sk-f32" => ("sk", "storage = \"f32\""),
+        "cube-pure3" => ("cube", "xi = { 3 = 0.5 }"),
         "sk-implicit" => ("sk", "storage = \"implicit\""),
         f => (f, params_of(f)),
     };
@@ -181,6 +192,7 @@ fn params_of(family: &str) -> &'static str {
 /// The coupling law of an algorithm pin's model: gaussian, or the family's only law.
 fn model_law(family: &str) -> Couplings {
     let family = family.strip_suffix("-sphere").unwrap_or(family);
+    let family = family.strip_suffix("-pure3").unwrap_or(family);
     let entry = kiln::model::find(family).expect("a family");
     if entry.couplings.contains(&Couplings::Gaussian) {
         Couplings::Gaussian
