@@ -83,6 +83,7 @@ fn replay_passes_on_every_committed_example() {
         "perceptron-sphere-capacity",
         "perceptron-binary-capacity",
         "sk-large-n",
+        "cube-pure3-iamp",
     ] {
         let dir = root.join(e);
         // Committed numbers come from a committed tree: the manifest names a clean revision.
