@@ -214,7 +214,7 @@ impl super::Figure for TraceFigure {
         if let Some((e, label)) = &self.target {
             let line = vec![(xlo / 1.3, *e), (xhi * 1.3, *e)];
             covered.extend(line_pixels(chart.plotting_area(), &line));
-            theory_line(&mut chart, line, label)?;
+            theory_line(&mut chart, line, label, 0)?;
             labels.push(label.clone());
         }
         for (i, s) in self.series.iter().enumerate() {
@@ -333,7 +333,7 @@ where
     let mut labels: Vec<String> = Vec::new();
     if let Some((pts, label)) = &p.theory {
         covered.extend(line_pixels(chart.plotting_area(), pts));
-        theory_line(&mut chart, pts.clone(), label)?;
+        theory_line(&mut chart, pts.clone(), label, 0)?;
         labels.push(label.clone());
     }
     for (i, (label, pts)) in p.series.iter().enumerate() {
@@ -584,7 +584,7 @@ impl OverlapFigure {
             .map_err(err)?;
         let (corners, label) = &d.parisi;
         let mut covered = line_pixels(chart.plotting_area(), corners);
-        theory_line(&mut chart, corners.clone(), label)?;
+        theory_line(&mut chart, corners.clone(), label, 0)?;
         for (i, v) in d.samples.iter().enumerate() {
             let style = series(i);
             let color = style.color;
@@ -960,12 +960,12 @@ where
     // What the legend must not cover: every drawn point and line, in pixels.
     let mut drawn: Vec<(i32, i32)> = Vec::new();
     let mut labels: Vec<String> = Vec::new();
-    for (v, label) in &fig.theory {
+    for (k, (v, label)) in fig.theory.iter().enumerate() {
         if role.theory_legend {
-            theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label)?;
+            theory_line(&mut chart, vec![(0.0, *v), (xmax, *v)], label, k)?;
             labels.push(label.clone());
         } else {
-            dashed(&mut chart, vec![(0.0, *v), (xmax, *v)])?;
+            dashed(&mut chart, vec![(0.0, *v), (xmax, *v)], k)?;
         }
         drawn.extend((0..=40).map(|k| {
             chart
@@ -1227,6 +1227,7 @@ where
         &mut chart,
         vec![(xlo, root2), (xhi, root2)],
         "√2: unrelated outputs",
+        0,
     )?;
     labels.push("√2: unrelated outputs".into());
     for k in 0..=40 {
@@ -1408,11 +1409,13 @@ where
         .axis_style(BLACK.stroke_width(2))
 }
 
-/// A dashed black theory line through `pts`, with its legend entry.
+/// A black theory line through `pts` in dash pattern `pattern` (see [`dashed`]), with its
+/// legend entry drawn in the same pattern.
 fn theory_line<'a, DB, X, Y>(
     chart: &mut ChartContext<'a, DB, plotters::coord::cartesian::Cartesian2d<X, Y>>,
     pts: Vec<(f64, f64)>,
     label: &str,
+    pattern: usize,
 ) -> Result<(), String>
 where
     DB: DrawingBackend + 'a,
@@ -1420,23 +1423,36 @@ where
     X: Ranged<ValueType = f64>,
     Y: Ranged<ValueType = f64>,
 {
-    dashed(chart, pts)?
+    dashed(chart, pts, pattern)?
         .label(label.to_string())
-        .legend(|(x, y)| {
-            // Dashed, as the line is.
+        .legend(move |(x, y)| {
+            // In the line's own pattern: three dashes, or six dots for a second line.
+            let seg: [(i32, i32); 6] = if pattern == 0 {
+                [(0, 4), (4, 8), (12, 16), (16, 20), (24, 27), (27, 30)]
+            } else {
+                [(0, 2), (5, 7), (10, 12), (15, 17), (20, 22), (25, 27)]
+            };
+            let piece = |k: usize| {
+                PathElement::new(vec![(seg[k].0, 0), (seg[k].1, 0)], BLACK.stroke_width(3))
+            };
             EmptyElement::at((x, y))
-                + PathElement::new(vec![(0, 0), (8, 0)], BLACK.stroke_width(3))
-                + PathElement::new(vec![(12, 0), (20, 0)], BLACK.stroke_width(3))
-                + PathElement::new(vec![(24, 0), (30, 0)], BLACK.stroke_width(3))
+                + piece(0)
+                + piece(1)
+                + piece(2)
+                + piece(3)
+                + piece(4)
+                + piece(5)
         });
     Ok(())
 }
 
-/// A dashed black reference line through `pts`, as theory lines are drawn (without a legend
-/// entry; [`theory_line`] adds one).
+/// A black reference line through `pts`, as theory lines are drawn (without a legend entry;
+/// [`theory_line`] adds one): dashed for `pattern` 0, dotted otherwise, so that two theory
+/// lines in one figure (the Parisi value and the algorithmic threshold) differ in grey too.
 fn dashed<'a, 'b, DB, X, Y>(
     chart: &'b mut ChartContext<'a, DB, plotters::coord::cartesian::Cartesian2d<X, Y>>,
     pts: Vec<(f64, f64)>,
+    pattern: usize,
 ) -> Result<&'b mut plotters::chart::SeriesAnno<'a, DB>, String>
 where
     DB: DrawingBackend + 'a,
@@ -1447,8 +1463,8 @@ where
     chart
         .draw_series(DashedLineSeries::new(
             pts,
-            pt(3.0) as u32,
-            pt(2.0) as u32,
+            pt(if pattern == 0 { 3.0 } else { 0.8 }) as u32,
+            pt(if pattern == 0 { 2.0 } else { 1.6 }) as u32,
             BLACK.stroke_width(3),
         ))
         .map_err(err)
