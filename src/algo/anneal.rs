@@ -246,13 +246,8 @@ fn sweeps_direct<F: IntField>(
 ) -> u64 {
     let (offsets, nbr) = g.csr();
     let n = s.len();
-    let steps = p.sweeps.max(1);
-    let mut accept = super::Metropolis::new(Some(bound));
     let mut accepted = 0u64;
-    for sweep in 0..steps {
-        crate::exec::progress::step(sweep, steps, "sweep");
-        accept.set_beta(beta_at(p, sweep, steps));
-        let table = accept.table();
+    integer_schedule(p, bound, |table| {
         for i in 0..n {
             // On a graph larger than the caches every field update is a miss: ask for the
             // fields of the neighbours of spin i + AHEAD now (a hint; results unchanged).
@@ -262,9 +257,7 @@ fn sweeps_direct<F: IntField>(
                     crate::kernels::prefetch_write(hi.as_ptr().wrapping_add(j as usize));
                 }
             }
-            let x = s[i] as i32 * hi[i].get();
-            // gain g = −2x: accept uphill or level moves, else with probability e^{βg}.
-            if x <= 0 || rng.uniform() < table[(2 * x) as usize] {
+            if accepts(s[i] as i32 * hi[i].get(), table, rng) {
                 s[i] = -s[i];
                 let c = 2 * s[i] as i32;
                 let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
@@ -275,8 +268,27 @@ fn sweeps_direct<F: IntField>(
                 accepted += 1;
             }
         }
-    }
+    });
     accepted
+}
+
+/// Runs `sweep(table)` for each sweep of the schedule: reports progress, sets β, and passes
+/// the table e^{−βk} of the integer gains k ≤ `bound`.
+fn integer_schedule(p: &Params, bound: usize, mut sweep: impl FnMut(&[f64])) {
+    let steps = p.sweeps.max(1);
+    let mut accept = super::Metropolis::new(Some(bound));
+    for k in 0..steps {
+        crate::exec::progress::step(k, steps, "sweep");
+        accept.set_beta(beta_at(p, k, steps));
+        sweep(accept.table());
+    }
+}
+
+/// The Metropolis decision at the integer x = σ_i·h_i (gain −2x): level and uphill moves are
+/// accepted without a draw, others with probability e^{−2βx} (one draw).
+#[inline(always)]
+fn accepts(x: i32, table: &[f64], rng: &mut Stream) -> bool {
+    x <= 0 || rng.uniform() < table[(2 * x) as usize]
 }
 
 /// Above this many spins the fields outgrow the caches and [`sweeps_blocked`] runs instead.
@@ -330,13 +342,8 @@ fn sweeps_blocked<F: IntField>(
     };
     // Fields per cache line.
     let line = (64 / std::mem::size_of::<F>()).max(1);
-    let steps = p.sweeps.max(1);
-    let mut accept = super::Metropolis::new(Some(bound));
     let mut accepted = 0u64;
-    for sweep in 0..steps {
-        crate::exec::progress::step(sweep, steps, "sweep");
-        accept.set_beta(beta_at(p, sweep, steps));
-        let table = accept.table();
+    integer_schedule(p, bound, |table| {
         for b in 0..blocks {
             let (lo, end) = (b << shift, ((b + 1) << shift).min(n));
             apply(hi, lo, &pending[start[b]..tail[b]]);
@@ -347,8 +354,7 @@ fn sweeps_blocked<F: IntField>(
                 if i & (line - 1) == 0 {
                     crate::kernels::prefetch_write(hi.as_ptr().wrapping_add(i + block));
                 }
-                let x = s[i] as i32 * hi[i].get();
-                if x <= 0 || rng.uniform() < table[(2 * x) as usize] {
+                if accepts(s[i] as i32 * hi[i].get(), table, rng) {
                     s[i] = -s[i];
                     let c = 2 * s[i] as i32;
                     let (a, e) = (offsets[i] as usize, offsets[i + 1] as usize);
@@ -366,7 +372,7 @@ fn sweeps_blocked<F: IntField>(
                 }
             }
         }
-    }
+    });
     for b in 0..blocks {
         apply(hi, b << shift, &pending[start[b]..tail[b]]);
     }
