@@ -450,23 +450,27 @@ mod tests {
                     .map(|(&j, x)| x * start[j as usize] as f64)
                     .sum();
             }
-            let typed = |shift: Option<u32>| {
-                let mut s = start.clone();
+            // One run in fields of type F: direct (None) or blocked in blocks of 2^shift.
+            fn sweep<F: IntField>(
+                args: (&Params, &Graph, &[i8], usize, &[i8], &[f64]),
+                shift: Option<u32>,
+            ) -> (Vec<i8>, Vec<i32>, u64) {
+                let (p, g, w, bound, start, h0) = args;
+                let mut s = start.to_vec();
                 let mut rng = stream(&[8; 32], Purpose::Algorithm, 0);
+                let mut hi: Vec<F> = h0.iter().map(|&x| F::from_f64(x)).collect();
+                let a = match shift {
+                    None => sweeps_direct(p, g, w, bound, &mut s, &mut hi, &mut rng),
+                    Some(k) => sweeps_blocked(p, g, w, bound, &mut s, &mut hi, &mut rng, k),
+                };
+                (s, hi.iter().map(|v| v.get()).collect(), a)
+            }
+            let args = (&p, &g, &w[..], bound, &start[..], &h0[..]);
+            let typed = |shift| {
                 if top == 1 {
-                    let mut hi: Vec<i8> = h0.iter().map(|&x| x as i8).collect();
-                    let a = match shift {
-                        None => sweeps_direct(&p, &g, &w, bound, &mut s, &mut hi, &mut rng),
-                        Some(k) => sweeps_blocked(&p, &g, &w, bound, &mut s, &mut hi, &mut rng, k),
-                    };
-                    (s, hi.iter().map(|&v| v as i32).collect::<Vec<_>>(), a)
+                    sweep::<i8>(args, shift)
                 } else {
-                    let mut hi: Vec<i32> = h0.iter().map(|&x| x as i32).collect();
-                    let a = match shift {
-                        None => sweeps_direct(&p, &g, &w, bound, &mut s, &mut hi, &mut rng),
-                        Some(k) => sweeps_blocked(&p, &g, &w, bound, &mut s, &mut hi, &mut rng, k),
-                    };
-                    (s, hi, a)
+                    sweep::<i32>(args, shift)
                 }
             };
             let direct = typed(None);

@@ -38,7 +38,7 @@
 //! increments of Z carry almost no signal and the extended γ diverges at q → 0), the field is
 //! read from t = q₀ on, so the iterate's overlap and the field's time agree from the first
 //! step: kiln's choice, a random start in place of the path from 0 to q₀, which forfeits at
-//! most the energy that stretch could add, about ∫₀^{q₀}√ξ'' dq (2e-3 for ξ = q³/2 at
+//! most the energy that stretch could add, about ∫₀^{q₀}√ξ'' dq (1e-3 for ξ = q³/2 at
 //! q₀ = 0.01). Measured on ξ = q³/2 with 8 instances: n = 200, 400, 800 reach 0.63, 0.70 and
 //! 0.74 against ALG = 0.800 (larger starts did worse: q₀ = 0.05 gave 0.64 at n = 300, q₀ = 0.2
 //! gave 0.52; the step mattered little: δ = 0.005, 0.01, 0.02 gave 0.69, 0.70, 0.69 at
@@ -92,9 +92,14 @@ impl Default for Params {
 }
 
 impl Params {
-    /// Number of AMP steps K (t_K = 1 − δ).
+    /// Number of AMP steps K from t = 0 (t_K = 1 − δ).
     pub fn steps(&self) -> usize {
-        ((1.0 / self.step).round() as usize).max(2)
+        self.steps_from(0.0)
+    }
+
+    /// Number of AMP steps from t = t₀ to t ≈ 1 − δ.
+    fn steps_from(&self, t0: f64) -> usize {
+        (((1.0 - t0) / self.step).round() as usize).max(2)
     }
 }
 
@@ -110,10 +115,10 @@ struct Drive {
     d2: Vec<Vec<f64>>,
 }
 
-type DriveCache = Mutex<HashMap<(String, u64, u64, bool, u64, usize), Arc<Drive>>>;
+type DriveCache = Mutex<HashMap<(String, u64, u64, bool, u64), Arc<Drive>>>;
 
-/// The field at t_k = t₀ + kδ, k < `steps`.
-fn drive(p: &Params, xi: &Mixture, t0: f64, steps: usize) -> Arc<Drive> {
+/// The field at t_k = t₀ + kδ, k < [`Params::steps_from`]`(t₀)`.
+fn drive(p: &Params, xi: &Mixture, t0: f64) -> Arc<Drive> {
     static CACHE: OnceLock<DriveCache> = OnceLock::new();
     let key = (
         xi.canon().encode(),
@@ -121,7 +126,6 @@ fn drive(p: &Params, xi: &Mixture, t0: f64, steps: usize) -> Arc<Drive> {
         p.levels,
         p.extended,
         t0.to_bits(),
-        steps,
     );
     let cache = CACHE.get_or_init(Default::default);
     if let Some(d) = cache.lock().expect("drive cache").get(&key) {
@@ -137,7 +141,9 @@ fn drive(p: &Params, xi: &Mixture, t0: f64, steps: usize) -> Arc<Drive> {
     } else {
         parisi
     };
-    let times: Vec<f64> = (0..steps).map(|k| t0 + k as f64 * p.step).collect();
+    let times: Vec<f64> = (0..p.steps_from(t0))
+        .map(|k| t0 + k as f64 * p.step)
+        .collect();
     let Field { x0, dx, gamma, phi } = full::field(xi, &sol, &s, &times);
     let drift = gamma
         .iter()
@@ -287,18 +293,15 @@ pub fn run(
     let delta = p.step;
     // With a p = 2 term and no explicit start: m⁰ = √δ·s and the field from t = 0 (revision
     // 3's numbers). Otherwise m⁰ = √q₀·s and the field from t = q₀, up to t ≈ 1 − δ.
-    let (t0, k_max, scale) = match (p.start, xi.d2(0.0) > 0.0) {
-        (None, true) => (0.0, p.steps(), delta.sqrt()),
+    let (t0, scale) = match (p.start, xi.d2(0.0) > 0.0) {
+        (None, true) => (0.0, delta.sqrt()),
         (q0, _) => {
             let q0 = q0.unwrap_or(delta);
-            (
-                q0,
-                (((1.0 - q0) / delta).round() as usize).max(2),
-                q0.sqrt(),
-            )
+            (q0, q0.sqrt())
         }
     };
-    let drive = drive(p, xi, t0, k_max);
+    let k_max = p.steps_from(t0);
+    let drive = drive(p, xi, t0);
     let nf = n as f64;
     // History: m^0..m^k, and per step c_k and ⟨u_{k−1}⟩ (index k; entry 0 unused).
     let mut ms: Vec<Vec<f64>> = vec![(0..n).map(|_| rng.sign() * scale).collect()];

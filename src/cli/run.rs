@@ -363,6 +363,7 @@ fn watchdog(
     shard: bool,
 ) {
     use std::sync::mpsc::RecvTimeoutError;
+    let limit = grace + super::signals::AFTER_GRACE;
     let mut since: Option<Instant> = None;
     loop {
         match finished.recv_timeout(std::time::Duration::from_millis(50)) {
@@ -372,14 +373,14 @@ fn watchdog(
         if since.is_none() && super::signals::received() {
             since = Some(Instant::now());
         }
-        if since.is_some_and(|t| t.elapsed() >= grace + super::signals::AFTER_GRACE) {
+        if since.is_some_and(|t| t.elapsed() >= limit) {
             break;
         }
     }
     crate::store::claims::release_all();
     eprintln!(
         "stop: cells still in flight {:.0} s after the signal report no step to stop at; abandoned (their claims released)",
-        (grace + super::signals::AFTER_GRACE).as_secs_f64()
+        limit.as_secs_f64()
     );
     if !shard {
         let damaged = std::sync::Mutex::new(Vec::new());

@@ -70,21 +70,21 @@ pub fn install(grace_seconds: f64, then: &'static str) {
                         std::process::exit(128 + sig);
                     }
                     RECEIVED.store(sig, Ordering::SeqCst);
-                    if grace_seconds.is_finite() {
+                    let how = if grace_seconds.is_finite() {
                         crate::exec::progress::request_stop(std::time::Duration::from_secs_f64(
                             grace_seconds,
                         ));
-                        eprintln!(
-                            "\n{}: cells in flight finish if they can within {} s, the others stop at their next sweep or step; then {then} (a second signal leaves at once)",
-                            name(sig),
+                        format!(
+                            "cells in flight finish if they can within {} s, the others stop at their next sweep or step;",
                             seconds(grace_seconds)
-                        );
+                        )
                     } else {
-                        eprintln!(
-                            "\n{}: finishing the cells in flight, then {then} (a second signal leaves at once)",
-                            name(sig)
-                        );
-                    }
+                        "finishing the cells in flight,".to_string()
+                    };
+                    eprintln!(
+                        "\n{}: {how} then {then} (a second signal leaves at once)",
+                        name(sig)
+                    );
                 }
             })
             .expect("signal thread");

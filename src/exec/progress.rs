@@ -57,9 +57,9 @@ fn should_stop(started: Instant, done: u64, total: u64, exact: bool, end: Instan
     if !exact || done == 0 || total <= done {
         return false;
     }
-    // Finished at the pace so far: elapsed × total / done after the start.
-    let projected = now.duration_since(started).as_secs_f64() * total as f64 / done as f64;
-    started + Duration::from_secs_f64(projected.min(1e9)) > end
+    // At the pace so far the whole run takes elapsed × total / done from its start.
+    let whole = now.duration_since(started).as_secs_f64() * total as f64 / done as f64;
+    whole > end.duration_since(started).as_secs_f64()
 }
 
 thread_local! {
