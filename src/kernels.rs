@@ -437,9 +437,10 @@ pub fn huge_pages<T>(v: &mut [T]) {
     let _ = v;
 }
 
-/// Prefetches the cache line holding `x` for writing soon (a hint: never changes a result).
+/// Prefetches the cache line holding `x` into the first-level cache, to be read or written
+/// soon (a hint: never changes a result).
 #[inline(always)]
-pub fn prefetch_write<T>(x: *const T) {
+pub fn prefetch<T>(x: *const T) {
     #[cfg(target_arch = "x86_64")]
     // SAFETY: a prefetch of any address is harmless.
     unsafe {

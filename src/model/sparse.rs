@@ -145,6 +145,7 @@ impl Graph {
             deg[key_hi(k)].fetch_add(1, Relaxed);
         });
         let mut offsets = vec![0u64; n + 1];
+        crate::kernels::huge_pages(&mut offsets);
         for i in 0..n {
             offsets[i + 1] = offsets[i] + deg[i].load(Relaxed) as u64;
         }
@@ -152,6 +153,8 @@ impl Graph {
         let total = offsets[n] as usize;
         let mut nbr = vec![0u32; total];
         let mut w = vec![0.0f64; total];
+        crate::kernels::huge_pages(&mut nbr);
+        crate::kernels::huge_pages(&mut w);
         let keep = perturb.map_or(1.0, |e| 1.0 - e);
         let fresh = perturb.map_or(0.0, |e| (e * (2.0 - e)).sqrt());
         let m = keys.len();
@@ -298,10 +301,15 @@ impl Graph {
     /// The couplings as i8 in CSR order, when every one is an integer in [−127, 127] (±1 and
     /// cut couplings): the compact form the integer annealing loop runs on.
     pub fn small_integer_couplings(&self) -> Option<Vec<i8>> {
-        self.w
-            .iter()
-            .map(|&x| (x.fract() == 0.0 && x.abs() <= 127.0).then_some(x as i8))
-            .collect()
+        let mut out = vec![0i8; self.w.len()];
+        crate::kernels::huge_pages(&mut out);
+        for (o, &x) in out.iter_mut().zip(&self.w) {
+            if x.fract() != 0.0 || x.abs() > 127.0 {
+                return None;
+            }
+            *o = x as i8;
+        }
+        Some(out)
     }
 
     /// CSR row offsets (n + 1) and neighbour lists.
