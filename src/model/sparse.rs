@@ -41,6 +41,9 @@ const STRUCTURE: u64 = 1 << 62;
 /// Stream index offset of the fresh edges of a perturbed Erdős–Rényi `cut` graph.
 const FRESH: u64 = 1 << 61;
 
+/// How many keys ahead [`Graph::from_keys`] prefetches the rows its mirroring pass writes to.
+const MIRROR_AHEAD: usize = 64;
+
 /// Revision of the graph and lattice samplers. Bump when a seed's disorder changes.
 pub const REVISION: u32 = 1;
 
@@ -214,6 +217,15 @@ impl Graph {
                 // The current row and the index of its first key.
                 let (mut row, mut first) = (usize::MAX, 0);
                 for (k, &x) in keys[..end].iter().enumerate() {
+                    // Ask early for the cursor and offset of the row a key further on lands in
+                    // (reads of random rows, which would otherwise be waited for one by one).
+                    if let Some(&y) = keys[..end].get(k + MIRROR_AHEAD) {
+                        let jy = key_hi(y);
+                        if (ja..jb).contains(&jy) {
+                            crate::kernels::prefetch(cur.as_ptr().wrapping_add(jy - ja));
+                            crate::kernels::prefetch(offsets.as_ptr().wrapping_add(jy));
+                        }
+                    }
                     let (i, j) = (key_lo(x), key_hi(x));
                     if i != row {
                         (row, first) = (i, k);
@@ -532,7 +544,13 @@ impl EdgeKeys for KeySet<'_> {
 /// [`KeySet`] over them. Same draws, same graph as the hash-set construction it replaced
 /// (tested against it).
 fn regular_keys(n: usize, d: usize, rng: &mut Stream) -> Vec<u64> {
-    let mut stubs: Vec<u32> = (0..n * d).into_par_iter().map(|k| (k / d) as u32).collect();
+    // 2 MiB pages: every swap of the shuffle lands on a random page of these 4·n·d bytes.
+    let mut stubs = vec![0u32; n * d];
+    crate::kernels::huge_pages(&mut stubs);
+    stubs
+        .par_iter_mut()
+        .enumerate()
+        .for_each(|(k, x)| *x = (k / d) as u32);
     rng.shuffle(&mut stubs);
     let mut edges: Vec<(u32, u32)> = stubs.par_chunks_exact(2).map(|p| (p[0], p[1])).collect();
     drop(stubs);
