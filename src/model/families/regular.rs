@@ -94,7 +94,7 @@ impl Family for Regular {
         }
     }
     fn instance_bytes(&self, n: u64) -> u128 {
-        sparse::instance_bytes(n, self.degree as f64 * n as f64 / 2.0)
+        sparse::regular_bytes(n, self.degree as f64 * n as f64 / 2.0)
     }
     fn flip_cost(&self, _n: u64) -> f64 {
         (self.degree as f64).max(1.0)
