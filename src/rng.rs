@@ -120,8 +120,8 @@ impl Stream {
     }
 
     /// Fisher–Yates shuffle of `xs` in place: for i = len − 1 down to 1, swap entry i with a
-    /// uniform entry j ≤ i. The draws are taken [`SHUFFLE_AHEAD`] swaps early (same draws, same
-    /// order) so that entry j's line can be asked for before the swap needs it: on 3·10⁸
+    /// uniform entry j ≤ i. The draws are taken 32 swaps early (`SHUFFLE_AHEAD`; same draws,
+    /// same order) so that entry j's line can be asked for before the swap needs it: on 3·10⁸
     /// entries each swap is a cache miss, and one waited for at a time they cost the whole
     /// shuffle.
     pub fn shuffle<T>(&mut self, xs: &mut [T]) {

@@ -827,7 +827,7 @@ pub fn instance_bytes(n: u64, m: f64) -> u128 {
 /// Peak bytes of a random regular graph with m edges on n vertices, built from sorted keys:
 /// while the structure is made, the stubs, the pairing and the keys (8m B each, two at a
 /// time); while the CSR is built, the keys (8m), degrees (4n), offsets (8n) and the CSR
-/// (2m·12 B); then the graph with what the integer loops add ([`GRAPH_EXTRA`]). At n = 10⁸,
+/// (2m·12 B); then the graph with what the integer loops add (`GRAPH_EXTRA`). At n = 10⁸,
 /// d = 3 this is 5.6 GiB, and the build's peak RSS measured 5.6 GiB (`bench_kernels …
 /// regular`, results/bench/regular-20261204T105613Z.txt).
 pub fn regular_bytes(n: u64, m: f64) -> u128 {
