@@ -895,6 +895,35 @@ mod tests {
         }
     }
 
+    /// A regular graph and its copies are the same bits whatever the thread count: built in
+    /// pools of 1, 2 and 5 threads (the sort, the row chunks and the mirroring ranges split
+    /// differently in each), every law, with and without a correlated copy.
+    #[test]
+    fn regular_graphs_do_not_depend_on_the_thread_count() {
+        let build = |threads: usize, c: Couplings, eps: f64| {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(threads)
+                .build()
+                .unwrap();
+            pool.install(|| regular(3000, 3, c, &[11; 32], eps))
+        };
+        let bits = |g: &Graph| {
+            let w: Vec<u64> = g.w.iter().map(|x| x.to_bits()).collect();
+            (g.offsets.clone(), g.nbr.clone(), w)
+        };
+        for c in [Couplings::Gaussian, Couplings::Pm1, Couplings::Cut] {
+            for eps in [0.0, 0.2] {
+                let one = bits(&build(1, c, eps));
+                for threads in [2, 5] {
+                    assert!(
+                        bits(&build(threads, c, eps)) == one,
+                        "{c:?} ε {eps}, {threads} threads"
+                    );
+                }
+            }
+        }
+    }
+
     /// The structure found through sorted keys equals the hash-set construction's, including
     /// dense cases where the pairing has dozens of loops and repeats to repair; and the
     /// switches of a `cut` copy are the same whether the present edges are asked of a hash set
