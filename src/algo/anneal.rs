@@ -124,7 +124,8 @@ pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
         .as_graph()
         .and_then(|g| g.small_integer_couplings().map(|w| (g, w)));
     if let (Some((g, w)), Some(bound)) = (small, bound) {
-        info.iterations = sweeps_integer(p, g, &w, bound, &mut s, &mut h, rng);
+        let it = Integer { p, g, w: &w, bound };
+        info.iterations = sweeps_integer(it, &mut s, &mut h, rng);
     } else {
         let mut accept = super::Metropolis::new(bound);
         for sweep in 0..steps {
@@ -183,25 +184,27 @@ macro_rules! int_field {
 int_field!(i8);
 int_field!(i32);
 
+/// What the integer sweeps read and never change: the schedule, the graph, its couplings as
+/// i8 in CSR order, and the bound on the integer gains.
+#[derive(Clone, Copy)]
+struct Integer<'a> {
+    p: &'a Params,
+    g: &'a crate::model::sparse::Graph,
+    w: &'a [i8],
+    bound: usize,
+}
+
 /// The sweeps on a graph whose couplings are small integers: fields kept as exact integers
 /// (i8 when the gain bound allows, else i32), the couplings as i8, acceptance from the per-β
 /// table. Every decision and draw is the one the generic loop makes (the fields are the same
 /// integers; the table holds the same `libm::exp(β·g)`), so the output is bit-identical
 /// (tested); it is only more compact. Returns the accepted flips; `h` holds the final fields.
-fn sweeps_integer(
-    p: &Params,
-    g: &crate::model::sparse::Graph,
-    w: &[i8],
-    bound: usize,
-    s: &mut [i8],
-    h: &mut [f64],
-    rng: &mut Stream,
-) -> u64 {
+fn sweeps_integer(it: Integer<'_>, s: &mut [i8], h: &mut [f64], rng: &mut Stream) -> u64 {
     // |h_i| ≤ bound/2 for every i.
-    if bound / 2 <= i8::MAX as usize {
-        sweeps_typed::<i8>(p, g, w, bound, s, h, rng)
+    if it.bound / 2 <= i8::MAX as usize {
+        sweeps_typed::<i8>(it, s, h, rng)
     } else {
-        sweeps_typed::<i32>(p, g, w, bound, s, h, rng)
+        sweeps_typed::<i32>(it, s, h, rng)
     }
 }
 
@@ -209,10 +212,7 @@ fn sweeps_integer(
 const AHEAD: usize = 16;
 
 fn sweeps_typed<F: IntField>(
-    p: &Params,
-    g: &crate::model::sparse::Graph,
-    w: &[i8],
-    bound: usize,
+    it: Integer<'_>,
     s: &mut [i8],
     h: &mut [f64],
     rng: &mut Stream,
@@ -224,9 +224,9 @@ fn sweeps_typed<F: IntField>(
         *v = F::from_f64(x);
     }
     let accepted = if n > BLOCKED_ABOVE {
-        sweeps_blocked(p, g, w, bound, s, &mut hi, rng, BLOCK_SHIFT)
+        sweeps_blocked(it, s, &mut hi, rng, BLOCK_SHIFT)
     } else {
-        sweeps_direct(p, g, w, bound, s, &mut hi, rng)
+        sweeps_direct(it, s, &mut hi, rng)
     };
     for (x, &v) in h.iter_mut().zip(&hi) {
         *x = v.get() as f64;
@@ -236,14 +236,12 @@ fn sweeps_typed<F: IntField>(
 
 /// The sweeps with every field update applied at once (prefetched [`AHEAD`] spins ahead).
 fn sweeps_direct<F: IntField>(
-    p: &Params,
-    g: &crate::model::sparse::Graph,
-    w: &[i8],
-    bound: usize,
+    it: Integer<'_>,
     s: &mut [i8],
     hi: &mut [F],
     rng: &mut Stream,
 ) -> u64 {
+    let Integer { p, g, w, bound } = it;
     let (offsets, nbr) = g.csr();
     let n = s.len();
     let mut accepted = 0u64;
@@ -328,17 +326,14 @@ const BLOCK_SHIFT: u32 = 16;
 /// changes waiting for a block number at most its spins' degrees, the size of its slice of
 /// the neighbour array, which the buckets mirror. Random writes over the whole field array
 /// (a cache miss each at n = 10⁸) become appends to a few thousand bucket tails.
-#[allow(clippy::too_many_arguments)]
 fn sweeps_blocked<F: IntField>(
-    p: &Params,
-    g: &crate::model::sparse::Graph,
-    w: &[i8],
-    bound: usize,
+    it: Integer<'_>,
     s: &mut [i8],
     hi: &mut [F],
     rng: &mut Stream,
     shift: u32,
 ) -> u64 {
+    let Integer { p, g, w, bound } = it;
     debug_assert!(shift <= 16, "a block's spin index is kept in 16 bits");
     let (offsets, nbr) = g.csr();
     let n = s.len();
@@ -477,9 +472,10 @@ mod tests {
                 let mut s = start.to_vec();
                 let mut rng = stream(&[8; 32], Purpose::Algorithm, 0);
                 let mut hi: Vec<F> = h0.iter().map(|&x| F::from_f64(x)).collect();
+                let it = Integer { p, g, w, bound };
                 let a = match shift {
-                    None => sweeps_direct(p, g, w, bound, &mut s, &mut hi, &mut rng),
-                    Some(k) => sweeps_blocked(p, g, w, bound, &mut s, &mut hi, &mut rng, k),
+                    None => sweeps_direct(it, &mut s, &mut hi, &mut rng),
+                    Some(k) => sweeps_blocked(it, &mut s, &mut hi, &mut rng, k),
                 };
                 (s, hi.iter().map(|v| v.get()).collect(), a)
             }
