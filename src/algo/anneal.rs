@@ -92,7 +92,12 @@ impl Algorithm for Params {
         n as u128 * (1 + 8 + 4 + 1)
     }
     fn cost(&self, n: u64, flip: f64) -> f64 {
-        n as f64 * flip * (1.0 + 0.3 * self.sweeps as f64)
+        let quench = if self.quench {
+            super::DESCENT_SWEEPS * super::ATTEMPT
+        } else {
+            0.0
+        };
+        n as f64 * (flip + self.sweeps as f64 * (super::ATTEMPT + 0.3 * flip) + quench)
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)

@@ -107,7 +107,11 @@ impl Algorithm for Params {
         n as u128 * (1 + 8 + 4 + 1)
     }
     fn cost(&self, n: u64, flip: f64) -> f64 {
-        n as f64 * flip
+        let attempt = match self.order {
+            Order::Random => 3.0 * super::ATTEMPT,
+            Order::Sequential | Order::Greedy => super::ATTEMPT,
+        };
+        n as f64 * (flip + super::DESCENT_SWEEPS * attempt)
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)

@@ -112,7 +112,7 @@ impl Algorithm for Params {
         n as u128 * 9
     }
     fn cost(&self, n: u64, flip: f64) -> f64 {
-        n as f64 * flip * (1.0 + 0.5 * self.sweeps as f64)
+        n as f64 * (flip + self.sweeps as f64 * (super::ATTEMPT + 0.5 * flip))
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)

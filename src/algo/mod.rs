@@ -102,6 +102,19 @@ pub enum AlgoError {
 
 // ---------------------------------------------------------------- the registry
 
+/// Cost units of one Metropolis attempt besides its flip (a draw, a branch, the spin's field),
+/// for [`Algorithm::cost`]: annealing a 3-regular graph at n = 10⁸ took 8.8 ns per attempt
+/// here, flips included (1.8 units at `kiln slurm`'s 2·10⁸ units per second, of which the
+/// model's flips at 0.3 per attempt account for 0.9). Counting the attempt keeps the estimate
+/// an upper one on sparse graphs, where an attempt costs as much as a flip.
+pub const ATTEMPT: f64 = 4.0;
+
+/// Sweeps a descent to a 1-flip-stable state is charged for: the most measured on the SK
+/// example (24 at n = 400, 8–15 on average) and twice the 11–12 of a 3-regular graph at
+/// n = 10⁷. In random order each attempt is charged three times: the sweep's shuffle and a
+/// cache miss per attempt on a large instance (40 ns per attempt measured at n = 10⁷).
+pub const DESCENT_SWEEPS: f64 = 24.0;
+
 /// What every algorithm kind implements: its identity, its settings' canonical form, its costs,
 /// what it supports and how it runs. An implementation is the kind's resolved settings (its
 /// `Params`), so a value of it is one fully specified algorithm.

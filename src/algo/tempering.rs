@@ -127,7 +127,7 @@ impl Algorithm for Params {
         n as u128 * (9 * self.temperatures.max(2) as u128 + 10)
     }
     fn cost(&self, n: u64, flip: f64) -> f64 {
-        n as f64 * flip * 0.3 * (self.sweeps * self.temperatures) as f64
+        n as f64 * (super::ATTEMPT + 0.3 * flip) * (self.sweeps * self.temperatures) as f64
     }
     fn unsupported(&self, m: &ModelSpec) -> Option<&'static str> {
         super::spins_only(m)

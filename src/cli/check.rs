@@ -31,17 +31,22 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
         spec.algorithms.len()
     );
     // Time: the cost model `kiln slurm` sizes its tasks with (conservative units per second
-    // per job), over the cells still to run, spread over the cells run at once.
-    let cost: f64 = plan
+    // per job), over the cells still to run. The ε cells start once the instances' cells are
+    // done, and within each phase `parallel` jobs take cells as they free up, which finishes
+    // within total/p + (1 − 1/p)·largest (list scheduling).
+    let todo: Vec<_> = plan
         .distinct()
         .filter(|c| !cache.has_record(&c.key))
-        .map(|c| {
-            spec.algorithms[c.algo]
-                .algo
-                .cost(c.n, spec.models[c.model].flip_cost(c.n))
-        })
-        .sum();
-    let bound = cost / super::slurm::COST_PER_SECOND / parallel.max(1) as f64;
+        .collect();
+    let p = parallel.max(1) as f64;
+    let phase = |base: bool| {
+        let costs = todo.iter().filter(|c| c.is_base() == base);
+        let (total, largest) = costs
+            .map(|c| spec.cell_cost(c))
+            .fold((0.0, 0.0f64), |(t, l), x| (t + x, l.max(x)));
+        total / p + (1.0 - 1.0 / p) * largest
+    };
+    let bound = (phase(true) + phase(false)) / super::slurm::COST_PER_SECOND;
     if a.json {
         let v = serde_json::json!({
             "experiment": spec.name,
@@ -124,8 +129,9 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
             ))
         );
         s += &format!(
-            "time        at most about {} on {parallel} jobs (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
+            "time        at most about {} on {parallel} job{} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
             duration(bound),
+            if parallel == 1 { "" } else { "s" },
             super::slurm::COST_PER_SECOND
         );
         out(&s);

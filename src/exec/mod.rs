@@ -195,11 +195,7 @@ pub fn execute(
         .map(|k| by_key[k])
         .filter(|c| !c.is_base())
         .collect();
-    let cost = |c: &&Cell| {
-        spec.algorithms[c.algo]
-            .algo
-            .cost(c.n, spec.models[c.model].flip_cost(c.n))
-    };
+    let cost = |c: &&Cell| spec.cell_cost(c);
     phase_base.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
     phase_eps.sort_by(|a, b| cost(b).total_cmp(&cost(a)).then(a.key.cmp(&b.key)));
     let line = progress::Line {

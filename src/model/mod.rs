@@ -174,6 +174,11 @@ pub trait Family: std::fmt::Debug + Send + Sync + 'static {
     fn instance_bytes(&self, n: u64) -> u128;
     /// Relative cost of one spin flip (entries touched), for scheduling.
     fn flip_cost(&self, n: u64) -> f64;
+    /// Cost of sampling an instance (or its copy) of size n, in the units of
+    /// [`crate::algo::Algorithm::cost`]: by default one unit per entry a flip touches, n times.
+    fn sample_cost(&self, n: u64) -> f64 {
+        n as f64 * self.flip_cost(n)
+    }
     /// Samples the instance; `epsilon > 0` gives the copy correlated at 1 − ε.
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance;
     /// √d for the sparse families (`energy_reduced` = energy/√d), else None.
@@ -373,6 +378,11 @@ impl ModelSpec {
     /// Relative cost of one spin flip (entries touched), for scheduling.
     pub fn flip_cost(&self, n: u64) -> f64 {
         self.family.flip_cost(n)
+    }
+
+    /// Cost of sampling an instance of size n (see [`Family::sample_cost`]).
+    pub fn sample_cost(&self, n: u64) -> f64 {
+        self.family.sample_cost(n)
     }
 
     /// Samples the instance; `epsilon > 0` gives the copy correlated at 1 − ε (the field is

@@ -47,6 +47,11 @@ const MIRROR_AHEAD: usize = 64;
 /// Revision of the graph and lattice samplers. Bump when a seed's disorder changes.
 pub const REVISION: u32 = 1;
 
+/// Cost units (those of [`crate::algo::Algorithm::cost`], about 5 ns each) of sampling per
+/// stored neighbour: a 3-regular graph at n = 10⁸ (3·10⁸ neighbours) took 33–40 s on two
+/// threads here, some 25 units per neighbour; twice that keeps time estimates upper ones.
+pub const SAMPLE_COST: f64 = 50.0;
+
 /// An undirected graph with couplings, in CSR form.
 pub struct Graph {
     n: usize,

@@ -227,6 +227,14 @@ pub struct Spec {
 }
 
 impl Spec {
+    /// The estimated cost of computing a cell: its instance's sampling and its algorithm's run
+    /// (units of [`crate::algo::Algorithm::cost`]). Orders the work, sizes shards and Slurm
+    /// tasks, and gives `kiln check` its time.
+    pub fn cell_cost(&self, c: &plan::Cell) -> f64 {
+        let m = &self.models[c.model];
+        self.algorithms[c.algo].algo.cost(c.n, m.flip_cost(c.n)) + m.sample_cost(c.n)
+    }
+
     /// The error for a problem with size `n` (memory refusal), pointing at its line.
     pub fn size_error(&self, n: u64, message: String, hint: Option<String>) -> SpecError {
         let loc = Locator {

@@ -63,9 +63,7 @@ pub fn assign(spec: &Spec, plan: &Plan, count: u32) -> Assignment {
     // Group cost: the sum over its distinct cells.
     let mut groups: BTreeMap<Key, f64> = BTreeMap::new();
     for c in plan.distinct() {
-        *groups.entry(c.base).or_default() += spec.algorithms[c.algo]
-            .algo
-            .cost(c.n, spec.models[c.model].flip_cost(c.n));
+        *groups.entry(c.base).or_default() += spec.cell_cost(c);
     }
     let mut order: Vec<(Key, f64)> = groups.into_iter().collect();
     order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
@@ -142,20 +140,16 @@ sweeps = 50
         let spec = parse(S, "t").unwrap();
         let plan = expand(&spec);
         let n = 4;
-        let cost = |cells: &[Cell]| -> f64 {
-            cells
-                .iter()
-                .map(|c| {
-                    spec.algorithms[c.algo]
-                        .algo
-                        .cost(c.n, spec.models[c.model].flip_cost(c.n))
-                })
-                .sum()
-        };
+        let cost = |cells: &[Cell]| -> f64 { cells.iter().map(|c| spec.cell_cost(c)).sum() };
         let loads: Vec<f64> = (0..n)
             .map(|i| cost(&cells_of(&spec, &plan, Shard { index: i, count: n })))
             .collect();
-        let biggest_group = 3.0 * spec.algorithms[1].algo.cost(1024, 1024.0);
+        // A group is an instance's cell and its two ε cells.
+        let biggest_group = 3.0
+            * plan
+                .distinct()
+                .map(|c| spec.cell_cost(c))
+                .fold(0.0, f64::max);
         let (lo, hi) = loads
             .iter()
             .fold((f64::MAX, 0.0f64), |(l, h), &x| (l.min(x), h.max(x)));

@@ -83,6 +83,45 @@ fn experiments_share_the_cache() {
     assert!(w.path().join("results/other/cells.parquet").is_file());
 }
 
+/// `kiln check`'s time bound follows how cells run: an instance's ε cell starts only after
+/// the instance's own cell, so a plan of one of each takes as long on two jobs as on one, and
+/// the bound says so (a bound that divided the total by the jobs would halve). It counts the
+/// sampling of each instance: a cheap algorithm on a large sparse graph still costs time.
+#[test]
+fn check_time_follows_the_phases() {
+    let w = Work::new();
+    let spec = r#"
+[experiment]
+name = "phases"
+[model]
+family = "regular"
+degree = 3
+[sweep]
+sizes = [200000]
+seeds = 1
+epsilons = [0.1]
+[[algorithm]]
+kind = "descent"
+"#;
+    let s = w.spec("s.toml", spec);
+    let bound = |jobs: &str| {
+        let o = w.kiln(&["check", s.to_str().unwrap(), "--json", "--jobs", jobs]);
+        assert!(o.status.success(), "{}", crate::util::stderr(&o));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        v["time"]["upper_bound_seconds"].as_f64().unwrap()
+    };
+    let (one, two) = (bound("1"), bound("2"));
+    assert!(one > 0.0);
+    assert!(
+        (one - two).abs() <= 1e-12 * one,
+        "1 job {one} s, 2 jobs {two} s"
+    );
+    // Sampling alone is 150n units per cell (50 per neighbour, 3n neighbours), and the bound
+    // counts both cells' samplings: at least 2·150n / 2e8 s (the old model, without sampling,
+    // gave 0.006 s here).
+    assert!(one >= 2.0 * 150.0 * 200000.0 / 2e8, "{one}");
+}
+
 /// `--cache` and `--results` move the folders.
 #[test]
 fn folders_can_be_moved() {

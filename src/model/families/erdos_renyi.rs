@@ -77,6 +77,10 @@ impl Family for ErdosRenyi {
     fn flip_cost(&self, _n: u64) -> f64 {
         self.degree.max(1.0)
     }
+    /// [`crate::model::sparse::SAMPLE_COST`] per stored neighbour.
+    fn sample_cost(&self, n: u64) -> f64 {
+        sparse::SAMPLE_COST * n as f64 * self.flip_cost(n)
+    }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
         Instance::Graph(sparse::erdos_renyi(
             n,
