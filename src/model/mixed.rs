@@ -7,7 +7,7 @@
 //! convention of [`super::tensor`]), so E[H(σ)H(σ')] = n·ξ(R) up to a relative O(p²/n).
 
 use super::Couplings;
-use super::sk::{self, Dense};
+use super::sk::{self, Dense, Storage};
 use super::tensor::{Tensor, Val};
 use crate::rng::Id;
 use crate::theory::Mixture;
@@ -22,6 +22,18 @@ pub struct Mixed {
 
 impl Mixed {
     pub fn sample(n: usize, xi: &Mixture, c: Couplings, instance: &Id, epsilon: f64) -> Mixed {
+        Mixed::sample_as(Storage::F64, n, xi, c, instance, epsilon)
+    }
+
+    /// Samples with the p = 2 term held under `storage` (the tensors are always f64).
+    pub fn sample_as(
+        storage: Storage,
+        n: usize,
+        xi: &Mixture,
+        c: Couplings,
+        instance: &Id,
+        epsilon: f64,
+    ) -> Mixed {
         let mut dense = None;
         let mut tensors = Vec::new();
         for &(p, c2) in &xi.terms {
@@ -29,7 +41,7 @@ impl Mixed {
                 continue;
             }
             if p == 2 {
-                dense = Some(sk::sample_weighted(n, c, c2, instance, epsilon));
+                dense = Some(sk::sample_weighted_as(storage, n, c, c2, instance, epsilon));
             } else {
                 tensors.push(Tensor::sample(n, p as usize, c2, c, instance, epsilon));
             }

@@ -309,12 +309,12 @@ impl ModelSpec {
 
     /// The mixed p-spin model on the cube.
     pub fn cube(xi: Mixture, couplings: Couplings) -> ModelSpec {
-        ModelSpec::new(families::cube::Cube { xi }, couplings)
+        ModelSpec::new(families::cube::Cube::new(xi), couplings)
     }
 
     /// The mixed p-spin model on the sphere.
     pub fn sphere(xi: Mixture, couplings: Couplings) -> ModelSpec {
-        ModelSpec::new(families::sphere::Sphere { xi }, couplings)
+        ModelSpec::new(families::sphere::Sphere::new(xi), couplings)
     }
 
     /// The family's name.

@@ -109,8 +109,22 @@ pub fn sample_as(
     instance: &Id,
     epsilon: f64,
 ) -> Dense {
+    sample_weighted_as(storage, n, couplings, 0.5, instance, epsilon)
+}
+
+/// The p = 2 term of a mixture with weight c2 = c_2² under `storage`: [`sample_weighted`]'s
+/// matrix held in full (f64), rounded once into one f32 triangle, or recomputed on demand by
+/// the implicit generator with the same scale sqrt(2·c2)/√n (c2 = 1/2 is SK's bit for bit).
+pub fn sample_weighted_as(
+    storage: Storage,
+    n: usize,
+    couplings: Couplings,
+    c2: f64,
+    instance: &Id,
+    epsilon: f64,
+) -> Dense {
     match storage {
-        Storage::F64 => sample(n, couplings, instance, epsilon),
+        Storage::F64 => sample_weighted(n, couplings, c2, instance, epsilon),
         Storage::F32 => {
             let mut t = vec![0.0f32; n * n.saturating_sub(1) / 2];
             crate::kernels::huge_pages(&mut t);
@@ -123,7 +137,7 @@ pub fn sample_as(
             }
             parts.into_par_iter().enumerate().for_each(|(i, out)| {
                 let mut row = vec![0.0f64; n - 1 - i];
-                upper_row(&mut row, i, couplings, 0.5, instance, epsilon, n);
+                upper_row(&mut row, i, couplings, c2, instance, epsilon, n);
                 for (o, v) in out.iter_mut().zip(&row) {
                     *o = *v as f32;
                 }
@@ -139,7 +153,7 @@ pub fn sample_as(
                 couplings,
                 instance,
                 epsilon,
-                1.0 / (n as f64).sqrt(),
+                (2.0 * c2).sqrt() / (n as f64).sqrt(),
             )),
         },
     }

@@ -168,6 +168,11 @@ fn model(family: &str, couplings: Couplings) -> ModelSpec {
         "sk-f32" => ("sk", "storage = \"f32\""),
         "cube-pure3" => ("cube", "xi = { 3 = 0.5 }"),
         "sk-implicit" => ("sk", "storage = \"implicit\""),
+        "cube-f32" => ("cube", "xi = { 2 = 0.5, 3 = 0.25 }\nstorage = \"f32\""),
+        "sphere-implicit" => (
+            "sphere",
+            "xi = { 2 = 0.5, 3 = 0.25 }\nstorage = \"implicit\"",
+        ),
         f => (f, params_of(f)),
     };
     kiln::spec::model_of(&format!(
@@ -292,6 +297,25 @@ type CopyPin = (
 );
 
 const COPY_PINS: &[CopyPin] = &[
+    // The mixtures' p = 2 term in the compact storages (the p = 3 tensor stays f64).
+    (
+        "cube-f32",
+        "gaussian",
+        1,
+        24,
+        "0.2668274040044568",
+        "0.05134517747110526",
+        "3388d7d24bc02935",
+    ),
+    (
+        "sphere-implicit",
+        "gaussian",
+        1,
+        24,
+        "0.05829321920551885",
+        "-0.09254281316854528",
+        "e7a151594d7e4bfe",
+    ),
     // SK's compact storages: the f32 triangle (the f64 instance rounded) and the implicit
     // generator (another instance of the same law).
     (

@@ -160,3 +160,110 @@ fn memory_refusal_counts_the_storage() {
         }
     }
 }
+
+/// The mixture families hold their p = 2 term in the same three storages: on the cube and on
+/// the sphere every kind that runs there runs on each storage, `--jobs` does not matter, the
+/// storage is in the keys (f64 written out keeps the bare spec's keys), and a cube with
+/// ξ = q²/2 in f32 or implicit storage is SK's instance in that storage, bit for bit (the
+/// same sampler with c₂² = 1/2).
+#[test]
+fn mixtures_hold_their_p2_term_in_each_storage() {
+    let w = Work::new();
+    let families = [
+        (
+            "cube",
+            "{ 2 = 0.3, 3 = 0.2 }",
+            "[[algorithm]]\nkind = \"descent\"\n[[algorithm]]\nkind = \"anneal\"\nsweeps = 30\n[[algorithm]]\nkind = \"amp\"\n[[algorithm]]\nkind = \"gradient\"\n",
+        ),
+        (
+            "sphere",
+            "{ 2 = 0.5, 4 = 0.1 }",
+            "[[algorithm]]\nkind = \"gradient\"\n[[algorithm]]\nkind = \"langevin\"\n[[algorithm]]\nkind = \"hessian\"\n",
+        ),
+    ];
+    for (family, xi, kinds) in families {
+        let mut keys = Vec::new();
+        for storage in [None, Some("f64"), Some("f32"), Some("implicit")] {
+            let line = storage.map_or(String::new(), |s| format!("storage = \"{s}\"\n"));
+            let text = format!(
+                "[experiment]\nname = \"held\"\n[model]\nfamily = \"{family}\"\nxi = {xi}\n{line}[sweep]\nsizes = [12, 16]\nseeds = 2\nepsilons = [0.0, 0.2]\n{kinds}"
+            );
+            let tag = format!("{family}-{}", storage.unwrap_or("bare"));
+            let s = w.spec(&format!("{tag}.toml"), &text);
+            let mut tables = Vec::new();
+            for jobs in ["1", "2"] {
+                let r = format!("results-{tag}-{jobs}");
+                w.run_json(
+                    &s,
+                    &[
+                        "--jobs",
+                        jobs,
+                        "--cache",
+                        &format!("cache-{tag}-{jobs}"),
+                        "--results",
+                        &r,
+                    ],
+                );
+                tables.push(table(&w, &r));
+            }
+            assert_eq!(
+                numbers(&tables[0]),
+                numbers(&tables[1]),
+                "{tag}: --jobs 1 vs 2"
+            );
+            let mut k = strings(&kiln::store::table::read(&tables[0]).unwrap(), "cell_key");
+            k.sort();
+            keys.push(k);
+        }
+        assert_eq!(
+            keys[0], keys[1],
+            "{family}: f64 written out changed the keys"
+        );
+        for a in 1..4 {
+            for b in a + 1..4 {
+                assert!(
+                    keys[a].iter().all(|k| !keys[b].contains(k)),
+                    "{family} {a} {b}"
+                );
+            }
+        }
+    }
+    // ξ = q²/2 on the cube is SK, storage included.
+    for storage in ["f32", "implicit"] {
+        let energies = |family: &str, xi: &str| {
+            let text = format!(
+                "[experiment]\nname = \"held\"\n[model]\nfamily = \"{family}\"\n{xi}storage = \"{storage}\"\n[sweep]\nsizes = [30]\nseeds = 3\nepsilons = [0.0, 0.3]\n[[algorithm]]\nkind = \"descent\"\n"
+            );
+            let tag = format!("same-{family}-{storage}");
+            let s = w.spec(&format!("{tag}.toml"), &text);
+            let r = format!("results-{tag}");
+            w.run_json(&s, &["--cache", &format!("cache-{tag}"), "--results", &r]);
+            let df = kiln::store::table::read(&table(&w, &r)).unwrap();
+            (
+                crate::util::floats(&df, "energy"),
+                crate::util::floats(&df, "energy_perturbed"),
+            )
+        };
+        assert_eq!(
+            energies("cube", "xi = { 2 = 0.5 }\n"),
+            energies("sk", ""),
+            "{storage}"
+        );
+    }
+}
+
+/// A compact storage holds the p = 2 term, so a mixture without one refuses it, naming the
+/// key and what to do.
+#[test]
+fn storage_without_a_p2_term_is_refused() {
+    let w = Work::new();
+    let s = w.spec(
+        "pure.toml",
+        "[experiment]\nname = \"held\"\n[model]\nfamily = \"cube\"\nxi = { 3 = 0.5 }\nstorage = \"f32\"\n[sweep]\nsizes = [12]\nseeds = 1\n[[algorithm]]\nkind = \"descent\"\n",
+    );
+    let o = w.kiln(&["check", s.to_str().unwrap()]);
+    assert!(!o.status.success());
+    let e = stderr(&o);
+    assert!(e.contains("storage") && e.contains("xi has none"), "{e}");
+    assert!(e.contains("add a p = 2 term"), "{e}");
+}

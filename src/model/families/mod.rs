@@ -13,6 +13,7 @@ pub mod sphere;
 
 use crate::algo::Key;
 use crate::cell::Canon;
+use crate::model::sk::Storage;
 use crate::model::{Couplings, Instance, mixed::Mixed, sk as dense, tensor};
 use crate::rng::Id;
 use crate::spec::{Settings, SpecError};
@@ -87,6 +88,33 @@ pub(crate) fn read_xi(s: &Settings<'_>, family: &str) -> Result<Mixture, SpecErr
     Ok(Mixture { terms })
 }
 
+/// The `storage` key of the mixture families.
+pub(crate) const MIXTURE_STORAGE: Key = Key {
+    name: "storage",
+    ty: "\"f64\", \"f32\" or \"implicit\"",
+    default: "\"f64\"",
+    doc: "how the p = 2 term's couplings are held, as for `sk`: the full f64 matrix; one f32 triangle (the f64 term rounded once); or none, recomputed from the counter-based generator (a different instance of the same law). Only with a p = 2 term in xi; the tensors of p ≥ 3 stay f64. Enters the cell key unless f64",
+};
+
+/// Reads `storage` for a mixture: the p = 2 term's storage, refused without a p = 2 term.
+pub(crate) fn read_storage(s: &Settings<'_>, xi: &Mixture) -> Result<Storage, SpecError> {
+    let Some(i) = s.choice("storage", "storage", &Storage::NAMES)? else {
+        return Ok(Storage::F64);
+    };
+    let storage = Storage::from_index(i);
+    if storage != Storage::F64 && !xi.terms.iter().any(|t| t.0 == 2) {
+        return Err(s.fail(
+            "storage",
+            format!(
+                "storage = \"{}\" holds the p = 2 term, and xi has none",
+                storage.name()
+            ),
+            "remove `storage`, or add a p = 2 term to xi (e.g. 2 = 0.5); the p ≥ 3 tensors are always f64",
+        ));
+    }
+    Ok(storage)
+}
+
 /// Revision of the mixture sampler (cube and sphere share their couplings).
 pub const MIXED_REVISION: u32 = 1;
 
@@ -110,6 +138,18 @@ pub(crate) fn mixed_disorder(xi: &Mixture, couplings: Couplings) -> Canon {
 #[derive(Clone, Debug, PartialEq)]
 pub struct MixtureFamily<const SPHERE: bool> {
     pub xi: Mixture,
+    /// How the p = 2 term is held (f64 unless the spec says otherwise).
+    pub storage: Storage,
+}
+
+impl<const SPHERE: bool> MixtureFamily<SPHERE> {
+    /// The mixture with its p = 2 term (if any) in f64.
+    pub fn new(xi: Mixture) -> Self {
+        MixtureFamily {
+            xi,
+            storage: Storage::F64,
+        }
+    }
 }
 
 impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
@@ -127,8 +167,14 @@ impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
     fn revision(&self) -> u32 {
         MIXED_REVISION
     }
+    /// The storage only when it is not the default, so f64 keys are those of every earlier
+    /// release.
     fn params_canon(&self, c: Canon) -> Canon {
-        c.with("xi", self.xi.canon())
+        c.with("xi", self.xi.canon()).with_if(
+            self.storage != Storage::F64,
+            "storage",
+            self.storage.name(),
+        )
     }
     fn disorder_canon(&self, _sampler: Canon, couplings: Couplings) -> Canon {
         mixed_disorder(&self.xi, couplings)
@@ -152,23 +198,44 @@ impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
         let mut b: u128 = 64 * n as u128;
         for &(p, _) in &self.xi.terms {
             b = b.saturating_add(if p == 2 {
-                dense::instance_bytes(n)
+                dense::instance_bytes_as(self.storage, n)
             } else {
                 tensor::tuples(n, p).saturating_mul(8)
             });
         }
         b
     }
+    /// Entries a flip touches; the p = 2 term's as SK's under the same storage.
     fn flip_cost(&self, n: u64) -> f64 {
         self.xi
             .terms
             .iter()
-            .map(|&(p, _)| tensor::tuples(n.saturating_sub(1), p - 1) as f64)
+            .map(|&(p, _)| match p {
+                2 => sk::Sk {
+                    storage: self.storage,
+                }
+                .flip_cost(n),
+                _ => tensor::tuples(n.saturating_sub(1), p - 1) as f64,
+            })
             .sum::<f64>()
             .max(1.0)
     }
+    /// One draw per coupling (none for an implicit p = 2 term).
+    fn sample_cost(&self, n: u64) -> f64 {
+        self.xi
+            .terms
+            .iter()
+            .map(|&(p, _)| match p {
+                2 => sk::Sk {
+                    storage: self.storage,
+                }
+                .sample_cost(n),
+                _ => tensor::tuples(n, p) as f64,
+            })
+            .sum()
+    }
     fn sample(&self, n: usize, couplings: Couplings, instance: &Id, epsilon: f64) -> Instance {
-        let m = Mixed::sample(n, &self.xi, couplings, instance, epsilon);
+        let m = Mixed::sample_as(self.storage, n, &self.xi, couplings, instance, epsilon);
         if SPHERE {
             Instance::Sphere(m)
         } else {
