@@ -84,6 +84,8 @@ fn replay_passes_on_every_committed_example() {
         "perceptron-binary-capacity",
         "sk-large-n",
         "cube-pure3-iamp",
+        "sk-iamp-steps",
+        "cube-pure3-iamp-half-step",
     ] {
         let dir = root.join(e);
         // Committed numbers come from a committed tree: the manifest names a clean revision.
