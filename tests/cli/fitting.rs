@@ -161,6 +161,38 @@ fn spec_fit_section_chooses() {
     assert!(stderr(&o).contains("key `fit.omega`"), "{}", stderr(&o));
 }
 
+/// A fit of one algorithm in a committed results folder, from a copy of its table: (e∞, the
+/// larger of the fit's and the bootstrap's standard error), after checking the number of sizes.
+fn committed_fit(w: &Work, folder: &str, label: &str, args: &[&str], sizes: u64) -> (f64, f64) {
+    let dir = w.path().join("results").join(folder);
+    if !dir.exists() {
+        let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("results")
+            .join(folder);
+        std::fs::create_dir_all(&dir).unwrap();
+        for f in ["cells.parquet", "manifest.toml"] {
+            std::fs::copy(src.join(f), dir.join(f)).unwrap();
+        }
+    }
+    let mut a = vec!["fit", dir.to_str().unwrap(), "--bootstrap", "300", "--json"];
+    a.extend_from_slice(args);
+    let o = w.kiln(&a);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let f = v["fits"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|f| f["algorithm"] == label)
+        .unwrap_or_else(|| panic!("{label}: {v}"));
+    assert_eq!(f["sizes"], sizes, "{f}");
+    let se = f["e_inf_se"]
+        .as_f64()
+        .unwrap()
+        .max(f["e_inf_se_bootstrap"].as_f64().unwrap());
+    (f["e_inf"].as_f64().unwrap(), se)
+}
+
 /// Incremental AMP on the pure 3-spin cube, the committed study `results/cube-pure3-iamp`
 /// (n = 200 … 1400, 32 instances, δ = 0.01; the replay test recomputes a sample of it from its
 /// spec), fitted with the correction exponent free. No algorithm that is Lipschitz in the
@@ -175,31 +207,7 @@ fn spec_fit_section_chooses() {
 #[test]
 fn iamp_on_the_pure_3_spin_cube_stays_below_the_threshold() {
     let w = Work::new();
-    let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("results/cube-pure3-iamp");
-    let dir = w.path().join("results/cube-pure3-iamp");
-    std::fs::create_dir_all(&dir).unwrap();
-    for f in ["cells.parquet", "manifest.toml"] {
-        std::fs::copy(src.join(f), dir.join(f)).unwrap();
-    }
-    let o = w.kiln(&[
-        "fit",
-        dir.to_str().unwrap(),
-        "--omega",
-        "fit",
-        "--bootstrap",
-        "300",
-        "--json",
-    ]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-    let fits = v["fits"].as_array().unwrap();
-    let iamp = fits.iter().find(|f| f["algorithm"] == "iamp").unwrap();
-    assert_eq!(iamp["sizes"], 7, "{iamp}");
-    let e = iamp["e_inf"].as_f64().unwrap();
-    let se = iamp["e_inf_se"]
-        .as_f64()
-        .unwrap()
-        .max(iamp["e_inf_se_bootstrap"].as_f64().unwrap());
+    let (e, se) = committed_fit(&w, "cube-pure3-iamp", "iamp", &["--omega", "fit"], 7);
     eprintln!("iamp e∞ = {e} ± {se}; ALG {ALG_PURE3}, Parisi {PARISI_PURE3}");
     assert!(e <= ALG_PURE3 + 2.0 * se, "e∞ = {e} ± {se} above ALG");
     assert!(e < PARISI_PURE3 - 4.0 * se, "e∞ = {e} ± {se}");
@@ -217,38 +225,9 @@ fn iamp_on_the_pure_3_spin_cube_stays_below_the_threshold() {
 #[test]
 fn iamp_on_sk_approaches_but_does_not_show_the_threshold() {
     let w = Work::new();
-    let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("results/sk-iamp-steps");
-    let dir = w.path().join("results/sk-iamp-steps");
-    std::fs::create_dir_all(&dir).unwrap();
-    for f in ["cells.parquet", "manifest.toml"] {
-        std::fs::copy(src.join(f), dir.join(f)).unwrap();
-    }
     let fit = |omega: &str| {
-        let o = w.kiln(&[
-            "fit",
-            dir.to_str().unwrap(),
-            "--omega",
-            omega,
-            "--bootstrap",
-            "300",
-            "--json",
-        ]);
-        assert!(o.status.success(), "{}", stderr(&o));
-        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-        ["iamp-0.02", "iamp-0.01", "iamp-0.005", "iamp-0.0025"].map(|label| {
-            let f = v["fits"]
-                .as_array()
-                .unwrap()
-                .iter()
-                .find(|f| f["algorithm"] == label)
-                .unwrap_or_else(|| panic!("{label}: {v}"));
-            assert_eq!(f["sizes"], 6, "{f}");
-            let se = f["e_inf_se"]
-                .as_f64()
-                .unwrap()
-                .max(f["e_inf_se_bootstrap"].as_f64().unwrap());
-            (f["e_inf"].as_f64().unwrap(), se)
-        })
+        ["iamp-0.02", "iamp-0.01", "iamp-0.005", "iamp-0.0025"]
+            .map(|label| committed_fit(&w, "sk-iamp-steps", label, &["--omega", omega], 6))
     };
     for (e, se) in fit("fit") {
         assert!(e <= PARISI + 2.0 * se, "ω fitted: e∞ = {e} ± {se}");
@@ -273,46 +252,10 @@ fn iamp_on_sk_approaches_but_does_not_show_the_threshold() {
 #[test]
 fn halving_the_step_does_not_move_the_pure_3_spin_extrapolation() {
     let w = Work::new();
-    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("results");
-    for e in ["cube-pure3-iamp", "cube-pure3-iamp-half-step"] {
-        let dir = w.path().join("results").join(e);
-        std::fs::create_dir_all(&dir).unwrap();
-        for f in ["cells.parquet", "manifest.toml"] {
-            std::fs::copy(root.join(e).join(f), dir.join(f)).unwrap();
-        }
-    }
-    let fit = |e: &str, label: &str, omega: &str| {
-        let dir = w.path().join("results").join(e);
-        let o = w.kiln(&[
-            "fit",
-            dir.to_str().unwrap(),
-            "--omega",
-            omega,
-            "--max-n",
-            "1000",
-            "--bootstrap",
-            "300",
-            "--json",
-        ]);
-        assert!(o.status.success(), "{}", stderr(&o));
-        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-        let f = v["fits"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|f| f["algorithm"] == label)
-            .unwrap_or_else(|| panic!("{label}: {v}"))
-            .clone();
-        assert_eq!(f["sizes"], 6, "{f}");
-        let se = f["e_inf_se"]
-            .as_f64()
-            .unwrap()
-            .max(f["e_inf_se_bootstrap"].as_f64().unwrap());
-        (f["e_inf"].as_f64().unwrap(), se)
-    };
     for omega in ["0.6666666666666666", "0.5"] {
-        let (a, sa) = fit("cube-pure3-iamp", "iamp", omega);
-        let (b, sb) = fit("cube-pure3-iamp-half-step", "iamp-0.005", omega);
+        let args = ["--omega", omega, "--max-n", "1000"];
+        let (a, sa) = committed_fit(&w, "cube-pure3-iamp", "iamp", &args, 6);
+        let (b, sb) = committed_fit(&w, "cube-pure3-iamp-half-step", "iamp-0.005", &args, 6);
         eprintln!("ω = {omega}: δ = 0.01 {a} ± {sa}, δ = 0.005 {b} ± {sb}");
         assert!(
             (a - b).abs() <= 2.0 * (sa * sa + sb * sb).sqrt(),

@@ -150,6 +150,13 @@ impl<const SPHERE: bool> MixtureFamily<SPHERE> {
             storage: Storage::F64,
         }
     }
+
+    /// The p = 2 term as the `sk` family holds it (its costs are SK's under the same storage).
+    fn quadratic_term(&self) -> sk::Sk {
+        sk::Sk {
+            storage: self.storage,
+        }
+    }
 }
 
 impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
@@ -211,10 +218,7 @@ impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
             .terms
             .iter()
             .map(|&(p, _)| match p {
-                2 => sk::Sk {
-                    storage: self.storage,
-                }
-                .flip_cost(n),
+                2 => self.quadratic_term().flip_cost(n),
                 _ => tensor::tuples(n.saturating_sub(1), p - 1) as f64,
             })
             .sum::<f64>()
@@ -226,10 +230,7 @@ impl<const SPHERE: bool> crate::model::Family for MixtureFamily<SPHERE> {
             .terms
             .iter()
             .map(|&(p, _)| match p {
-                2 => sk::Sk {
-                    storage: self.storage,
-                }
-                .sample_cost(n),
+                2 => self.quadratic_term().sample_cost(n),
                 _ => tensor::tuples(n, p) as f64,
             })
             .sum()
