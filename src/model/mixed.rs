@@ -21,10 +21,6 @@ pub struct Mixed {
 }
 
 impl Mixed {
-    pub fn sample(n: usize, xi: &Mixture, c: Couplings, instance: &Id, epsilon: f64) -> Mixed {
-        Mixed::sample_as(Storage::F64, n, xi, c, instance, epsilon)
-    }
-
     /// Samples with the p = 2 term held under `storage` (the tensors are always f64).
     pub fn sample_as(
         storage: Storage,

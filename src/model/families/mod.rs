@@ -96,7 +96,8 @@ pub(crate) const MIXTURE_STORAGE: Key = Key {
     doc: "how the p = 2 term's couplings are held, as for `sk`: the full f64 matrix; one f32 triangle (the f64 term rounded once); or none, recomputed from the counter-based generator (a different instance of the same law). Only with a p = 2 term in xi; the tensors of p ≥ 3 stay f64. Enters the cell key unless f64",
 };
 
-/// Reads `storage` for a mixture: the p = 2 term's storage, refused without a p = 2 term.
+/// Reads `storage`, how the p = 2 term of ξ is held (for `sk` the whole model), refused when ξ
+/// has no p = 2 term.
 pub(crate) fn read_storage(s: &Settings<'_>, xi: &Mixture) -> Result<Storage, SpecError> {
     let Some(i) = s.choice("storage", "storage", &Storage::NAMES)? else {
         return Ok(Storage::F64);

@@ -29,11 +29,9 @@ const STORAGE: Key = Key {
 };
 
 fn parse(s: &Settings<'_>) -> Result<Arc<dyn Family>, SpecError> {
-    let storage = s
-        .choice("storage", "storage", &Storage::NAMES)?
-        .map(Storage::from_index)
-        .unwrap_or_default();
-    Ok(Arc::new(Sk { storage }))
+    Ok(Arc::new(Sk {
+        storage: super::read_storage(s, &XI)?,
+    }))
 }
 
 /// SK's one parameter: how its couplings are held.
