@@ -376,8 +376,9 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         crate::theory::cached::algorithmic(&cache, &xi)
     })?;
     let alg_secs = alg_t.elapsed().as_secs_f64();
-    let alg_diag =
-        crate::theory::full::diagnostic(&xi, &crate::theory::full::FullSettings::default(), &calg);
+    let alg_settings = crate::theory::cached::alg_settings(&xi);
+    let alg_diag = crate::theory::full::diagnostic(&xi, &alg_settings, &calg);
+    let alg_zoom = alg_settings.zoom;
     // Every line is an upper bound on the Parisi value (the infimum of the functional); the
     // best kiln has is the least of them, and it names the solution that attains it.
     let best = crate::theory::cached::least(
@@ -468,7 +469,8 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
                 "full_rsb": {"value": full.value, "intervals": full.m.len(), "q": full.q, "m": full.m, "seconds": full_secs},
                 "full_rsb_refined": refined.iter().map(|(fs, r, secs)| serde_json::json!({"value": r.value, "grid": fs.grid, "intervals": r.m.len(), "q": r.q, "m": r.m, "seconds": secs})).collect::<Vec<_>>(),
                 "algorithmic": {"value": calg.value, "q": calg.q, "m": calg.m, "starts": alg_starts,
-                    "structure": crate::theory::full::describe_runs(&calg), "diagnostic": alg_diag, "seconds": alg_secs},
+                    "structure": crate::theory::full::describe_runs(&calg), "diagnostic": alg_diag, "seconds": alg_secs,
+                    "near_zero_zoom": (alg_zoom > 1).then_some(alg_zoom)},
                 "best": {"value": best.0, "solution": best.1},
             },
             "order_parameters": csv_path.display().to_string(),
@@ -561,13 +563,21 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
             crate::theory::full::describe_runs(&calg)
         );
         o += &format!(
-            "                           {:.2e} below the full-RSB value at the same settings; ξ''·E[(∂ₓₓΦ)²] in [{dlo:.3}, {dhi:.3}] (1 where full-RSB type); starts reached {}\n",
+            "                           {:.2e} below the full-RSB value at the same settings; ξ''·E[(∂ₓₓΦ)²] in [{dlo:.3}, {dhi:.3}] (1 where full-RSB type); starts reached {}{}\n",
             full.value - calg.value,
             alg_starts
                 .iter()
                 .map(|v| format!("{v:.7}"))
                 .collect::<Vec<_>>()
-                .join(", ")
+                .join(", "),
+            if alg_zoom > 1 {
+                format!(
+                    ", then the boundary layer of ξ''(0) = 0 on a {alg_zoom}× finer x-lattice (first interval q < {:.2e}, γ {:.0} there)",
+                    calg.q[1], calg.m[0]
+                )
+            } else {
+                String::new()
+            }
         );
         if !temps.is_empty() {
             o += "\ncube, positive temperature: free energy lim (1/n) E log Σ e^{βH} (Parisi, x on 16 q-intervals\nrefined below q_max) and the replica-symmetric bound; Gibbs mean energy per spin E = dP/dβ;\nlargest overlap q_max of the Parisi order parameter\n";

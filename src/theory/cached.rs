@@ -39,6 +39,7 @@ fn settings_key(xi: &Mixture, s: &full::FullSettings, what: &str) -> String {
             .with("power", s.power)
             .with("max_iterations", s.max_iterations)
             .with("revision", full::REVISION)
+            .with_if(s.zoom != 1, "zoom", s.zoom)
             .hash(what),
     )
 }
@@ -68,9 +69,11 @@ pub fn full_rsb(cache: &Cache, xi: &Mixture) -> Result<full::FullRsb, StoreError
 
 /// The algorithmic threshold on the cube ([`full::algorithmic`], default settings) with the
 /// value each start reached, from the cache or solved and stored.
+/// Where ξ''(0) = 0 the three starts' best is refined near q = 0 on the zoomed lattice
+/// ([`full::algorithmic_near_zero`]); the key names that lattice ([`alg_settings`]).
 pub fn algorithmic(cache: &Cache, xi: &Mixture) -> Result<(full::FullRsb, Vec<f64>), StoreError> {
     let s = full::FullSettings::default();
-    let hex_key = settings_key(xi, &s, "theory-cube-alg");
+    let hex_key = settings_key(xi, &alg_settings(xi), "theory-cube-alg");
     if let Lookup::Hit(v) = crate::store::theory::read(cache, &hex_key)?
         && let (Some(sol), Some(starts)) = (read_full(&v), floats(&v, "starts"))
     {
@@ -78,10 +81,22 @@ pub fn algorithmic(cache: &Cache, xi: &Mixture) -> Result<(full::FullRsb, Vec<f6
     }
     let parisi = full_rsb(cache, xi)?;
     let (sol, starts) = full::algorithmic(xi, &s, &parisi);
+    let sol = full::algorithmic_near_zero(xi, &s, &sol);
     let mut v = full_json(&hex_key, &sol);
     v["starts"] = serde_json::json!(starts);
     crate::store::theory::write(cache, &hex_key, &v)?;
     Ok((sol, starts))
+}
+
+/// The settings the cube's algorithmic threshold is evaluated with: the defaults, zoomed near
+/// q = 0 where ξ''(0) = 0 ([`full::near_zero_settings`]; the zoom does nothing elsewhere).
+pub fn alg_settings(xi: &Mixture) -> full::FullSettings {
+    let s = full::FullSettings::default();
+    if xi.d1(0.0) == 0.0 && xi.d2(0.0) == 0.0 {
+        full::near_zero_settings(&s)
+    } else {
+        s
+    }
 }
 
 /// Re-solves on the grid below q_max in [`at_temperature`].
@@ -233,7 +248,7 @@ pub fn stored(cache: &Cache, xi: &Mixture) -> Result<Stored, StoreError> {
             _ => None,
         })
     };
-    let alg = read(&settings_key(xi, &s, "theory-cube-alg"))?.map(|a| a.value);
+    let alg = read(&settings_key(xi, &alg_settings(xi), "theory-cube-alg"))?.map(|a| a.value);
     let Some(full) = read(&settings_key(xi, &s, "theory-full-rsb"))? else {
         return Ok((None, alg));
     };

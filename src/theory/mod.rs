@@ -66,6 +66,15 @@ impl Mixture {
             .map(|&(p, c)| c * (p * (p - 1)) as f64 * q.powi(p as i32 - 2))
             .sum()
     }
+
+    /// ξ'''(q).
+    pub fn d3(&self, q: f64) -> f64 {
+        self.terms
+            .iter()
+            .filter(|&&(p, _)| p >= 3)
+            .map(|&(p, c)| c * (p * (p - 1) * (p - 2)) as f64 * q.powi(p as i32 - 3))
+            .sum()
+    }
 }
 
 /// Golden-section search for the minimum of a unimodal `f` on [lo, hi] (`iters` steps, each

@@ -213,7 +213,7 @@ fn theory_refusals_write_nothing() {
 /// the quadrature solver, whose first step is narrower than the lattice's spacing: printed in
 /// parentheses, JSON `value` null, not used as a bound). Both lie within 1e-3 of ≈ 0.8132, the
 /// value usually quoted for this model in this normalisation (recalled from the literature, not
-/// read). The algorithmic threshold lies clearly below (measured gap 0.0130; strict
+/// read). The algorithmic threshold lies clearly below (measured gap 0.0132; strict
 /// suboptimality is conjectured for p = 3, proven for even p ≥ 4: Huang & Sellke 2021,
 /// arXiv:2110.07847); bound 5e-3 here.
 #[test]
@@ -236,9 +236,11 @@ fn free_breakpoints_give_the_best_bound_on_pure_p3_and_the_threshold_lies_below(
     assert!((best - 0.8132).abs() < 1e-3, "{best}");
     let alg = v["cube"]["algorithmic"]["value"].as_f64().unwrap();
     assert!(alg < best - 5e-3, "ALG {alg} vs {best}");
-    // The value tests/cli/fitting.rs compares incremental AMP with (kiln's own, an upper bound
-    // good to about 2e-4 at the default grid: README, "algorithmic threshold").
-    assert!((alg - crate::fitting::ALG_PURE3).abs() < 2e-4, "ALG {alg}");
+    // The value tests/cli/fitting.rs compares incremental AMP with: kiln's own, an upper bound
+    // that the zoom's sequence (32, 64, 128) places about 4e-7 above its limit (README,
+    // "algorithmic threshold"); the solve is deterministic, so 1e-7 allows only for the
+    // platform's libm.
+    assert!((alg - crate::fitting::ALG_PURE3).abs() < 1e-7, "ALG {alg}");
     let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2"]);
     let text = String::from_utf8_lossy(&o.stdout);
     assert!(
