@@ -47,6 +47,13 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
         total / p + (1.0 - 1.0 / p) * largest
     };
     let bound = (phase(true) + phase(false)) / super::slurm::COST_PER_SECOND;
+    // How many jobs can be busy at once: a phase with fewer cells than jobs leaves some idle.
+    let busy = [true, false]
+        .map(|base| todo.iter().filter(|c| c.is_base() == base).count())
+        .into_iter()
+        .max()
+        .unwrap_or(0)
+        .min(parallel);
     if a.json {
         let v = serde_json::json!({
             "experiment": spec.name,
@@ -60,7 +67,7 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 "total_bytes": (largest * parallel as u128) as u64,
                 "available_bytes": budget,
             },
-            "time": { "upper_bound_seconds": bound, "jobs": parallel },
+            "time": { "upper_bound_seconds": bound, "jobs": parallel, "busy_jobs": busy },
             "algorithms": spec.algorithms.iter().map(|a| serde_json::json!({
                 "label": a.label, "kind": a.algo.kind(), "settings": a.algo.settings(),
             })).collect::<Vec<_>>(),
@@ -128,10 +135,16 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 memory::human(b as u128)
             ))
         );
+        let jobs = if busy < parallel {
+            format!(
+                "{parallel} jobs, at most {busy} busy at once (each ε cell waits for its instance's cell)"
+            )
+        } else {
+            format!("{parallel} job{}", if parallel == 1 { "" } else { "s" })
+        };
         s += &format!(
-            "time        at most about {} on {parallel} job{} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
+            "time        at most about {} on {jobs} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
             duration(bound),
-            if parallel == 1 { "" } else { "s" },
             super::slurm::COST_PER_SECOND
         );
         out(&s);

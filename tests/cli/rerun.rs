@@ -108,6 +108,8 @@ kind = "descent"
         let o = w.kiln(&["check", s.to_str().unwrap(), "--json", "--jobs", jobs]);
         assert!(o.status.success(), "{}", crate::util::stderr(&o));
         let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        // One instance cell, then its ε cell: never two busy at once.
+        assert_eq!(v["time"]["busy_jobs"], 1, "{v}");
         v["time"]["upper_bound_seconds"].as_f64().unwrap()
     };
     let (one, two) = (bound("1"), bound("2"));
@@ -120,6 +122,10 @@ kind = "descent"
     // counts both cells' samplings: at least 2·150n / 2e8 s (the old model, without sampling,
     // gave 0.006 s here).
     assert!(one >= 2.0 * 150.0 * 200000.0 / 2e8, "{one}");
+    // The words say so too.
+    let o = w.kiln(&["check", s.to_str().unwrap(), "--jobs", "2"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(text.contains("on 2 jobs, at most 1 busy at once"), "{text}");
 }
 
 /// `--cache` and `--results` move the folders.
