@@ -92,7 +92,7 @@ pub fn algorithmic(cache: &Cache, xi: &Mixture) -> Result<(full::FullRsb, Vec<f6
 /// q = 0 where ξ''(0) = 0 ([`full::near_zero_settings`]; the zoom does nothing elsewhere).
 pub fn alg_settings(xi: &Mixture) -> full::FullSettings {
     let s = full::FullSettings::default();
-    if xi.d1(0.0) == 0.0 && xi.d2(0.0) == 0.0 {
+    if full::flat_at_zero(xi) {
         full::near_zero_settings(&s)
     } else {
         s

@@ -112,6 +112,30 @@ struct Zoom {
     lift: Vec<(usize, [f64; STENCIL])>,
 }
 
+/// What [`Zoom::pass`] computes on the fine window.
+struct FinePass {
+    psi: Vec<Vec<f64>>,
+    dm: Vec<Vec<f64>>,
+    da: Vec<Vec<f64>>,
+    laws: Vec<Vec<f64>>,
+}
+
+/// E[f(X)] over a law on the lattice, summed only where it has mass: on the zoom's window the
+/// edges, which no mass reaches, may overflow at large m (their values are never read).
+fn expect(law: &[f64], f: &[f64]) -> f64 {
+    law.iter()
+        .zip(f)
+        .filter(|(r, _)| **r != 0.0)
+        .map(|(r, d)| r * d)
+        .sum()
+}
+
+/// Mixtures whose order parameter has a boundary layer at q = 0 (ξ'(0) = ξ''(0) = 0: no p ≤ 2
+/// term), where the zoom applies.
+pub fn flat_at_zero(xi: &Mixture) -> bool {
+    xi.d1(0.0) == 0.0 && xi.d2(0.0) == 0.0
+}
+
 /// Largest tilt m·a of a step of width a on the fine lattice: [`MAX_TILT`], or more for steps
 /// narrower than a coarse spacing `dx`, so that the tilted mass moves at most m·a² ≤
 /// MAX_TILT·dx (the boundary layer's γ grows like q^{−3/2} while a shrinks like q^{(p−1)/2}
@@ -140,6 +164,25 @@ impl Zoom {
             .iter()
             .map(|(i0, w)| (0..STENCIL).map(|l| w[l] * coarse[i0 + l]).sum())
             .collect()
+    }
+
+    /// The leading levels j < `levels` on the fine lattice, from Ψ at their top on the coarse
+    /// lattice: Ψ_j, ∂Ψ_j/∂m_j and ∂Ψ_j/∂a_j on the window (backward), and the law of X_j for
+    /// j ≤ `levels` (forward from the point mass at 0; the last one still on the window).
+    fn pass(&self, top: &[f64], m: &[f64], a: &[f64]) -> FinePass {
+        let (zp, fine) = (&self.fine, self.levels);
+        let mut psi: Vec<Vec<f64>> = vec![Vec::new(); fine + 1];
+        let mut dm: Vec<Vec<f64>> = vec![Vec::new(); fine];
+        let mut da: Vec<Vec<f64>> = vec![Vec::new(); fine];
+        psi[fine] = self.lift(top);
+        for j in (0..fine).rev() {
+            (psi[j], dm[j], da[j]) = zp.level(&psi[j + 1], m[j], a[j]);
+        }
+        let mut laws = vec![zp.start.clone()];
+        for j in 0..fine {
+            laws.push(zp.forward(&laws[j], &psi[j + 1], &psi[j], m[j], a[j]));
+        }
+        FinePass { psi, dm, da, laws }
     }
 
     /// The transpose of [`Zoom::lift`]: a law on the fine window to the coarse lattice.
@@ -201,7 +244,7 @@ impl Problem {
             start: lattice_gaussian(grid, dx, b * b * xi.d1(0.0)),
             zoom: None,
         };
-        if s.zoom > 1 && beta.is_none() && xi.d1(0.0) == 0.0 && xi.d2(0.0) == 0.0 {
+        if s.zoom > 1 && beta.is_none() && flat_at_zero(xi) {
             p.zoom = p.zoomed(xi, q, s.zoom).map(Box::new);
         }
         p
@@ -461,11 +504,9 @@ impl Problem {
                 k
             }
         };
-        // The leading intervals on the fine lattice, if zoomed (never the closed-form last one).
-        let fine = self
-            .zoom
-            .as_ref()
-            .map_or(0, |z| z.levels.min(first_quadrature));
+        // The leading intervals on the fine lattice, if zoomed (at most K − 1 of them, so never
+        // the closed-form last one; zero temperature only).
+        let fine = self.zoom.as_ref().map_or(0, |z| z.levels);
         for j in (fine..first_quadrature).rev() {
             let (p, d, da) = self.level(&psi[j + 1], m[j], self.a[j]);
             psi[j] = p;
@@ -477,34 +518,13 @@ impl Problem {
         let penalty: f64 = m.iter().zip(&self.dg).map(|(a, b)| 0.5 * a * b).sum();
         let (read, mut rho) = match &self.zoom {
             Some(z) if fine > 0 => {
-                let zp = &z.fine;
-                let mut fpsi: Vec<Vec<f64>> = vec![Vec::new(); fine + 1];
-                let mut fd: Vec<Vec<f64>> = vec![Vec::new(); fine];
-                let mut fa: Vec<Vec<f64>> = vec![Vec::new(); fine];
-                fpsi[fine] = z.lift(&psi[fine]);
-                for j in (0..fine).rev() {
-                    let (p, d, da) = zp.level(&fpsi[j + 1], m[j], self.a[j]);
-                    fpsi[j] = p;
-                    fd[j] = d;
-                    fa[j] = da;
-                }
-                // Expectations over the law only where it has mass: the window's edges, which
-                // no mass reaches, may overflow at large m (their values are never read).
-                let mean = |r: &[f64], d: &[f64]| -> f64 {
-                    r.iter()
-                        .zip(d)
-                        .filter(|(r, _)| **r != 0.0)
-                        .map(|(r, d)| r * d)
-                        .sum()
-                };
-                let mut rf = zp.start.clone();
+                let f = z.pass(&psi[fine], m, &self.a);
                 for j in 0..fine {
-                    grad[j] = mean(&rf, &fd[j]) - 0.5 * self.dg[j];
-                    grad_a[j] = mean(&rf, &fa[j]);
-                    rf = zp.forward(&rf, &fpsi[j + 1], &fpsi[j], m[j], self.a[j]);
+                    grad[j] = expect(&f.laws[j], &f.dm[j]) - 0.5 * self.dg[j];
+                    grad_a[j] = expect(&f.laws[j], &f.da[j]);
                 }
-                let fmid = (zp.xs.len() - 1) / 2;
-                (fpsi[0][fmid], z.lower(&rf, g))
+                let fmid = (z.fine.xs.len() - 1) / 2;
+                (f.psi[0][fmid], z.lower(&f.laws[fine], g))
             }
             // Ψ(0, ·) read at the middle, or averaged over the p = 1 term's field; the forward
             // law of X_j starts from the same law.
@@ -1022,7 +1042,7 @@ pub fn algorithmic_near_zero(xi: &Mixture, s: &FullSettings, sol: &FullRsb) -> F
 
 /// [`algorithmic_near_zero`] at a given zoom (for the convergence evidence in the README).
 pub fn near_zero_at(xi: &Mixture, s: &FullSettings, sol: &FullRsb, zoom: usize) -> FullRsb {
-    if xi.d1(0.0) != 0.0 || xi.d2(0.0) != 0.0 || sol.q.len() < 3 {
+    if !flat_at_zero(xi) || sol.q.len() < 3 {
         return sol.clone();
     }
     let sz = FullSettings { zoom, ..s.clone() };
@@ -1088,29 +1108,26 @@ pub fn diagnostic(xi: &Mixture, s: &FullSettings, sol: &FullRsb) -> Vec<f64> {
     let g = p.xs.len();
     let psi = p.fields(&sol.m);
     let curvature = |f: &[f64], rho: &[f64], dx: f64| -> f64 {
-        (1..f.len() - 1)
-            .filter(|&i| rho[i] != 0.0)
-            .map(|i| rho[i] * ((f[i + 1] - 2.0 * f[i] + f[i - 1]) / (dx * dx)).powi(2))
-            .sum()
+        let second: Vec<f64> = (0..f.len())
+            .map(|i| match i {
+                0 => 0.0,
+                i if i + 1 == f.len() => 0.0,
+                i => ((f[i + 1] - 2.0 * f[i] + f[i - 1]) / (dx * dx)).powi(2),
+            })
+            .collect();
+        expect(rho, &second)
     };
     let mut out = Vec::with_capacity(k);
     // The zoomed leading levels on their own lattice (see `Zoom`), the law passed down by the
     // interpolation's transpose.
-    let fine = p.zoom.as_ref().map_or(0, |z| z.levels.min(k - 1));
+    let fine = p.zoom.as_ref().map_or(0, |z| z.levels);
     let mut rho = match &p.zoom {
         Some(z) if fine > 0 => {
-            let zp = &z.fine;
-            let mut fpsi = vec![Vec::new(); fine + 1];
-            fpsi[fine] = z.lift(&psi[fine]);
-            for j in (0..fine).rev() {
-                fpsi[j] = zp.level(&fpsi[j + 1], sol.m[j], p.a[j]).0;
-            }
-            let mut rf = zp.start.clone();
+            let f = z.pass(&psi[fine], &sol.m, &p.a);
             for j in 0..fine {
-                out.push(xi.d2(sol.q[j]) * curvature(&fpsi[j], &rf, zp.dx));
-                rf = zp.forward(&rf, &fpsi[j + 1], &fpsi[j], sol.m[j], p.a[j]);
+                out.push(xi.d2(sol.q[j]) * curvature(&f.psi[j], &f.laws[j], z.fine.dx));
             }
-            z.lower(&rf, g)
+            z.lower(&f.laws[fine], g)
         }
         _ => {
             let mut rho = vec![0.0; g];
