@@ -237,9 +237,9 @@ fn free_breakpoints_give_the_best_bound_on_pure_p3_and_the_threshold_lies_below(
     let alg = v["cube"]["algorithmic"]["value"].as_f64().unwrap();
     assert!(alg < best - 5e-3, "ALG {alg} vs {best}");
     // The value tests/cli/fitting.rs compares incremental AMP with: kiln's own, an upper bound
-    // that the zoom's sequence (32, 64, 128) places about 4e-7 above its limit (README,
-    // "algorithmic threshold"); the solve is deterministic, so 1e-7 allows only for the
-    // platform's libm.
+    // that the zoom's sequence (32, 64, 128) places about 4e-7 above its zoom limit and that
+    // 1601 x-points with 24 q-intervals lower by 3.3e-6 (README, "The boundary layer at
+    // q = 0"); the solve is deterministic, so 1e-7 allows only for the platform's libm.
     assert!((alg - crate::fitting::ALG_PURE3).abs() < 1e-7, "ALG {alg}");
     let o = w.kiln(&["theory", "--mixture", "3:0.5", "--k", "2"]);
     let text = String::from_utf8_lossy(&o.stdout);
