@@ -372,7 +372,12 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         .map(|(_, sol, _)| crate::theory::cached::k_step_value(&xi, sol))
         .collect();
     let alg_t = std::time::Instant::now();
-    let (calg, alg_starts) = solving(quiet, "algorithmic threshold, three starts", || {
+    let alg_what = if crate::theory::full::flat_at_zero(&xi) {
+        "algorithmic threshold, three starts, then the boundary layer at q = 0 (a minute or more)"
+    } else {
+        "algorithmic threshold, three starts"
+    };
+    let (calg, alg_starts) = solving(quiet, alg_what, || {
         crate::theory::cached::algorithmic(&cache, &xi)
     })?;
     let alg_secs = alg_t.elapsed().as_secs_f64();
