@@ -39,21 +39,18 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
         .filter(|c| !cache.has_record(&c.key))
         .collect();
     let p = parallel.max(1) as f64;
+    // Per phase: its bound in cost units, and its cells (a phase with fewer cells than jobs
+    // leaves some idle).
     let phase = |base: bool| {
         let costs = todo.iter().filter(|c| c.is_base() == base);
-        let (total, largest) = costs
+        let (total, largest, cells) = costs
             .map(|c| spec.cell_cost(c))
-            .fold((0.0, 0.0f64), |(t, l), x| (t + x, l.max(x)));
-        total / p + (1.0 - 1.0 / p) * largest
+            .fold((0.0, 0.0f64, 0), |(t, l, k), x| (t + x, l.max(x), k + 1));
+        (total / p + (1.0 - 1.0 / p) * largest, cells)
     };
-    let bound = (phase(true) + phase(false)) / super::slurm::COST_PER_SECOND;
-    // How many jobs can be busy at once: a phase with fewer cells than jobs leaves some idle.
-    let busy = [true, false]
-        .map(|base| todo.iter().filter(|c| c.is_base() == base).count())
-        .into_iter()
-        .max()
-        .unwrap_or(0)
-        .min(parallel);
+    let (instances, epsilons) = (phase(true), phase(false));
+    let bound = (instances.0 + epsilons.0) / super::slurm::COST_PER_SECOND;
+    let busy = instances.1.max(epsilons.1).min(parallel);
     if a.json {
         let v = serde_json::json!({
             "experiment": spec.name,

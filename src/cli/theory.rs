@@ -372,7 +372,9 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         .map(|(_, sol, _)| crate::theory::cached::k_step_value(&xi, sol))
         .collect();
     let alg_t = std::time::Instant::now();
-    let alg_what = if crate::theory::full::flat_at_zero(&xi) {
+    let alg_settings = crate::theory::cached::alg_settings(&xi);
+    let alg_zoom = alg_settings.zoom;
+    let alg_what = if alg_zoom > 1 {
         "algorithmic threshold, three starts, then the boundary layer at q = 0 (a minute or more)"
     } else {
         "algorithmic threshold, three starts"
@@ -381,9 +383,7 @@ pub fn run(a: &TheoryArgs) -> anyhow::Result<ExitCode> {
         crate::theory::cached::algorithmic(&cache, &xi)
     })?;
     let alg_secs = alg_t.elapsed().as_secs_f64();
-    let alg_settings = crate::theory::cached::alg_settings(&xi);
     let alg_diag = crate::theory::full::diagnostic(&xi, &alg_settings, &calg);
-    let alg_zoom = alg_settings.zoom;
     // Every line is an upper bound on the Parisi value (the infimum of the functional); the
     // best kiln has is the least of them, and it names the solution that attains it.
     let best = crate::theory::cached::least(

@@ -985,6 +985,18 @@ fn solve_positive_on(xi: &Mixture, q: &[f64], s: &FullSettings, m0: &[f64]) -> F
     }
 }
 
+/// One start of the extended minimisation: the values on the grid `q` from `m`, then values
+/// and breakpoints together; the lower of the two.
+fn solve_positive(xi: &Mixture, s: &FullSettings, q: &[f64], m: &[f64]) -> FullRsb {
+    let on_grid = solve_positive_on(xi, q, s, m);
+    let free = solve_free(xi, s, &on_grid.q, &on_grid.m, Shape::Positive);
+    if free.value < on_grid.value {
+        free
+    } else {
+        on_grid
+    }
+}
+
 /// The algorithmic threshold on the cube: the infimum of the same functional over γ that are
 /// positive but need not be monotone (El Alaoui, Montanari & Sellke 2021, arXiv:2001.00904;
 /// Huang & Sellke 2021, arXiv:2110.07847). Warm-started from the Parisi minimiser `parisi` on
@@ -1008,13 +1020,7 @@ pub fn algorithmic(xi: &Mixture, s: &FullSettings, parisi: &FullRsb) -> (FullRsb
     let mut best: Option<FullRsb> = None;
     let mut reached = Vec::new();
     for (q0, m0) in &starts {
-        let on_grid = solve_positive_on(xi, q0, s, m0);
-        let free = solve_free(xi, s, &on_grid.q, &on_grid.m, Shape::Positive);
-        let sol = if free.value < on_grid.value {
-            free
-        } else {
-            on_grid
-        };
+        let sol = solve_positive(xi, s, q0, m0);
         reached.push(sol.value);
         if best.as_ref().is_none_or(|b| sol.value < b.value) {
             best = Some(sol);
@@ -1075,13 +1081,7 @@ pub fn near_zero_at(xi: &Mixture, s: &FullSettings, sol: &FullRsb, zoom: usize) 
         .map(|j| layer(q[j], q[j + 1]).max(sol.m[0]))
         .collect();
     m.extend(&sol.m[1..]);
-    let on_grid = solve_positive_on(xi, &q, &sz, &m);
-    let free = solve_free(xi, &sz, &on_grid.q, &on_grid.m, Shape::Positive);
-    let best = if free.value < on_grid.value {
-        free
-    } else {
-        on_grid
-    };
+    let best = solve_positive(xi, &sz, &q, &m);
     if best.value < sol.value {
         best
     } else {
