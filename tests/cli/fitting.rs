@@ -16,6 +16,11 @@ pub const ALG_PURE3: f64 = 0.7999735;
 /// usually quoted in this normalisation, recalled from the literature, not read).
 const PARISI_PURE3: f64 = 0.8131702;
 
+/// kiln's algorithmic threshold for the cube mixture ξ = q²/2 + q³/4, where it equals kiln's
+/// Parisi value (`kiln theory --mixture 2:0.5,3:0.25`: the extended minimiser is the Parisi
+/// minimiser, 4e-15 apart).
+const ALG_MIX: f64 = 0.9662581;
+
 const GROUND: &str = r#"[experiment]
 name = "sk-ground"
 note = "Extrapolate long annealing at n ≤ 512 to n → ∞"
@@ -212,6 +217,40 @@ fn iamp_on_the_pure_3_spin_cube_stays_below_the_threshold() {
     eprintln!("iamp e∞ = {e} ± {se}; ALG {ALG_PURE3}, Parisi {PARISI_PURE3}");
     assert!(e <= ALG_PURE3 + 2.0 * se, "e∞ = {e} ± {se} above ALG");
     assert!(e < PARISI_PURE3 - 4.0 * se, "e∞ = {e} ± {se}");
+}
+
+/// The calibration study `results/cube-mixture-iamp`: iAMP at δ = 0.01 on ξ = q²/2 + q³/4, at the
+/// pure 3-spin study's sizes (200 … 1400) and instance count (32). Here the threshold is the
+/// Parisi value, and iAMP reaches it as n → ∞ and then δ → 0 (El Alaoui, Montanari & Sellke
+/// 2021, arXiv:2001.00904, Theorem 3). With the exponent fixed at 2/3 or 1/2, its extrapolation
+/// still falls short of the threshold by more than 4 standard errors: 3.0% and 2.1%, measured.
+/// The pure 3-spin study's shortfall from its own ALG, relative to ALG, agrees with the
+/// mixture's within 3 combined standard errors: 3.8% against 3.0%, and 1.7% against 2.1%,
+/// measured. So at these sizes and this step, the pure 3-spin shortfall is no larger than the
+/// shortfall kiln's iAMP shows where the limit is known. The standard error is the larger of
+/// the fit's and the bootstrap's (300 resamplings of instances). See README, "Incremental AMP
+/// without a p = 2 term".
+#[test]
+fn iamp_falls_as_far_short_on_pure_3_spin_as_where_the_limit_is_known() {
+    let w = Work::new();
+    for omega in ["0.6666666666666666", "0.5"] {
+        let args = ["--omega", omega];
+        let (m, sm) = committed_fit(&w, "cube-mixture-iamp", "iamp", &args, 7);
+        let (p, sp) = committed_fit(&w, "cube-pure3-iamp", "iamp", &args, 7);
+        let (short_m, short_p) = (1.0 - m / ALG_MIX, 1.0 - p / ALG_PURE3);
+        let (se_m, se_p) = (sm / ALG_MIX, sp / ALG_PURE3);
+        eprintln!(
+            "ω = {omega}: mixture {m} ± {sm} ({short_m}), pure 3-spin {p} ± {sp} ({short_p})"
+        );
+        assert!(
+            m < ALG_MIX - 4.0 * sm,
+            "ω = {omega}: mixture e∞ = {m} ± {sm}"
+        );
+        assert!(
+            (short_p - short_m).abs() <= 3.0 * (se_m * se_m + se_p * se_p).sqrt(),
+            "ω = {omega}: shortfalls {short_m} ± {se_m} and {short_p} ± {se_p}"
+        );
+    }
 }
 
 /// Incremental AMP on SK at four time steps, the committed study `results/sk-iamp-steps`
