@@ -39,18 +39,26 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
         .filter(|c| !cache.has_record(&c.key))
         .collect();
     let p = parallel.max(1) as f64;
-    // Per phase: its bound in cost units, and its cells (a phase with fewer cells than jobs
-    // leaves some idle).
-    let phase = |base: bool| {
+    // Per phase: its bound in seconds with each cell's cost at `speed(algorithm)` units per
+    // second, and its cells (a phase with fewer cells than jobs leaves some idle).
+    let phase = |base: bool, speed: &dyn Fn(usize) -> f64| {
         let costs = todo.iter().filter(|c| c.is_base() == base);
         let (total, largest, cells) = costs
-            .map(|c| spec.cell_cost(c))
+            .map(|c| spec.cell_cost(c) / speed(c.algo))
             .fold((0.0, 0.0f64, 0), |(t, l, k), x| (t + x, l.max(x), k + 1));
         (total / p + (1.0 - 1.0 / p) * largest, cells)
     };
-    let (instances, epsilons) = (phase(true), phase(false));
-    let bound = (instances.0 + epsilons.0) / super::slurm::COST_PER_SECOND;
+    let model = |_: usize| super::slurm::COST_PER_SECOND;
+    let (instances, epsilons) = (phase(true, &model), phase(false, &model));
+    let bound = instances.0 + epsilons.0;
     let busy = instances.1.max(epsilons.1).min(parallel);
+    // The same bound at the speed this host measured on the plan's cached cells, where it has
+    // any: a realistic figure beside the conservative one (an extended study, a rerun).
+    let (rates, measured_cells) = measured_speeds(&spec, &plan, &cache);
+    let measured = (measured_cells > 0 && !todo.is_empty()).then(|| {
+        let speed = |a: usize| rates[a].unwrap_or(super::slurm::COST_PER_SECOND);
+        phase(true, &speed).0 + phase(false, &speed).0
+    });
     if a.json {
         let v = serde_json::json!({
             "experiment": spec.name,
@@ -64,7 +72,10 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 "total_bytes": (largest * parallel as u128) as u64,
                 "available_bytes": budget,
             },
-            "time": { "upper_bound_seconds": bound, "jobs": parallel, "busy_jobs": busy },
+            "time": {
+                "upper_bound_seconds": bound, "jobs": parallel, "busy_jobs": busy,
+                "measured_seconds": measured, "measured_from_cells": measured_cells,
+            },
             "algorithms": spec.algorithms.iter().map(|a| serde_json::json!({
                 "label": a.label, "kind": a.algo.kind(), "settings": a.algo.settings(),
             })).collect::<Vec<_>>(),
@@ -132,21 +143,78 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 memory::human(b as u128)
             ))
         );
-        let jobs = if busy < parallel {
+        let jobs = if todo.is_empty() {
+            String::new()
+        } else if busy < parallel {
             format!(
                 "{parallel} jobs, at most {busy} busy at once (each ε cell waits for its instance's cell)"
             )
         } else {
             format!("{parallel} job{}", if parallel == 1 { "" } else { "s" })
         };
-        s += &format!(
-            "time        at most about {} on {jobs} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
-            duration(bound),
-            super::slurm::COST_PER_SECOND
-        );
+        if todo.is_empty() {
+            s += "time        nothing to run: every cell is cached\n";
+        } else {
+            s += &format!(
+                "time        at most about {} on {jobs} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
+                duration(bound),
+                super::slurm::COST_PER_SECOND
+            );
+        }
+        if let Some(m) = measured {
+            let all = rates.iter().all(Option::is_some);
+            s += &format!(
+                "            about {} at the speed {measured_cells} cached cell{} of this plan ran at on this host (each algorithm's largest cached size{})\n",
+                duration(m),
+                if measured_cells == 1 { "" } else { "s" },
+                if all {
+                    ""
+                } else {
+                    "; the others at the cost model's speed"
+                }
+            );
+        }
         out(&s);
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Cells under this many seconds are mostly overhead; their speed says little.
+const MEASURED_MIN_SECONDS: f64 = 0.05;
+
+/// The speed, in cost units per second, at which this host ran each algorithm's cached cells
+/// of the plan: the median over its cells at the largest size it has cached (the closest to
+/// the sizes still to run), from the records' wall time; None for an algorithm without such a
+/// cell. Also the number of cells the speeds come from.
+fn measured_speeds(
+    spec: &crate::spec::Spec,
+    plan: &crate::spec::plan::Plan,
+    cache: &Cache,
+) -> (Vec<Option<f64>>, usize) {
+    use crate::store::cache::Lookup;
+    let host = crate::store::this_host();
+    // Per algorithm: (n, speed) of each usable cached cell.
+    let mut seen: Vec<Vec<(u64, f64)>> = vec![Vec::new(); spec.algorithms.len()];
+    for c in plan.distinct() {
+        if let Ok(Lookup::Hit(r)) = cache.read_record(&c.key)
+            && r.host == host
+            && r.wall_seconds >= MEASURED_MIN_SECONDS
+        {
+            seen[c.algo].push((c.n, spec.cell_cost(c) / r.wall_seconds));
+        }
+    }
+    let mut used = 0;
+    let rates = seen
+        .into_iter()
+        .map(|cells| {
+            let top = cells.iter().map(|x| x.0).max()?;
+            let mut at: Vec<f64> = cells.iter().filter(|x| x.0 == top).map(|x| x.1).collect();
+            at.sort_by(f64::total_cmp);
+            used += at.len();
+            Some(at[at.len() / 2])
+        })
+        .collect();
+    (rates, used)
 }
 
 /// Seconds as the largest two units: `40 s`, `3 min 20 s`, `2 h 5 min`.

@@ -128,6 +128,49 @@ kind = "descent"
     assert!(text.contains("on 2 jobs, at most 1 busy at once"), "{text}");
 }
 
+/// With some of the plan's cells cached on this host, `kiln check` also gives the time at the
+/// speed they ran at (each algorithm's cells at its largest cached size); with none, it gives
+/// only the cost model's bound. A plan with every cell cached says there is nothing to run.
+#[test]
+fn check_time_from_cached_cells() {
+    let w = Work::new();
+    let spec = |sizes: &str| {
+        format!(
+            "[experiment]\nname = \"speed\"\n[model]\nfamily = \"sk\"\n[sweep]\nsizes = [{sizes}]\nseeds = 2\n[[algorithm]]\nkind = \"anneal\"\nsweeps = 40000\n"
+        )
+    };
+    let first = w.spec("a.toml", &spec("400"));
+    let time = |s: &std::path::Path| {
+        let o = w.kiln(&["check", s.to_str().unwrap(), "--json"]);
+        assert!(o.status.success(), "{}", crate::util::stderr(&o));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        v["time"].clone()
+    };
+    let t = time(&first);
+    assert!(t["measured_seconds"].is_null(), "{t}");
+    assert_eq!(t["measured_from_cells"], 0, "{t}");
+    w.run_json(&first, &[]);
+    let o = w.kiln(&["check", first.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        text.contains("nothing to run: every cell is cached"),
+        "{text}"
+    );
+    // One more size: its two cells at the speed the two cached ones ran at (each well over the
+    // 0.05 s a cell must take to count).
+    let more = w.spec("b.toml", &spec("400, 500"));
+    let t = time(&more);
+    assert_eq!(t["measured_from_cells"], 2, "{t}");
+    let m = t["measured_seconds"].as_f64().unwrap();
+    assert!(m > 0.0 && m.is_finite(), "{t}");
+    let o = w.kiln(&["check", more.to_str().unwrap()]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        text.contains("at the speed 2 cached cells of this plan ran at on this host"),
+        "{text}"
+    );
+}
+
 /// `--cache` and `--results` move the folders.
 #[test]
 fn folders_can_be_moved() {
