@@ -53,9 +53,14 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let bound = instances.0 + epsilons.0;
     let busy = instances.1.max(epsilons.1).min(parallel);
     // The same bound at the speed this host measured on the plan's cached cells, where it has
-    // any: a realistic figure beside the conservative one (an extended study, a rerun).
-    let (rates, measured_cells) = measured_speeds(&spec, &plan, &cache);
-    let measured = (measured_cells > 0 && !todo.is_empty()).then(|| {
+    // any: a realistic figure beside the conservative one (an extended study, a rerun). Only
+    // read when something is left to run (it reads every cached cell's record).
+    let (rates, measured_cells) = if todo.is_empty() {
+        (Vec::new(), 0)
+    } else {
+        measured_speeds(&spec, &plan, &cache)
+    };
+    let measured = (measured_cells > 0).then(|| {
         let speed = |a: usize| rates[a].unwrap_or(super::slurm::COST_PER_SECOND);
         phase(true, &speed).0 + phase(false, &speed).0
     });

@@ -208,6 +208,11 @@ fn check_reports_the_plan() {
         text.contains("24 in total · 24 cached · 0 to run"),
         "{text}"
     );
-    // With everything cached nothing is left to time.
-    assert!(text.contains("time        at most about 0 s"), "{text}");
+    // With everything cached nothing is left to time, and the line says so (it read "at most
+    // about 0 s … at most 0 busy at once" before).
+    assert!(
+        text.contains("time        nothing to run: every cell is cached"),
+        "{text}"
+    );
+    assert!(!text.contains("at most about"), "{text}");
 }
