@@ -14,8 +14,9 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let fit_in_memory = memory::cells_that_fit(&spec, budget)?;
     let plan = expand(&spec);
     let cache = Cache::new(a.folders.cache_dir());
-    let total = plan.distinct().count();
-    let cached = plan.distinct().filter(|c| cache.has_record(&c.key)).count();
+    // The distinct cells, cached or still to run (one look at the cache each).
+    let (done, todo): (Vec<_>, Vec<_>) = plan.distinct().partition(|c| cache.has_record(&c.key));
+    let (total, cached) = (done.len() + todo.len(), done.len());
     let (largest, largest_n) = memory::largest_cell(&spec);
     let parallel = jobs.min(fit_in_memory).min(total.max(1));
     let sweep = format!(
@@ -34,10 +35,6 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     // per job), over the cells still to run. The ε cells start once the instances' cells are
     // done, and within each phase `parallel` jobs take cells as they free up, which finishes
     // within total/p + (1 − 1/p)·largest (list scheduling).
-    let todo: Vec<_> = plan
-        .distinct()
-        .filter(|c| !cache.has_record(&c.key))
-        .collect();
     let p = parallel.max(1) as f64;
     // Per phase: its bound in seconds with each cell's cost at `speed(algorithm)` units per
     // second, and its cells (a phase with fewer cells than jobs leaves some idle).
@@ -58,7 +55,7 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
     let (rates, measured_cells) = if todo.is_empty() {
         (Vec::new(), 0)
     } else {
-        measured_speeds(&spec, &plan, &cache)
+        measured_speeds(&spec, &done, &cache)
     };
     let measured = (measured_cells > 0).then(|| {
         let speed = |a: usize| rates[a].unwrap_or(super::slurm::COST_PER_SECOND);
@@ -148,18 +145,16 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
                 memory::human(b as u128)
             ))
         );
-        let jobs = if todo.is_empty() {
-            String::new()
-        } else if busy < parallel {
-            format!(
-                "{parallel} jobs, at most {busy} busy at once (each ε cell waits for its instance's cell)"
-            )
-        } else {
-            format!("{parallel} job{}", if parallel == 1 { "" } else { "s" })
-        };
         if todo.is_empty() {
             s += "time        nothing to run: every cell is cached\n";
         } else {
+            let jobs = if busy < parallel {
+                format!(
+                    "{parallel} jobs, at most {busy} busy at once (each ε cell waits for its instance's cell)"
+                )
+            } else {
+                format!("{parallel} job{}", if parallel == 1 { "" } else { "s" })
+            };
             s += &format!(
                 "time        at most about {} on {jobs} (an upper estimate: kiln's cost model at {:.0e} updates/s per job, the one `kiln slurm` sizes its tasks with)\n",
                 duration(bound),
@@ -188,19 +183,19 @@ pub fn run(a: &CommonArgs) -> anyhow::Result<ExitCode> {
 const MEASURED_MIN_SECONDS: f64 = 0.05;
 
 /// The speed, in cost units per second, at which this host ran each algorithm's cached cells
-/// of the plan: the median over its cells at the largest size it has cached (the closest to
-/// the sizes still to run), from the records' wall time; None for an algorithm without such a
+/// (`done`): the median over its cells at the largest size it has cached (the closest to the
+/// sizes still to run), from the records' wall time; None for an algorithm without such a
 /// cell. Also the number of cells the speeds come from.
 fn measured_speeds(
     spec: &crate::spec::Spec,
-    plan: &crate::spec::plan::Plan,
+    done: &[&crate::spec::plan::Cell],
     cache: &Cache,
 ) -> (Vec<Option<f64>>, usize) {
     use crate::store::cache::Lookup;
     let host = crate::store::this_host();
     // Per algorithm: (n, speed) of each usable cached cell.
     let mut seen: Vec<Vec<(u64, f64)>> = vec![Vec::new(); spec.algorithms.len()];
-    for c in plan.distinct() {
+    for c in done {
         if let Ok(Lookup::Hit(r)) = cache.read_record(&c.key)
             && r.host == host
             && r.wall_seconds >= MEASURED_MIN_SECONDS

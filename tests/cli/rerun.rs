@@ -1,6 +1,7 @@
 //! Caching rules: what a rerun computes after each kind of edit.
 
 use crate::util::{SMALL, Work, counts};
+use std::path::Path;
 
 #[test]
 fn rerun_rules() {
@@ -83,6 +84,22 @@ fn experiments_share_the_cache() {
     assert!(w.path().join("results/other/cells.parquet").is_file());
 }
 
+/// `kiln check` of a spec with `extra` arguments: its screen (the command must succeed).
+fn check_screen(w: &Work, spec: &Path, extra: &[&str]) -> String {
+    let mut a = vec!["check", spec.to_str().unwrap()];
+    a.extend_from_slice(extra);
+    let o = w.kiln(&a);
+    assert!(o.status.success(), "{}", crate::util::stderr(&o));
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// `kiln check --json` of a spec with `extra` arguments.
+fn check_json(w: &Work, spec: &Path, extra: &[&str]) -> serde_json::Value {
+    let mut a = vec!["--json"];
+    a.extend_from_slice(extra);
+    serde_json::from_str(&check_screen(w, spec, &a)).unwrap()
+}
+
 /// `kiln check`'s time bound follows how cells run: an instance's ε cell starts only after
 /// the instance's own cell, so a plan of one of each takes as long on two jobs as on one, and
 /// the bound says so (a bound that divided the total by the jobs would halve). It counts the
@@ -105,9 +122,7 @@ kind = "descent"
 "#;
     let s = w.spec("s.toml", spec);
     let bound = |jobs: &str| {
-        let o = w.kiln(&["check", s.to_str().unwrap(), "--json", "--jobs", jobs]);
-        assert!(o.status.success(), "{}", crate::util::stderr(&o));
-        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        let v = check_json(&w, &s, &["--jobs", jobs]);
         // One instance cell, then its ε cell: never two busy at once.
         assert_eq!(v["time"]["busy_jobs"], 1, "{v}");
         v["time"]["upper_bound_seconds"].as_f64().unwrap()
@@ -123,8 +138,7 @@ kind = "descent"
     // gave 0.006 s here).
     assert!(one >= 2.0 * 150.0 * 200000.0 / 2e8, "{one}");
     // The words say so too.
-    let o = w.kiln(&["check", s.to_str().unwrap(), "--jobs", "2"]);
-    let text = String::from_utf8_lossy(&o.stdout);
+    let text = check_screen(&w, &s, &["--jobs", "2"]);
     assert!(text.contains("on 2 jobs, at most 1 busy at once"), "{text}");
 }
 
@@ -140,18 +154,12 @@ fn check_time_from_cached_cells() {
         )
     };
     let first = w.spec("a.toml", &spec("400"));
-    let time = |s: &std::path::Path| {
-        let o = w.kiln(&["check", s.to_str().unwrap(), "--json"]);
-        assert!(o.status.success(), "{}", crate::util::stderr(&o));
-        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
-        v["time"].clone()
-    };
+    let time = |s: &Path| check_json(&w, s, &[])["time"].clone();
     let t = time(&first);
     assert!(t["measured_seconds"].is_null(), "{t}");
     assert_eq!(t["measured_from_cells"], 0, "{t}");
     w.run_json(&first, &[]);
-    let o = w.kiln(&["check", first.to_str().unwrap()]);
-    let text = String::from_utf8_lossy(&o.stdout);
+    let text = check_screen(&w, &first, &[]);
     assert!(
         text.contains("nothing to run: every cell is cached"),
         "{text}"
@@ -163,8 +171,7 @@ fn check_time_from_cached_cells() {
     assert_eq!(t["measured_from_cells"], 2, "{t}");
     let m = t["measured_seconds"].as_f64().unwrap();
     assert!(m > 0.0 && m.is_finite(), "{t}");
-    let o = w.kiln(&["check", more.to_str().unwrap()]);
-    let text = String::from_utf8_lossy(&o.stdout);
+    let text = check_screen(&w, &more, &[]);
     assert!(
         text.contains("at the speed 2 cached cells of this plan ran at on this host"),
         "{text}"
@@ -189,9 +196,7 @@ fn folders_can_be_moved() {
 fn check_reports_the_plan() {
     let w = Work::new();
     let s = w.spec("s.toml", SMALL);
-    let o = w.kiln(&["check", s.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", crate::util::stderr(&o));
-    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&w, &s, &[]);
     assert_eq!(v["cells"]["total"], 24);
     assert_eq!(v["cells"]["cached"], 0);
     // 32×32 f64 matrix plus work space plus the 1 MiB margin.
@@ -202,8 +207,7 @@ fn check_reports_the_plan() {
     assert!(bound > 0.0, "{v}");
     assert!(!w.path().join("results").exists(), "check wrote something");
     w.run_json(&s, &[]);
-    let o = w.kiln(&["check", s.to_str().unwrap()]);
-    let text = String::from_utf8_lossy(&o.stdout);
+    let text = check_screen(&w, &s, &[]);
     assert!(
         text.contains("24 in total · 24 cached · 0 to run"),
         "{text}"
