@@ -182,9 +182,10 @@ fn peak_mib() -> f64 {
 }
 
 /// A ±1 3-regular graph at n vertices (`bench_kernels N 1 regular`): generation, the copy at
-/// ε = 0.1, and 100 annealing sweeps on each (sequential sweeps, β 0.1 → 3), then the same
-/// annealing at n = 10⁶ in the same process (median of five) for the per-attempt ratios;
-/// peak RSS after each.
+/// ε = 0.1, and 100 annealing sweeps on each (sequential sweeps, β 0.1 → 3), with the same
+/// annealing at n = 10⁶ in the same process, five times before the instance, five times between
+/// the instance and its copy and five times after (the ratios use the median of the fifteen, so
+/// the reference sees the host's load of the whole run); peak RSS after each.
 fn regular_scale(n: usize, first: usize) {
     let p = anneal::Params {
         sweeps: 100,
@@ -205,6 +206,16 @@ fn regular_scale(n: usize, first: usize) {
         );
         ns
     };
+    // The reference runs in about a second, where this machine's drift between runs (up to 25%,
+    // with the neighbours' load on the shared L3) is largest: five runs at each of three times.
+    let small = regular(1_000_000, 3, Couplings::Pm1, &inst, 0.0);
+    let mut base = Vec::new();
+    let mut reference = |when: &str| {
+        for _ in 0..5 {
+            base.push(per_attempt(&small, &format!("reference-1e6-{when}")));
+        }
+    };
+    reference("before");
     let mut big = [0.0; 2];
     for (eps, stage) in [(0.0, "generate"), (0.1, "copy")] {
         let t = Instant::now();
@@ -216,19 +227,14 @@ fn regular_scale(n: usize, first: usize) {
         );
         let ns = per_attempt(&g, if eps > 0.0 { "anneal-copy" } else { "anneal" });
         big[usize::from(eps > 0.0)] = ns;
+        drop(g);
+        reference(if eps > 0.0 { "after" } else { "between" });
     }
-    // The reference runs in well under a second, where this machine's ±10% drift between runs
-    // is largest: the median of five.
-    let small = regular(1_000_000, 3, Couplings::Pm1, &inst, 0.0);
-    let mut base: Vec<f64> = (0..5)
-        .map(|_| per_attempt(&small, "reference-1e6"))
-        .collect();
-    base.sort_by(f64::total_cmp);
+    let (med, lo, hi) = stats(&base);
     println!(
-        "prog=kiln_regular_scale n={n} reference_median_ns={:.3} ratio_instance={:.2} ratio_copy={:.2}",
-        base[2],
-        big[0] / base[2],
-        big[1] / base[2]
+        "prog=kiln_regular_scale n={n} reference_median_ns={med:.3} reference_min_ns={lo:.3} reference_max_ns={hi:.3} ratio_instance={:.2} ratio_copy={:.2}",
+        big[0] / med,
+        big[1] / med
     );
 }
 
