@@ -437,6 +437,24 @@ pub fn huge_pages<T>(v: &mut [T]) {
     let _ = v;
 }
 
+/// Maps the pages of a large, freshly zeroed buffer (`vec![0; n]`, whose pages the kernel
+/// maps on first touch) from all threads at once, by writing a zero (`T::default()`) to one
+/// value per 4 KiB page: the page faults a serial loop would otherwise take one by one in its
+/// first pass are shared by the pool. A buffer of zeros stays zeros. On this 2-core VM a first
+/// touch costs about 2 s per GB from one thread (the 1.2 GB of the blocked sweep's buckets at
+/// n = 10⁸: 2.5 s serially, 1.1–1.3 s from two threads).
+pub fn prefault_zeroed<T: Copy + Send + Default>(v: &mut [T]) {
+    use rayon::prelude::*;
+    let page = (4096 / std::mem::size_of::<T>().max(1)).max(1);
+    v.par_chunks_mut(page * 64).for_each(|c| {
+        for x in c.iter_mut().step_by(page) {
+            // SAFETY: `x` is a valid, aligned element of the slice; volatile so that the store
+            // of the value the page already holds is not elided.
+            unsafe { std::ptr::write_volatile(x, T::default()) };
+        }
+    });
+}
+
 /// Prefetches the cache line holding `x` into the first-level cache, to be read or written
 /// soon (a hint: never changes a result).
 #[inline(always)]

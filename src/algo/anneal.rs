@@ -120,19 +120,21 @@ fn beta_at(p: &Params, sweep: u64, steps: u64) -> f64 {
 pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
     let n = d.n();
     let mut s = random_start(n, rng);
-    let mut h = vec![0.0; n];
-    d.fields(&s, &mut h);
     let mut info = Info::default();
     let steps = p.sweeps.max(1);
-    let bound = d.integer_gain_bound();
     let small = d
         .as_graph()
-        .and_then(|g| g.small_integer_couplings().map(|w| (g, w)));
-    if let (Some((g, w)), Some(bound)) = (small, bound) {
+        .and_then(|g| g.small_integer_form().map(|(w, b)| (g, w, b)));
+    // The f64 fields: the generic loop's state, and what the quench starts from.
+    let mut h = if let Some((g, w, bound)) = small {
         let it = Integer { p, g, w: &w, bound };
-        info.iterations = sweeps_integer(it, &mut s, &mut h, rng);
+        let (accepted, h) = sweeps_integer(it, &mut s, rng);
+        info.iterations = accepted;
+        h
     } else {
-        let mut accept = super::Metropolis::new(bound);
+        let mut h = vec![0.0; n];
+        d.fields(&s, &mut h);
+        let mut accept = super::Metropolis::new(d.integer_gain_bound());
         for sweep in 0..steps {
             crate::exec::progress::step(sweep, steps, "sweep");
             accept.set_beta(beta_at(p, sweep, steps));
@@ -144,7 +146,8 @@ pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
                 }
             }
         }
-    }
+        h
+    };
     info.sweeps = steps;
     info.converged = true;
     if p.quench {
@@ -162,8 +165,7 @@ pub fn run<M: SpinModel>(p: &Params, d: &M, rng: &mut Stream) -> Output {
 
 /// Exact integer fields for [`sweeps_integer`]: i8 when every |h| ≤ 127 is guaranteed (the
 /// gain bound says so; 3-regular ±1 graphs), which keeps the field array in cache, else i32.
-trait IntField: Copy {
-    fn from_f64(x: f64) -> Self;
+trait IntField: Copy + Send + Sync {
     fn get(self) -> i32;
     fn set(v: i32) -> Self;
 }
@@ -171,10 +173,6 @@ trait IntField: Copy {
 macro_rules! int_field {
     ($t:ty) => {
         impl IntField for $t {
-            #[inline(always)]
-            fn from_f64(x: f64) -> Self {
-                x as $t
-            }
             #[inline(always)]
             fn get(self) -> i32 {
                 self as i32
@@ -203,40 +201,68 @@ struct Integer<'a> {
 /// (i8 when the gain bound allows, else i32), the couplings as i8, acceptance from the per-β
 /// table. Every decision and draw is the one the generic loop makes (the fields are the same
 /// integers; the table holds the same `libm::exp(β·g)`), so the output is bit-identical
-/// (tested); it is only more compact. Returns the accepted flips; `h` holds the final fields.
-fn sweeps_integer(it: Integer<'_>, s: &mut [i8], h: &mut [f64], rng: &mut Stream) -> u64 {
+/// (tested); it is only more compact. Returns the accepted flips and, when the schedule ends
+/// with a quench, the final fields as f64 (else nothing: at n = 10⁸ an f64 field array is
+/// 0.8 GB that the sweeps never read).
+fn sweeps_integer(it: Integer<'_>, s: &mut [i8], rng: &mut Stream) -> (u64, Vec<f64>) {
     // |h_i| ≤ bound/2 for every i.
     if it.bound / 2 <= i8::MAX as usize {
-        sweeps_typed::<i8>(it, s, h, rng)
+        sweeps_typed::<i8>(it, s, rng)
     } else {
-        sweeps_typed::<i32>(it, s, h, rng)
+        sweeps_typed::<i32>(it, s, rng)
     }
 }
 
-/// How many spins ahead [`sweeps_direct`] prefetches the neighbours' fields.
+/// How many spins ahead [`sweeps_direct`] and [`integer_fields`] prefetch the neighbours'
+/// entries.
 const AHEAD: usize = 16;
 
-fn sweeps_typed<F: IntField>(
-    it: Integer<'_>,
-    s: &mut [i8],
-    h: &mut [f64],
-    rng: &mut Stream,
-) -> u64 {
-    let n = s.len();
-    let mut hi: Vec<F> = vec![F::set(0); n];
-    crate::kernels::huge_pages(&mut hi);
-    for (v, &x) in hi.iter_mut().zip(h.iter()) {
-        *v = F::from_f64(x);
-    }
-    let accepted = if n > BLOCKED_ABOVE {
+fn sweeps_typed<F: IntField>(it: Integer<'_>, s: &mut [i8], rng: &mut Stream) -> (u64, Vec<f64>) {
+    let mut hi = integer_fields::<F>(it.g, it.w, s);
+    let accepted = if s.len() > BLOCKED_ABOVE {
         sweeps_blocked(it, s, &mut hi, rng, BLOCK_SHIFT)
     } else {
         sweeps_direct(it, s, &mut hi, rng)
     };
-    for (x, &v) in h.iter_mut().zip(&hi) {
-        *x = v.get() as f64;
-    }
-    accepted
+    let h = if it.p.quench {
+        hi.iter().map(|v| v.get() as f64).collect()
+    } else {
+        Vec::new()
+    };
+    (accepted, h)
+}
+
+/// The integer fields h_i = Σ_j J_ij σ_j, in parallel over blocks of spins (each field its
+/// own sum, so the same for any thread count; the f64 fields of the generic loop are the same
+/// integers). The gathers of σ_j miss the caches at n = 10⁸: they are prefetched [`AHEAD`]
+/// spins ahead, and the serial pass with an f64 array took 3.2 s there.
+fn integer_fields<F: IntField>(g: &crate::model::sparse::Graph, w: &[i8], s: &[i8]) -> Vec<F> {
+    use rayon::prelude::*;
+    const CHUNK: usize = 1 << 16;
+    let (offsets, nbr) = g.csr();
+    let n = s.len();
+    let mut hi: Vec<F> = vec![F::set(0); n];
+    crate::kernels::huge_pages(&mut hi);
+    hi.par_chunks_mut(CHUNK).enumerate().for_each(|(c, out)| {
+        let lo = c * CHUNK;
+        for (k, v) in out.iter_mut().enumerate() {
+            let i = lo + k;
+            if i + AHEAD < n {
+                let (a, b) = (offsets[i + AHEAD] as usize, offsets[i + AHEAD + 1] as usize);
+                for &j in &nbr[a..b] {
+                    crate::kernels::prefetch(s.as_ptr().wrapping_add(j as usize));
+                }
+            }
+            let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
+            let x: i32 = nbr[a..b]
+                .iter()
+                .zip(&w[a..b])
+                .map(|(&j, &wj)| wj as i32 * s[j as usize] as i32)
+                .sum();
+            *v = F::set(x);
+        }
+    });
+    hi
 }
 
 /// The sweeps with every field update applied at once (prefetched [`AHEAD`] spins ahead).
@@ -314,10 +340,12 @@ fn prefetch_lists(offsets: &[u64], nbr: &[u32], w: &[i8], i: usize, end: usize) 
 /// Above this many spins the fields outgrow the caches and [`sweeps_blocked`] runs instead.
 const BLOCKED_ABOVE: usize = 1 << 22;
 
-/// log₂ of the spins per block of [`sweeps_blocked`]: 65 536 (the most a bucket entry's 16-bit
-/// index holds), so a block's fields (64 KiB as i8) stay in L2 while it is swept and the
-/// buckets' tails (one line each, 1 526 at n = 10⁸) stay in cache between appends.
-const BLOCK_SHIFT: u32 = 16;
+/// log₂ of the spins per block of [`sweeps_blocked`]: 262 144, so a block's fields (256 KiB as
+/// i8) stay in the 1 MiB L2 while it is swept, and the buckets' tails (one line each, 382 at
+/// n = 10⁸: 24 KiB) stay in the 32 KiB L1 between appends. Measured at n = 10⁸, 100 sweeps
+/// (ns per attempt, one process, the same instance and draws): 2^16 7.6 and 8.2, 2^17 7.2,
+/// 2^18 6.8, 7.1 and 7.3, 2^19 7.1; 2^20 was slower than 2^16 in a 30-sweep trial.
+const BLOCK_SHIFT: u32 = 18;
 
 /// The same sweeps with the field updates to other blocks of 2^`shift` spins deferred
 /// (propagation blocking, Beamer, Asanović & Patterson 2017, "Reducing PageRank communication
@@ -330,7 +358,7 @@ const BLOCK_SHIFT: u32 = 16;
 /// overflows: between two visits of a block each other spin flips at most once, so the
 /// changes waiting for a block number at most its spins' degrees, the size of its slice of
 /// the neighbour array, which the buckets mirror. Random writes over the whole field array
-/// (a cache miss each at n = 10⁸) become appends to a few thousand bucket tails.
+/// (a cache miss each at n = 10⁸) become appends to a few hundred bucket tails.
 fn sweeps_blocked<F: IntField>(
     it: Integer<'_>,
     s: &mut [i8],
@@ -339,7 +367,12 @@ fn sweeps_blocked<F: IntField>(
     shift: u32,
 ) -> u64 {
     let Integer { p, g, w, bound } = it;
-    debug_assert!(shift <= 16, "a block's spin index is kept in 16 bits");
+    // An entry keeps the spin's index in its block in the low `shift` bits and the change
+    // (±2·J, |J| ≤ 127: 10 bits with its sign) in the bits above.
+    debug_assert!(
+        shift <= 22,
+        "a bucket entry keeps the change in 32 − shift bits"
+    );
     let (offsets, nbr) = g.csr();
     let n = s.len();
     let block = 1usize << shift;
@@ -347,14 +380,17 @@ fn sweeps_blocked<F: IntField>(
     // Bucket b fills pending[start[b]..tail[b]], within the slice of nbr of block b's spins.
     let start: Vec<usize> = (0..blocks).map(|b| offsets[b << shift] as usize).collect();
     let mut tail = start.clone();
-    // Zeroed pages are mapped on first touch: the buckets cost what they hold. 2 MiB pages
-    // keep the bucket tails' translations in the TLB (1 526 tails, 4 KiB apart and more).
+    // 2 MiB pages keep the bucket tails' translations in the TLB (382 tails at n = 10⁸, 3 MiB
+    // apart). The pages are mapped from all threads before the first sweep, which would
+    // otherwise take their faults one by one (2.5 s of a run at n = 10⁸ here, 1.2–1.4 s so).
     let mut pending = vec![0u32; nbr.len()];
     crate::kernels::huge_pages(&mut pending);
+    crate::kernels::prefault_zeroed(&mut pending);
+    let mask = (1u32 << shift) - 1;
     let apply = |hi: &mut [F], lo: usize, entries: &[u32]| {
         for &e in entries {
-            let j = lo + (e & 0xffff) as usize;
-            hi[j] = F::set(hi[j].get().wrapping_add((e as i32) >> 16));
+            let j = lo + (e & mask) as usize;
+            hi[j] = F::set(hi[j].get().wrapping_add((e as i32) >> shift));
         }
     };
     // Fields per cache line.
@@ -382,7 +418,7 @@ fn sweeps_blocked<F: IntField>(
                             hi[j] = F::set(hi[j].get().wrapping_add(d));
                         } else {
                             let bj = j >> shift;
-                            pending[tail[bj]] = (j - (bj << shift)) as u32 | ((d as u32) << 16);
+                            pending[tail[bj]] = (j - (bj << shift)) as u32 | ((d as u32) << shift);
                             tail[bj] += 1;
                         }
                     }
@@ -450,8 +486,8 @@ mod tests {
                 }
             }
             let g = Graph::from_edges(n, &edges);
-            let w = g.small_integer_couplings().unwrap();
-            let bound = g.integer_gain_bound().unwrap();
+            let (w, bound) = g.small_integer_form().unwrap();
+            assert_eq!(Some(bound), g.integer_gain_bound());
             // From hot (most moves accepted) to cold, in units of the couplings.
             let p = Params {
                 sweeps: 40,
@@ -476,7 +512,7 @@ mod tests {
                 let (p, g, w, bound, start, h0) = args;
                 let mut s = start.to_vec();
                 let mut rng = stream(&[8; 32], Purpose::Algorithm, 0);
-                let mut hi: Vec<F> = h0.iter().map(|&x| F::from_f64(x)).collect();
+                let mut hi: Vec<F> = h0.iter().map(|&x| F::set(x as i32)).collect();
                 let it = Integer { p, g, w, bound };
                 let a = match shift {
                     None => sweeps_direct(it, &mut s, &mut hi, &mut rng),
@@ -498,7 +534,7 @@ mod tests {
                 "too few flips to test anything: {}",
                 direct.2
             );
-            for shift in [4, 6] {
+            for shift in [4, 6, 9] {
                 assert_eq!(typed(Some(shift)), direct, "n = {n}, blocks of 2^{shift}");
             }
         }
@@ -536,15 +572,19 @@ mod tests {
             regular(600, 140, Couplings::Pm1, &[7; 32], 0.0),
         ];
         for g in &graphs {
-            assert!(g.small_integer_couplings().is_some());
-            let p = Params {
-                sweeps: 50,
-                ..Params::default()
-            };
-            let a = run(&p, g, &mut stream(&[6; 32], Purpose::Algorithm, 0));
-            let b = run(&p, &Plain(g), &mut stream(&[6; 32], Purpose::Algorithm, 0));
-            assert_eq!(a.spins, b.spins);
-            assert_eq!(a.info, b.info);
+            assert!(g.small_integer_form().is_some());
+            // With the quench (which starts from the integer loop's fields) and without.
+            for quench in [true, false] {
+                let p = Params {
+                    sweeps: 50,
+                    quench,
+                    ..Params::default()
+                };
+                let a = run(&p, g, &mut stream(&[6; 32], Purpose::Algorithm, 0));
+                let b = run(&p, &Plain(g), &mut stream(&[6; 32], Purpose::Algorithm, 0));
+                assert_eq!(a.spins, b.spins);
+                assert_eq!(a.info, b.info);
+            }
         }
     }
 }

@@ -159,9 +159,9 @@ pub fn run_observed<M: SpinModel>(
     // 1 + e^{−2βh} tabulated once from the same `libm::exp` of the same arguments.
     let small = d
         .as_graph()
-        .zip(d.integer_gain_bound())
-        .filter(|&(_, b)| b / 2 <= i8::MAX as usize)
-        .and_then(|(g, b)| Some((g, g.small_integer_couplings()?, (b / 2) as i64)));
+        .and_then(|g| Some((g, g.small_integer_form()?)))
+        .filter(|(_, (_, b))| b / 2 <= i8::MAX as usize)
+        .map(|(g, (w, b))| (g, w, (b / 2) as i64));
     if let Some((g, w, off)) = small {
         let t: Vec<f64> = (-off..=off)
             .map(|k| 1.0 + libm::exp(-two_beta * k as f64))

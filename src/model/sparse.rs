@@ -315,18 +315,43 @@ impl Graph {
         Some(2 * best as usize)
     }
 
-    /// The couplings as i8 in CSR order, when every one is an integer in [−127, 127] (±1 and
-    /// cut couplings): the compact form the integer annealing loop runs on.
-    pub fn small_integer_couplings(&self) -> Option<Vec<i8>> {
+    /// The couplings as i8 in CSR order with the bound 2·max_i Σ_j |J_ij| on the integer gains
+    /// ([`Graph::integer_gain_bound`]), when every coupling is an integer in [−127, 127] (±1
+    /// and cut couplings): the compact form the integer loops run on. In parallel (each entry
+    /// and each row sum is its own, so the result is the same for any thread count): at
+    /// n = 10⁸ the serial conversion and bound took 1.7 s of every annealing run.
+    pub fn small_integer_form(&self) -> Option<(Vec<i8>, usize)> {
+        const CHUNK: usize = 1 << 16;
         let mut out = vec![0i8; self.w.len()];
         crate::kernels::huge_pages(&mut out);
-        for (o, &x) in out.iter_mut().zip(&self.w) {
-            if x.fract() != 0.0 || x.abs() > 127.0 {
-                return None;
-            }
-            *o = x as i8;
+        let fits = out
+            .par_chunks_mut(CHUNK)
+            .zip(self.w.par_chunks(CHUNK))
+            .all(|(o, w)| {
+                for (o, &x) in o.iter_mut().zip(w) {
+                    if x.fract() != 0.0 || x.abs() > 127.0 {
+                        return false;
+                    }
+                    *o = x as i8;
+                }
+                true
+            });
+        if !fits {
+            return None;
         }
-        Some(out)
+        let best = (0..self.n)
+            .into_par_iter()
+            .with_min_len(CHUNK)
+            .map(|i| {
+                let (a, b) = (self.offsets[i] as usize, self.offsets[i + 1] as usize);
+                out[a..b]
+                    .iter()
+                    .map(|&x| x.unsigned_abs() as usize)
+                    .sum::<usize>()
+            })
+            .max()
+            .unwrap_or(0);
+        Some((out, 2 * best))
     }
 
     /// CSR row offsets (n + 1) and neighbour lists.
@@ -996,6 +1021,28 @@ mod tests {
             g.flip(&mut s, &mut h, k);
             assert!((g.energy(&s) - before - gain).abs() < 1e-12);
         }
+    }
+
+    /// The integer form is the couplings rounded to i8 and the serial gain bound, on a graph
+    /// large enough to span many parallel chunks, and is refused where a coupling is not a
+    /// small integer (Gaussian couplings; a ±200 coupling).
+    #[test]
+    fn small_integer_form_is_the_couplings_and_the_bound() {
+        for c in [Couplings::Pm1, Couplings::Cut] {
+            let g = regular(300_000, 3, c, &[5; 32], 0.0);
+            let (w, bound) = g.small_integer_form().expect("integer couplings");
+            assert_eq!(Some(bound), g.integer_gain_bound());
+            assert_eq!(bound, 6, "3-regular with |J| = 1");
+            assert_eq!(w.len(), g.w.len());
+            assert!(w.iter().zip(&g.w).all(|(&a, &b)| a as f64 == b));
+        }
+        let g = regular(1000, 3, Couplings::Gaussian, &[5; 32], 0.0);
+        assert!(g.small_integer_form().is_none());
+        let g = Graph::from_edges(3, &[(0, 1, 200.0), (1, 2, 1.0)]);
+        assert!(g.small_integer_form().is_none());
+        assert_eq!(g.integer_gain_bound(), Some(402));
+        let g = Graph::from_edges(3, &[(0, 1, -120.0), (1, 2, 7.0), (0, 2, 1.0)]);
+        assert_eq!(g.small_integer_form().map(|f| f.1), Some(2 * 127));
     }
 }
 
