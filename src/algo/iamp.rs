@@ -48,8 +48,8 @@
 //! threshold is the Parisi value, the same sizes and step extrapolate below it by the same
 //! fraction (`experiments/studies/cube-mixture-iamp.toml`; README, "A calibration where the
 //! limit is known"), but the calibration does not cover the pure model's iteration: there the
-//! increments of Z correlate with the iterate m (rms correlation times √n 5 to 9 at n = 400 …
-//! 1200, against 1.3 to 1.6 on SK and the mixture, where state evolution makes it noise), with
+//! increments of Z correlate with the iterate m (rms correlation times √n 5 to 11 at n = 400 …
+//! 1200, against 1.3 to 2.0 on SK and the mixture, where state evolution makes it noise), with
 //! either order parameter and start. Open: the iteration for ξ''(0) = 0 leaves its state
 //! evolution, and the cause is not found (README, "The calibration does not cover the pure
 //! model's iteration").
