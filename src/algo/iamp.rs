@@ -51,8 +51,9 @@
 //! increments of Z correlate with the iterate m (rms correlation times √n 5 to 11 at n = 400 …
 //! 1200, against 1.3 to 2.0 on SK and the mixture, where state evolution makes it noise), with
 //! either order parameter and start. Open: the iteration for ξ''(0) = 0 leaves its state
-//! evolution, and the cause is not found (README, "The calibration does not cover the pure
-//! model's iteration").
+//! evolution at these sizes, and whether by a fault here or by a finite-n instability of the
+//! iteration is not settled (README, "The calibration does not cover the pure model's
+//! iteration").
 
 use super::{AlgoError, Info, Output};
 use super::{Algorithm, Key, Kind};
