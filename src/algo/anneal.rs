@@ -247,12 +247,7 @@ fn integer_fields<F: IntField>(g: &crate::model::sparse::Graph, w: &[i8], s: &[i
         let lo = c * CHUNK;
         for (k, v) in out.iter_mut().enumerate() {
             let i = lo + k;
-            if i + AHEAD < n {
-                let (a, b) = (offsets[i + AHEAD] as usize, offsets[i + AHEAD + 1] as usize);
-                for &j in &nbr[a..b] {
-                    crate::kernels::prefetch(s.as_ptr().wrapping_add(j as usize));
-                }
-            }
+            prefetch_neighbours(offsets, nbr, s, i + AHEAD);
             let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
             let x: i32 = nbr[a..b]
                 .iter()
@@ -263,6 +258,19 @@ fn integer_fields<F: IntField>(g: &crate::model::sparse::Graph, w: &[i8], s: &[i
         }
     });
     hi
+}
+
+/// Asks for `data[j]` of every neighbour j of spin `i` (nothing past the last spin): the
+/// entries a loop over spins will gather or update [`AHEAD`] spins later (a hint; results
+/// unchanged).
+#[inline(always)]
+fn prefetch_neighbours<T>(offsets: &[u64], nbr: &[u32], data: &[T], i: usize) {
+    if i + 1 < offsets.len() {
+        let (a, b) = (offsets[i] as usize, offsets[i + 1] as usize);
+        for &j in &nbr[a..b] {
+            crate::kernels::prefetch(data.as_ptr().wrapping_add(j as usize));
+        }
+    }
 }
 
 /// The sweeps with every field update applied at once (prefetched [`AHEAD`] spins ahead).
@@ -281,12 +289,7 @@ fn sweeps_direct<F: IntField>(
             // On a graph larger than the caches every field update is a miss: ask for the
             // fields of the neighbours of spin i + AHEAD now (a hint; results unchanged).
             prefetch_lists(offsets, nbr, w, i, n);
-            if i + AHEAD < n {
-                let (a, b) = (offsets[i + AHEAD] as usize, offsets[i + AHEAD + 1] as usize);
-                for &j in &nbr[a..b] {
-                    crate::kernels::prefetch(hi.as_ptr().wrapping_add(j as usize));
-                }
-            }
+            prefetch_neighbours(offsets, nbr, hi, i + AHEAD);
             if accepts(s[i] as i32 * hi[i].get(), table, rng) {
                 s[i] = -s[i];
                 let c = 2 * s[i] as i32;

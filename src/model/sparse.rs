@@ -308,11 +308,22 @@ impl Graph {
         {
             return None;
         }
-        let mut best = 0.0f64;
-        for i in 0..self.n {
-            best = best.max(self.adj(i).1.iter().map(|x| x.abs()).sum());
-        }
-        Some(2 * best as usize)
+        Some(self.gain_bound(&self.w, |x| x.abs() as usize))
+    }
+
+    /// 2·max_i Σ_j |w_ij| over couplings `w` in CSR order (exact integers), in parallel over
+    /// rows (each row sum its own, so the same for any thread count).
+    fn gain_bound<T: Copy + Sync>(&self, w: &[T], abs: impl Fn(T) -> usize + Sync) -> usize {
+        let best = (0..self.n)
+            .into_par_iter()
+            .with_min_len(1 << 16)
+            .map(|i| {
+                let (a, b) = (self.offsets[i] as usize, self.offsets[i + 1] as usize);
+                w[a..b].iter().map(|&x| abs(x)).sum::<usize>()
+            })
+            .max()
+            .unwrap_or(0);
+        2 * best
     }
 
     /// The couplings as i8 in CSR order with the bound 2·max_i Σ_j |J_ij| on the integer gains
@@ -339,19 +350,8 @@ impl Graph {
         if !fits {
             return None;
         }
-        let best = (0..self.n)
-            .into_par_iter()
-            .with_min_len(CHUNK)
-            .map(|i| {
-                let (a, b) = (self.offsets[i] as usize, self.offsets[i + 1] as usize);
-                out[a..b]
-                    .iter()
-                    .map(|&x| x.unsigned_abs() as usize)
-                    .sum::<usize>()
-            })
-            .max()
-            .unwrap_or(0);
-        Some((out, 2 * best))
+        let bound = self.gain_bound(&out, |x| x.unsigned_abs() as usize);
+        Some((out, bound))
     }
 
     /// CSR row offsets (n + 1) and neighbour lists.
