@@ -104,22 +104,22 @@ const ALGORITHM_PINS: &[Pin] = &[
     ("amp", 1, "sk", 24, "0.2311010712331977", "3b278dcecffcba17"),
     (
         "iamp",
-        3,
+        4,
         "cube",
         24,
-        // Revision 3 (γ from the extended minimiser) and theory solver revisions 2–3 (lattice
-        // steps) moved the point, not the signs' energy.
-        "0.51153388586043",
-        "3ac065e7f5d8169b",
+        // Revision 4 (`decorrelate`: each increment of Z loses its component along m) moved
+        // the signs from 0.5115 (revision 3).
+        "0.6735414707156399",
+        "557c11790dc5b222",
     ),
     // The pure 3-spin cube (ξ''(0) = 0): the start at q₀ = δ with the field from t = δ.
     (
         "iamp",
-        3,
+        4,
         "cube-pure3",
         24,
-        "0.37581291588424026",
-        "2fd1bc153aa6656c",
+        "0.640097038247695",
+        "5231ec3fad6381e2",
     ),
     (
         "glauber",
