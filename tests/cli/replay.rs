@@ -86,6 +86,7 @@ fn replay_passes_on_every_committed_example() {
         "cube-pure3-iamp",
         "sk-iamp-steps",
         "cube-pure3-iamp-half-step",
+        "cube-pure3-iamp-quarter-step",
         "cube-mixture-iamp",
     ] {
         let dir = root.join(e);
