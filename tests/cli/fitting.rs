@@ -352,6 +352,7 @@ fn iamp_on_sk_reaches_the_threshold_at_the_shared_exponent() {
 ///   smallest step's lies within 2 of ALG: the acceptance check of iAMP reaching ALG;
 /// - the exponent matters: with ω = 2/3 (Δχ² = +2.6) the smallest step lies 4 standard errors
 ///   below ALG, so the claim rests on the exponent the data prefer, as the README says.
+///
 /// Measured at ω = 1/2: 0.7787(24), 0.7979(24), 0.8016(19); at 2/3: 0.7700(18), 0.7873(18),
 /// 0.7911(14). The standard error is the larger of the fit's and the bootstrap's.
 #[test]
